@@ -1,0 +1,931 @@
+//! The normalizer: a survey's own columns in, a calibrated source table out.
+//!
+//! [`Normalizer`] applies a [`SurveySchema`] to the record batches of one
+//! catalog file. Each output row is one source with
+//!
+//! - `catalog`, `source_id`, `row` (the data row in the file, from 1);
+//! - `ra_deg`, `dec_deg`, `epoch_yr` (Julian years);
+//! - `pos_err_major_arcsec`, `pos_err_minor_arcsec`, `pos_err_pa_deg`: the 1-sigma
+//!   error ellipse (a circle has major = minor and angle 0);
+//! - `pmra_cosdec_masyr`, `pmdec_masyr`: proper motion with the RA component
+//!   always including cos(dec), null when the survey has none;
+//! - per band with a zero point: `<band>_flux_jy`, `<band>_flux_err_jy`
+//!   (first-order 1-sigma), `<band>_flux_lo_jy`, `<band>_flux_hi_jy` (the exact
+//!   1-sigma interval, asymmetric for magnitudes), `<band>_ulim_jy` and
+//!   `<band>_status`; per magnitude-only band: `<band>_mag`, `<band>_mag_err`,
+//!   `<band>_ulim_mag`, `<band>_status`.
+//!
+//! Upper limits never share a column with detections: a limit row has a null
+//! `flux_jy` and its limit in `ulim_jy` (with the noise `flux_err_jy` when known).
+//!
+//! The decision for each band measurement, in order:
+//! 1. no value (null, empty, NaN, a null sentinel): `upper_limit` when a separate
+//!    limit column has a value, else `missing`;
+//! 2. a non-detection sentinel: `not_detected` (with the survey depth as the limit
+//!    when the schema gives one);
+//! 3. a quality rule matches: `rejected`, counted by rule;
+//! 4. a limit flag, or a value without error under `missing_error`: `upper_limit`
+//!    with the value as the limit;
+//! 5. the value is converted; S/N below the schema's threshold: `upper_limit`
+//!    by the schema's rule;
+//! 6. a flux density that is zero or negative is never a detection: it becomes an
+//!    upper limit max(F, 0) + 3 sigma when an error is known (common practice),
+//!    else `rejected`;
+//! 7. otherwise `detected`.
+//!
+//! An error value that is zero or negative is read as "no error" (catalogs use
+//! such values as sentinels).
+
+mod columns;
+pub mod position;
+mod report;
+
+use std::path::{Path, PathBuf};
+use std::sync::Arc;
+
+use arrow::array::{ArrayRef, Float64Builder, RecordBatch, StringBuilder, UInt64Builder};
+use arrow::datatypes::{DataType, Field, Schema, SchemaRef};
+
+pub use columns::{NotANumber, NumberColumn, TextColumn};
+pub use report::{BandCounts, BandStatus, NormalizeReport, Problem};
+
+use super::schema::{
+    AngleUnit, BandColumns, Epoch, EpochUnit, LimitMarker, PositionError, PositionFormat,
+    QualityRule, SurveySchema,
+};
+use crate::error::{Error, Result};
+use crate::photometry::{Conversion, FluxJy, LimitRule};
+
+/// Limit rule for a non-positive flux density in a survey with no rule of its own:
+/// max(F, 0) + 3 sigma (common practice).
+pub const DEFAULT_NONPOSITIVE_RULE: LimitRule = LimitRule::FluxPlusSigma { n: 3.0 };
+
+/// How strictly bad input is treated.
+#[derive(Debug, Clone, Copy, Default)]
+pub struct NormalizeOptions {
+    /// Skip rows whose identifier, position, epoch or position error cannot be read
+    /// (counted by reason) and mark unreadable band values as rejected, instead of
+    /// stopping at the first such value.
+    pub skip_bad_rows: bool,
+}
+
+/// Applies a survey schema to a catalog file's batches, one batch at a time.
+pub struct Normalizer {
+    schema: SurveySchema,
+    path: PathBuf,
+    options: NormalizeOptions,
+    output: SchemaRef,
+    report: NormalizeReport,
+    rows_seen: u64,
+}
+
+/// A row-level problem: the column, what was expected, what was found.
+struct RowProblem {
+    column: String,
+    expected: String,
+    found: String,
+}
+
+impl RowProblem {
+    fn new(column: &str, expected: &str, found: impl Into<String>) -> RowProblem {
+        RowProblem {
+            column: column.to_string(),
+            expected: expected.to_string(),
+            found: found.into(),
+        }
+    }
+}
+
+impl Normalizer {
+    /// A normalizer for the catalog at `path` described by `schema`.
+    pub fn new(schema: &SurveySchema, path: &Path, options: NormalizeOptions) -> Normalizer {
+        let report = NormalizeReport {
+            survey: schema.survey.clone(),
+            bands: schema
+                .bands
+                .iter()
+                .map(|b| BandCounts {
+                    band: b.band.id.clone(),
+                    ..BandCounts::default()
+                })
+                .collect(),
+            ..NormalizeReport::default()
+        };
+        Normalizer {
+            output: output_schema(schema),
+            schema: schema.clone(),
+            path: path.to_path_buf(),
+            options,
+            report,
+            rows_seen: 0,
+        }
+    }
+
+    /// The Arrow schema of the normalized batches.
+    pub fn output_schema(&self) -> SchemaRef {
+        self.output.clone()
+    }
+
+    /// The counts so far.
+    pub fn report(&self) -> &NormalizeReport {
+        &self.report
+    }
+
+    /// Ends the run and returns its counts.
+    pub fn finish(self) -> NormalizeReport {
+        self.report
+    }
+
+    /// Checks that every column the schema names exists in the file and has a
+    /// usable type.
+    ///
+    /// # Errors
+    /// [`Error::MissingColumn`] naming the schema line, or [`Error::ColumnType`].
+    pub fn check_file(&self, file: &Schema) -> Result<()> {
+        let available = || {
+            file.fields()
+                .iter()
+                .map(|f| f.name().as_str())
+                .collect::<Vec<_>>()
+                .join(", ")
+        };
+        for (column, line) in self.schema.referenced_columns() {
+            let Ok(field) = file.field_with_name(&column) else {
+                let line = self.schema.line_of_column(&column, line);
+                return Err(Error::MissingColumn {
+                    path: self.path.clone(),
+                    column,
+                    named_at: format!("named at {}:{line}", self.schema.path.display()),
+                    available: available(),
+                });
+            };
+            let t = field.data_type();
+            let usable = t.is_numeric()
+                || matches!(
+                    t,
+                    DataType::Utf8
+                        | DataType::LargeUtf8
+                        | DataType::Utf8View
+                        | DataType::Boolean
+                        | DataType::Null
+                );
+            if !usable {
+                return Err(Error::ColumnType {
+                    path: self.path.clone(),
+                    column,
+                    expected: "numbers or text".into(),
+                    found: t.to_string(),
+                });
+            }
+        }
+        Ok(())
+    }
+
+    /// Normalizes one batch of the file (batches must come in file order).
+    ///
+    /// # Errors
+    /// Without skipping, the first unreadable value as [`Error::BadValue`] naming
+    /// its row and column; a missing column as [`Error::MissingColumn`].
+    pub fn normalize(&mut self, batch: &RecordBatch) -> Result<RecordBatch> {
+        let n = batch.num_rows();
+        let first_row = self.rows_seen + 1;
+        self.rows_seen += n as u64;
+        self.report.rows_read += n as u64;
+        let inputs = RowInputs::new(&self.schema, batch, &self.path)?;
+        let bands: Vec<BandInput> = self
+            .schema
+            .bands
+            .iter()
+            .map(|spec| BandInput::new(spec, batch, &self.path))
+            .collect::<Result<_>>()?;
+
+        let mut out = RowBuilders::new(n, &self.schema.survey);
+        let mut band_out: Vec<BandBuilders> =
+            bands.iter().map(|b| BandBuilders::new(n, b.spec)).collect();
+
+        let mut outcomes = Vec::with_capacity(bands.len());
+        for i in 0..n {
+            let row = first_row + i as u64;
+            let fields = match inputs.read(i, &self.schema) {
+                Ok(f) => f,
+                Err(p) => {
+                    if !self.options.skip_bad_rows {
+                        return Err(Error::BadValue {
+                            path: self.path.clone(),
+                            row,
+                            column: p.column,
+                            expected: p.expected,
+                            found: p.found,
+                        });
+                    }
+                    let reason = format!("column \"{}\": expected {}", p.column, p.expected);
+                    *self.report.rows_skipped.entry(reason).or_insert(0) += 1;
+                    self.report.record_problem(Problem {
+                        row,
+                        column: p.column,
+                        expected: p.expected,
+                        found: p.found,
+                        action: "row skipped".into(),
+                    });
+                    continue;
+                }
+            };
+            // Bands are evaluated before anything is appended, so a strict-mode
+            // error cannot leave the builders with rows of unequal length.
+            outcomes.clear();
+            for band in bands.iter() {
+                match band.evaluate(i) {
+                    Ok(o) => outcomes.push(o),
+                    Err(p) => {
+                        if !self.options.skip_bad_rows {
+                            return Err(Error::BadValue {
+                                path: self.path.clone(),
+                                row,
+                                column: p.column,
+                                expected: p.expected,
+                                found: p.found,
+                            });
+                        }
+                        self.report.record_problem(Problem {
+                            row,
+                            column: p.column.clone(),
+                            expected: p.expected.clone(),
+                            found: p.found,
+                            action: "band rejected".into(),
+                        });
+                        outcomes.push(Outcome::Rejected(format!(
+                            "unreadable value in column \"{}\"",
+                            p.column
+                        )));
+                    }
+                }
+            }
+            out.append(row, &fields);
+            for ((outcome, builders), counts) in outcomes
+                .drain(..)
+                .zip(band_out.iter_mut())
+                .zip(self.report.bands.iter_mut())
+            {
+                let status = builders.append(outcome, counts);
+                *counts
+                    .by_status
+                    .entry(status.as_str().to_string())
+                    .or_insert(0) += 1;
+            }
+            self.report.rows_kept += 1;
+        }
+        let mut columns = out.finish();
+        for b in band_out {
+            columns.extend(b.finish());
+        }
+        RecordBatch::try_new(self.output.clone(), columns)
+            .map_err(|e| Error::columnar(&self.path, e))
+    }
+}
+
+impl SurveySchema {
+    /// The first line, at or after line `from`, of the schema that names `column`
+    /// (e.g. `ra = "RAJ2000"`), or `from` when none does.
+    pub fn line_of_column(&self, column: &str, from: usize) -> usize {
+        let quoted = format!("\"{column}\"");
+        self.text
+            .lines()
+            .enumerate()
+            .skip(from.saturating_sub(1))
+            .find(|(_, l)| l.contains(&quoted))
+            .map(|(i, _)| i + 1)
+            .unwrap_or(from)
+    }
+}
+
+/// The Arrow schema of normalized tables for `schema`, with units in field metadata.
+pub fn output_schema(schema: &SurveySchema) -> SchemaRef {
+    let mut fields = vec![
+        Field::new("catalog", DataType::Utf8, false),
+        Field::new("source_id", DataType::Utf8, false),
+        Field::new("row", DataType::UInt64, false),
+        with_unit(Field::new("ra_deg", DataType::Float64, false), "deg"),
+        with_unit(Field::new("dec_deg", DataType::Float64, false), "deg"),
+        with_unit(
+            Field::new("epoch_yr", DataType::Float64, false),
+            "yr (Julian)",
+        ),
+        with_unit(
+            Field::new("pos_err_major_arcsec", DataType::Float64, false),
+            "arcsec",
+        ),
+        with_unit(
+            Field::new("pos_err_minor_arcsec", DataType::Float64, false),
+            "arcsec",
+        ),
+        with_unit(
+            Field::new("pos_err_pa_deg", DataType::Float64, false),
+            "deg E of N",
+        ),
+        with_unit(
+            Field::new("pmra_cosdec_masyr", DataType::Float64, true),
+            "mas/yr",
+        ),
+        with_unit(Field::new("pmdec_masyr", DataType::Float64, true), "mas/yr"),
+    ];
+    for band in &schema.bands {
+        let id = &band.band.id;
+        if band.has_flux() {
+            for suffix in [
+                "flux_jy",
+                "flux_err_jy",
+                "flux_lo_jy",
+                "flux_hi_jy",
+                "ulim_jy",
+            ] {
+                fields.push(with_unit(
+                    Field::new(format!("{id}_{suffix}"), DataType::Float64, true),
+                    "Jy",
+                ));
+            }
+        } else {
+            for suffix in ["mag", "mag_err", "ulim_mag"] {
+                fields.push(with_unit(
+                    Field::new(format!("{id}_{suffix}"), DataType::Float64, true),
+                    "mag (Vega)",
+                ));
+            }
+        }
+        fields.push(Field::new(format!("{id}_status"), DataType::Utf8, false));
+    }
+    Arc::new(Schema::new(fields))
+}
+
+fn with_unit(field: Field, unit: &str) -> Field {
+    field.with_metadata(std::collections::HashMap::from([(
+        "unit".to_string(),
+        unit.to_string(),
+    )]))
+}
+
+// ---------------------------------------------------------------------------
+// Row-level fields: identifier, position, epoch, position error, proper motion.
+
+struct RowFields {
+    id: Option<String>,
+    ra_deg: f64,
+    dec_deg: f64,
+    epoch_yr: f64,
+    ellipse: (f64, f64, f64),
+    pm: Option<(f64, f64)>,
+}
+
+enum Coordinates {
+    Degrees(NumberColumn, NumberColumn),
+    Sexagesimal(TextColumn, TextColumn),
+}
+
+struct RowInputs {
+    id: Option<TextColumn>,
+    coordinates: Coordinates,
+    errors: Vec<NumberColumn>,
+    epoch: Option<NumberColumn>,
+    pm: Option<(NumberColumn, NumberColumn)>,
+}
+
+fn column<'b>(batch: &'b RecordBatch, name: &str, path: &Path) -> Result<&'b ArrayRef> {
+    batch
+        .column_by_name(name)
+        .ok_or_else(|| Error::MissingColumn {
+            path: path.to_path_buf(),
+            column: name.to_string(),
+            named_at: "named in the survey schema".into(),
+            available: batch
+                .schema()
+                .fields()
+                .iter()
+                .map(|f| f.name().as_str())
+                .collect::<Vec<_>>()
+                .join(", "),
+        })
+}
+
+fn numbers(batch: &RecordBatch, name: &str, path: &Path) -> Result<NumberColumn> {
+    let array = column(batch, name, path)?;
+    NumberColumn::new(array).ok_or_else(|| Error::ColumnType {
+        path: path.to_path_buf(),
+        column: name.to_string(),
+        expected: "numbers (or text holding numbers)".into(),
+        found: array.data_type().to_string(),
+    })
+}
+
+fn text(batch: &RecordBatch, name: &str, path: &Path) -> Result<TextColumn> {
+    let array = column(batch, name, path)?;
+    TextColumn::new(array).ok_or_else(|| Error::ColumnType {
+        path: path.to_path_buf(),
+        column: name.to_string(),
+        expected: "text, numbers or booleans".into(),
+        found: array.data_type().to_string(),
+    })
+}
+
+impl RowInputs {
+    fn new(schema: &SurveySchema, batch: &RecordBatch, path: &Path) -> Result<RowInputs> {
+        let id = schema
+            .id
+            .as_ref()
+            .map(|c| text(batch, c, path))
+            .transpose()?;
+        let coordinates = match schema.position_format {
+            PositionFormat::Degrees => Coordinates::Degrees(
+                numbers(batch, &schema.ra, path)?,
+                numbers(batch, &schema.dec, path)?,
+            ),
+            PositionFormat::Sexagesimal => Coordinates::Sexagesimal(
+                text(batch, &schema.ra, path)?,
+                text(batch, &schema.dec, path)?,
+            ),
+        };
+        let errors = match &schema.position_error {
+            PositionError::Fixed { .. } => vec![],
+            PositionError::Circular { column, .. } => vec![numbers(batch, column, path)?],
+            PositionError::Ellipse {
+                major,
+                minor,
+                angle,
+                ..
+            } => vec![
+                numbers(batch, major, path)?,
+                numbers(batch, minor, path)?,
+                numbers(batch, angle, path)?,
+            ],
+            PositionError::Axes { ra, dec, .. } => {
+                vec![numbers(batch, ra, path)?, numbers(batch, dec, path)?]
+            }
+        };
+        let epoch = match &schema.epoch {
+            Epoch::Fixed(_) => None,
+            Epoch::Column { column, .. } => Some(numbers(batch, column, path)?),
+        };
+        let pm = match &schema.proper_motion {
+            None => None,
+            Some(pm) => Some((
+                numbers(batch, &pm.ra, path)?,
+                numbers(batch, &pm.dec, path)?,
+            )),
+        };
+        Ok(RowInputs {
+            id,
+            coordinates,
+            errors,
+            epoch,
+            pm,
+        })
+    }
+
+    fn read(&self, i: usize, schema: &SurveySchema) -> Result<RowFields, RowProblem> {
+        let id = match (&self.id, &schema.id) {
+            (Some(col), Some(name)) => match col.get(i) {
+                Some(s) if !s.is_empty() => Some(s.to_string()),
+                _ => return Err(RowProblem::new(name, "a source identifier", "")),
+            },
+            _ => None,
+        };
+        let (ra_deg, dec_deg) = match &self.coordinates {
+            Coordinates::Degrees(ra, dec) => {
+                let ra_deg = required(ra, i, &schema.ra, "RA in degrees")?;
+                let dec_deg = required(dec, i, &schema.dec, "Dec in degrees")?;
+                if !(0.0..=360.0).contains(&ra_deg) {
+                    return Err(RowProblem::new(
+                        &schema.ra,
+                        "RA in degrees within [0, 360]",
+                        ra_deg.to_string(),
+                    ));
+                }
+                if !(-90.0..=90.0).contains(&dec_deg) {
+                    return Err(RowProblem::new(
+                        &schema.dec,
+                        "Dec in degrees within [-90, 90]",
+                        dec_deg.to_string(),
+                    ));
+                }
+                (if ra_deg == 360.0 { 0.0 } else { ra_deg }, dec_deg)
+            }
+            Coordinates::Sexagesimal(ra, dec) => {
+                let ra_text = ra.get(i).unwrap_or("");
+                let dec_text = dec.get(i).unwrap_or("");
+                let ra_deg = position::parse_ra_hours(ra_text).ok_or_else(|| {
+                    RowProblem::new(&schema.ra, "RA as hh:mm:ss.s (0h to 24h)", ra_text)
+                })?;
+                let dec_deg = position::parse_dec_degrees(dec_text).ok_or_else(|| {
+                    RowProblem::new(&schema.dec, "Dec as ±dd:mm:ss.s (-90 to +90)", dec_text)
+                })?;
+                (ra_deg, dec_deg)
+            }
+        };
+        let epoch_yr = match (&schema.epoch, &self.epoch) {
+            (Epoch::Fixed(y), _) => *y,
+            (Epoch::Column { column, unit }, Some(col)) => {
+                let v = required(col, i, column, "an epoch")?;
+                match unit {
+                    EpochUnit::Year => v,
+                    EpochUnit::Mjd => position::mjd_to_julian_year(v),
+                    EpochUnit::Jd => position::jd_to_julian_year(v),
+                }
+            }
+            (Epoch::Column { .. }, None) => unreachable!("epoch column resolved in RowInputs::new"),
+        };
+        let positive =
+            |col: &NumberColumn, name: &str, unit: AngleUnit| -> Result<f64, RowProblem> {
+                let v = required(col, i, name, "a positive positional error")?;
+                if v > 0.0 {
+                    Ok(v * unit.to_arcsec())
+                } else {
+                    Err(RowProblem::new(
+                        name,
+                        "a positive positional error",
+                        v.to_string(),
+                    ))
+                }
+            };
+        let ellipse = match &schema.position_error {
+            PositionError::Fixed { sigma_arcsec } => (*sigma_arcsec, *sigma_arcsec, 0.0),
+            PositionError::Circular { column, unit } => {
+                let s = positive(&self.errors[0], column, *unit)?;
+                (s, s, 0.0)
+            }
+            PositionError::Ellipse {
+                major,
+                minor,
+                angle,
+                unit,
+            } => {
+                let a = positive(&self.errors[0], major, *unit)?;
+                let b = positive(&self.errors[1], minor, *unit)?;
+                let pa = required(&self.errors[2], i, angle, "a position angle in degrees")?;
+                if a >= b {
+                    (a, b, pa.rem_euclid(180.0))
+                } else {
+                    (b, a, (pa + 90.0).rem_euclid(180.0))
+                }
+            }
+            PositionError::Axes { ra, dec, unit } => {
+                let sra = positive(&self.errors[0], ra, *unit)?;
+                let sdec = positive(&self.errors[1], dec, *unit)?;
+                position::axes_to_ellipse(sra, sdec)
+            }
+        };
+        let pm = match (&self.pm, &schema.proper_motion) {
+            (Some((pmra, pmdec)), Some(spec)) => {
+                let a = pmra
+                    .get(i, &[], &[])
+                    .map_err(|e| RowProblem::new(&spec.ra, "a proper motion in mas/yr", e.found))?;
+                let d = pmdec.get(i, &[], &[]).map_err(|e| {
+                    RowProblem::new(&spec.dec, "a proper motion in mas/yr", e.found)
+                })?;
+                match (a, d) {
+                    (Some(a), Some(d)) => {
+                        let a = if spec.ra_includes_cos_dec {
+                            a
+                        } else {
+                            a * dec_deg.to_radians().cos()
+                        };
+                        Some((a, d))
+                    }
+                    _ => None,
+                }
+            }
+            _ => None,
+        };
+        Ok(RowFields {
+            id,
+            ra_deg,
+            dec_deg,
+            epoch_yr,
+            ellipse,
+            pm,
+        })
+    }
+}
+
+fn required(col: &NumberColumn, i: usize, name: &str, expected: &str) -> Result<f64, RowProblem> {
+    match col.get(i, &[], &[]) {
+        Ok(Some(v)) => Ok(v),
+        Ok(None) => Err(RowProblem::new(name, expected, "")),
+        Err(e) => Err(RowProblem::new(name, expected, e.found)),
+    }
+}
+
+struct RowBuilders {
+    survey: String,
+    source_id: StringBuilder,
+    row: UInt64Builder,
+    values: [Float64Builder; 6],
+    pmra: Float64Builder,
+    pmdec: Float64Builder,
+}
+
+impl RowBuilders {
+    fn new(n: usize, survey: &str) -> RowBuilders {
+        RowBuilders {
+            survey: survey.to_string(),
+            source_id: StringBuilder::with_capacity(n, n * 8),
+            row: UInt64Builder::with_capacity(n),
+            values: std::array::from_fn(|_| Float64Builder::with_capacity(n)),
+            pmra: Float64Builder::with_capacity(n),
+            pmdec: Float64Builder::with_capacity(n),
+        }
+    }
+
+    fn append(&mut self, row: u64, f: &RowFields) {
+        match &f.id {
+            Some(id) => self.source_id.append_value(id),
+            None => self.source_id.append_value(row.to_string()),
+        }
+        self.row.append_value(row);
+        let v = [
+            f.ra_deg,
+            f.dec_deg,
+            f.epoch_yr,
+            f.ellipse.0,
+            f.ellipse.1,
+            f.ellipse.2,
+        ];
+        for (b, x) in self.values.iter_mut().zip(v) {
+            b.append_value(x);
+        }
+        self.pmra.append_option(f.pm.map(|p| p.0));
+        self.pmdec.append_option(f.pm.map(|p| p.1));
+    }
+
+    fn finish(mut self) -> Vec<ArrayRef> {
+        let n = arrow::array::ArrayBuilder::len(&self.row);
+        let catalog = arrow::array::StringArray::from_iter_values(std::iter::repeat_n(
+            self.survey.as_str(),
+            n,
+        ));
+        let mut cols: Vec<ArrayRef> = vec![
+            Arc::new(catalog),
+            Arc::new(self.source_id.finish()),
+            Arc::new(self.row.finish()),
+        ];
+        for b in self.values.iter_mut() {
+            cols.push(Arc::new(b.finish()));
+        }
+        cols.push(Arc::new(self.pmra.finish()));
+        cols.push(Arc::new(self.pmdec.finish()));
+        cols
+    }
+}
+
+// ---------------------------------------------------------------------------
+// Band measurements.
+
+/// What a band measurement turned out to be, in output units.
+enum Outcome {
+    Detected(FluxJy),
+    /// Limit, and the noise (1 sigma) when known.
+    UpperLimit(f64, Option<f64>),
+    NotDetected(Option<f64>),
+    Missing,
+    Rejected(String),
+}
+
+enum QualityInput {
+    Reject(TextColumn),
+    Range(NumberColumn),
+}
+
+struct BandInput<'a> {
+    spec: &'a BandColumns,
+    conversion: Option<Conversion>,
+    value: NumberColumn,
+    error: Option<NumberColumn>,
+    flag: Option<TextColumn>,
+    limit_column: Option<NumberColumn>,
+    quality: Vec<QualityInput>,
+}
+
+impl<'a> BandInput<'a> {
+    fn new(spec: &'a BandColumns, batch: &RecordBatch, path: &Path) -> Result<BandInput<'a>> {
+        let conversion = spec.has_flux().then(|| Conversion {
+            unit: spec.unit,
+            // Vega and asinh magnitudes use the band zero point; AB magnitudes use
+            // 3631 Jy by definition and flux units none. A band without a zero
+            // point is read only as Vega magnitudes and has no conversion.
+            zero_point_jy: spec
+                .band
+                .zero_point_jy
+                .unwrap_or(crate::photometry::magnitude::AB_ZERO_POINT_JY),
+            offset_mag: spec.offset_mag,
+            softening: spec.softening,
+        });
+        let flag = match &spec.limit {
+            Some(LimitMarker::Flag { column, .. }) => Some(text(batch, column, path)?),
+            _ => None,
+        };
+        let limit_column = match &spec.limit {
+            Some(LimitMarker::Column { column }) => Some(numbers(batch, column, path)?),
+            _ => None,
+        };
+        let quality = spec
+            .quality
+            .iter()
+            .map(|q| match q {
+                QualityRule::Reject { column, .. } => {
+                    Ok(QualityInput::Reject(text(batch, column, path)?))
+                }
+                QualityRule::Range { column, .. } => {
+                    Ok(QualityInput::Range(numbers(batch, column, path)?))
+                }
+            })
+            .collect::<Result<_>>()?;
+        Ok(BandInput {
+            spec,
+            conversion,
+            value: numbers(batch, &spec.value, path)?,
+            error: spec
+                .error
+                .as_ref()
+                .map(|c| numbers(batch, c, path))
+                .transpose()?,
+            flag,
+            limit_column,
+            quality,
+        })
+    }
+
+    /// Converts a value in the band's unit into the output unit (Jy, or magnitude).
+    fn to_output(&self, value: f64) -> f64 {
+        match &self.conversion {
+            Some(c) => c.value_to_flux_jy(value),
+            None => value + self.spec.offset_mag,
+        }
+    }
+
+    fn evaluate(&self, i: usize) -> Result<Outcome, RowProblem> {
+        let spec = self.spec;
+        let unreadable = |column: &str, e: NotANumber| {
+            RowProblem::new(
+                column,
+                &format!("a number in unit {}", spec.unit.as_str()),
+                e.found,
+            )
+        };
+        let value = self
+            .value
+            .get(i, &spec.null_text, &spec.nulls)
+            .map_err(|e| unreadable(&spec.value, e))?;
+        let Some(value) = value else {
+            if let (Some(LimitMarker::Column { column }), Some(col)) =
+                (&spec.limit, &self.limit_column)
+                && let Some(limit) = col
+                    .get(i, &spec.null_text, &spec.nulls)
+                    .map_err(|e| unreadable(column, e))?
+            {
+                return Ok(Outcome::UpperLimit(self.to_output(limit), None));
+            }
+            return Ok(Outcome::Missing);
+        };
+        if let Some(LimitMarker::Sentinel { values }) = &spec.limit
+            && values.contains(&value)
+        {
+            return Ok(Outcome::NotDetected(spec.depth.map(|d| self.to_output(d))));
+        }
+        for (rule, input) in spec.quality.iter().zip(&self.quality) {
+            let rejects = match (rule, input) {
+                (
+                    QualityRule::Reject {
+                        values,
+                        char_position,
+                        ..
+                    },
+                    QualityInput::Reject(col),
+                ) => col.matches(i, values, *char_position),
+                (QualityRule::Range { column, min, max }, QualityInput::Range(col)) => {
+                    match col.get(i, &[], &[]).map_err(|e| unreadable(column, e))? {
+                        Some(v) => min.is_some_and(|m| v < m) || max.is_some_and(|m| v > m),
+                        None => false,
+                    }
+                }
+                _ => unreachable!("quality inputs are built in rule order"),
+            };
+            if rejects {
+                return Ok(Outcome::Rejected(rule.describe()));
+            }
+        }
+        let error = match (&self.error, &spec.error) {
+            (Some(col), Some(name)) => col
+                .get(i, &spec.null_text, &spec.nulls)
+                .map_err(|e| unreadable(name, e))?
+                .filter(|e| *e > 0.0),
+            _ => None,
+        };
+        if let (
+            Some(LimitMarker::Flag {
+                values,
+                char_position,
+                ..
+            }),
+            Some(flag),
+        ) = (&spec.limit, &self.flag)
+            && flag.matches(i, values, *char_position)
+        {
+            return Ok(Outcome::UpperLimit(self.to_output(value), None));
+        }
+        if matches!(spec.limit, Some(LimitMarker::MissingError)) && error.is_none() {
+            return Ok(Outcome::UpperLimit(self.to_output(value), None));
+        }
+        let Some(conversion) = &self.conversion else {
+            // Magnitude-only band: kept as magnitudes.
+            return Ok(Outcome::Detected(FluxJy {
+                flux_jy: value + spec.offset_mag,
+                err_jy: error,
+                lo_jy: None,
+                hi_jy: None,
+            }));
+        };
+        let flux = conversion.to_flux_jy(value, error);
+        if let (Some(LimitMarker::SignalToNoise { below, rule }), Some(sigma)) =
+            (&spec.limit, flux.err_jy)
+            && flux.flux_jy / sigma < *below
+        {
+            return Ok(Outcome::UpperLimit(
+                rule.limit_jy(flux.flux_jy, sigma),
+                Some(sigma),
+            ));
+        }
+        if flux.flux_jy <= 0.0 {
+            return Ok(match flux.err_jy {
+                Some(sigma) => Outcome::UpperLimit(
+                    DEFAULT_NONPOSITIVE_RULE.limit_jy(flux.flux_jy, sigma),
+                    Some(sigma),
+                ),
+                None => Outcome::Rejected("flux density <= 0 without an error".into()),
+            });
+        }
+        Ok(Outcome::Detected(flux))
+    }
+}
+
+struct BandBuilders {
+    has_flux: bool,
+    values: Vec<Float64Builder>,
+    status: StringBuilder,
+}
+
+impl BandBuilders {
+    fn new(n: usize, spec: &BandColumns) -> BandBuilders {
+        let count = if spec.has_flux() { 5 } else { 3 };
+        BandBuilders {
+            has_flux: spec.has_flux(),
+            values: (0..count)
+                .map(|_| Float64Builder::with_capacity(n))
+                .collect(),
+            status: StringBuilder::with_capacity(n, n * 9),
+        }
+    }
+
+    /// Appends one measurement; returns its status.
+    fn append(&mut self, outcome: Outcome, counts: &mut BandCounts) -> BandStatus {
+        // Flux bands: flux, err, lo, hi, ulim. Magnitude bands: mag, err, ulim.
+        let ulim = self.values.len() - 1;
+        let mut row = [None; 5];
+        let status = match outcome {
+            Outcome::Detected(f) => {
+                row[0] = Some(f.flux_jy);
+                row[1] = f.err_jy;
+                if self.has_flux {
+                    row[2] = f.lo_jy;
+                    row[3] = f.hi_jy;
+                }
+                BandStatus::Detected
+            }
+            Outcome::UpperLimit(limit, noise) => {
+                row[1] = noise;
+                row[ulim] = Some(limit);
+                BandStatus::UpperLimit
+            }
+            Outcome::NotDetected(limit) => {
+                row[ulim] = limit;
+                BandStatus::NotDetected
+            }
+            Outcome::Missing => BandStatus::Missing,
+            Outcome::Rejected(reason) => {
+                *counts.rejected_by.entry(reason).or_insert(0) += 1;
+                BandStatus::Rejected
+            }
+        };
+        for (b, v) in self.values.iter_mut().zip(row) {
+            b.append_option(v);
+        }
+        self.status.append_value(status.as_str());
+        status
+    }
+
+    fn finish(mut self) -> Vec<ArrayRef> {
+        let mut cols: Vec<ArrayRef> = self
+            .values
+            .iter_mut()
+            .map(|b| Arc::new(b.finish()) as ArrayRef)
+            .collect();
+        cols.push(Arc::new(self.status.finish()));
+        cols
+    }
+}

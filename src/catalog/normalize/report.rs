@@ -1,0 +1,113 @@
+//! What normalizing a catalog found: rows read, kept and skipped by reason,
+//! band measurements by status, rejections by reason, and the first problems.
+
+use std::collections::BTreeMap;
+
+use serde::Serialize;
+
+/// The status of one band measurement of one source.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+#[serde(rename_all = "snake_case")]
+pub enum BandStatus {
+    /// A measurement with flux density (and error when given).
+    Detected,
+    /// Not detected; an upper limit on the flux density is given.
+    UpperLimit,
+    /// The survey says it did not detect the source, and gives no limit value.
+    NotDetected,
+    /// No value at all (empty, null or a null sentinel).
+    Missing,
+    /// A value was present but a quality rule or a parse failure rejected it.
+    Rejected,
+}
+
+impl BandStatus {
+    /// All statuses, in report order.
+    pub const ALL: [BandStatus; 5] = [
+        BandStatus::Detected,
+        BandStatus::UpperLimit,
+        BandStatus::NotDetected,
+        BandStatus::Missing,
+        BandStatus::Rejected,
+    ];
+
+    /// The text written in `<band>_status` columns.
+    pub fn as_str(self) -> &'static str {
+        match self {
+            BandStatus::Detected => "detected",
+            BandStatus::UpperLimit => "upper_limit",
+            BandStatus::NotDetected => "not_detected",
+            BandStatus::Missing => "missing",
+            BandStatus::Rejected => "rejected",
+        }
+    }
+}
+
+/// Counts for one band.
+#[derive(Debug, Clone, Default, Serialize)]
+pub struct BandCounts {
+    /// Band id.
+    pub band: String,
+    /// Measurements per status (keys are [`BandStatus::as_str`]).
+    pub by_status: BTreeMap<String, u64>,
+    /// Rejections per reason.
+    pub rejected_by: BTreeMap<String, u64>,
+}
+
+impl BandCounts {
+    /// The count for one status.
+    pub fn count(&self, status: BandStatus) -> u64 {
+        self.by_status.get(status.as_str()).copied().unwrap_or(0)
+    }
+}
+
+/// One problem found in the file, for showing to the user.
+#[derive(Debug, Clone, Serialize, PartialEq)]
+pub struct Problem {
+    /// Data row, from 1.
+    pub row: u64,
+    /// Column name.
+    pub column: String,
+    /// What was expected.
+    pub expected: String,
+    /// The original text found.
+    pub found: String,
+    /// What was done about it: "row skipped" or "band rejected".
+    pub action: String,
+}
+
+/// The summary of one normalized catalog.
+#[derive(Debug, Clone, Default, Serialize)]
+pub struct NormalizeReport {
+    /// Catalog (survey) name.
+    pub survey: String,
+    /// Data rows read from the file.
+    pub rows_read: u64,
+    /// Rows written to the normalized table.
+    pub rows_kept: u64,
+    /// Skipped rows per reason (only with skipping enabled).
+    pub rows_skipped: BTreeMap<String, u64>,
+    /// Per-band counts, in schema order.
+    pub bands: Vec<BandCounts>,
+    /// The first problems met, at most [`NormalizeReport::MAX_PROBLEMS`].
+    pub problems: Vec<Problem>,
+    /// Total number of problems met (may exceed the examples kept).
+    pub problem_count: u64,
+}
+
+impl NormalizeReport {
+    /// How many example problems are kept.
+    pub const MAX_PROBLEMS: usize = 20;
+
+    /// Total skipped rows.
+    pub fn rows_skipped_total(&self) -> u64 {
+        self.rows_skipped.values().sum()
+    }
+
+    pub(super) fn record_problem(&mut self, problem: Problem) {
+        self.problem_count += 1;
+        if self.problems.len() < Self::MAX_PROBLEMS {
+            self.problems.push(problem);
+        }
+    }
+}

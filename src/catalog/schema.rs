@@ -1,0 +1,1202 @@
+//! The survey schema: a small TOML file that says how to read one survey's catalog.
+//!
+//! [`SurveySchema::from_file`] parses and validates a schema against a
+//! [`BandLibrary`]; every problem names the schema line to fix. The shape, in
+//! brief (the full reference is in the README):
+//!
+//! ```toml
+//! survey = "nearir"            # catalog name used in outputs
+//! format = "csv"               # csv | tsv | parquet | fits | votable
+//! id = "src"                   # identifier column
+//!
+//! [position]
+//! ra = "ra"                    # column names
+//! dec = "dec"
+//! format = "degrees"           # degrees | sexagesimal (RA in hours, Dec in degrees)
+//! error = { kind = "fixed", arcsec = 0.1 }
+//!
+//! [epoch]
+//! year = 2001.3                # or column = "mjd", unit = "mjd"
+//!
+//! [[band]]
+//! band = "tmass_j"             # id in the band library
+//! value = "jmag"
+//! unit = "vega_mag"
+//! error = "e_jmag"
+//! nulls = [99.999]
+//! limit = { kind = "flag", column = "qual", values = ["U"], char = 1 }
+//! ```
+//!
+//! Checking the schema against an actual file (do the named columns exist, do
+//! they hold numbers) happens when the file is read, in [`super::normalize`].
+
+use std::path::{Path, PathBuf};
+
+use serde::Deserialize;
+use toml::Spanned;
+
+use crate::error::{Error, Result, line_of_offset};
+use crate::photometry::{Band, BandLibrary, LimitRule, ValueUnit};
+
+/// How the catalog file is encoded.
+#[derive(Debug, Clone, PartialEq)]
+pub enum FileFormat {
+    /// Delimited text (CSV or TSV), optionally gzip-compressed.
+    Csv(CsvOptions),
+    /// Apache Parquet.
+    Parquet,
+    /// A FITS binary table; `hdu` counts the primary HDU as 0 (None: first BINTABLE).
+    Fits {
+        /// The HDU holding the table.
+        hdu: Option<usize>,
+    },
+    /// An IVOA VOTable; `table` is the 0-based index of the TABLE element.
+    Votable {
+        /// Which TABLE of the document.
+        table: usize,
+    },
+}
+
+/// Options of the delimited-text reader.
+#[derive(Debug, Clone, PartialEq)]
+pub struct CsvOptions {
+    /// Field delimiter byte.
+    pub delimiter: u8,
+    /// Lines starting with this byte are skipped.
+    pub comment: Option<u8>,
+    /// Quote byte.
+    pub quote: u8,
+    /// Whether the first non-comment line holds column names.
+    pub header: bool,
+    /// Gzip-compressed; `None` decides by the `.gz` file extension.
+    pub gzip: Option<bool>,
+}
+
+impl Default for CsvOptions {
+    fn default() -> Self {
+        CsvOptions {
+            delimiter: b',',
+            comment: Some(b'#'),
+            quote: b'"',
+            header: true,
+            gzip: None,
+        }
+    }
+}
+
+/// How positions are written in the file.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum PositionFormat {
+    /// Decimal degrees in numeric (or numeric-text) columns.
+    Degrees,
+    /// Text: RA in hours (`hh:mm:ss.s` or `hh mm ss.s`), Dec in degrees (`±dd:mm:ss.s`).
+    Sexagesimal,
+}
+
+/// Unit of an angle column.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub enum AngleUnit {
+    /// Arcseconds.
+    Arcsec,
+    /// Milliarcseconds.
+    Mas,
+    /// Degrees.
+    Deg,
+}
+
+impl AngleUnit {
+    /// Factor turning a value in this unit into arcseconds.
+    pub fn to_arcsec(self) -> f64 {
+        match self {
+            AngleUnit::Arcsec => 1.0,
+            AngleUnit::Mas => 1e-3,
+            AngleUnit::Deg => 3600.0,
+        }
+    }
+}
+
+/// The positional uncertainty model of a survey (all values 1-sigma).
+#[derive(Debug, Clone, PartialEq)]
+pub enum PositionError {
+    /// The same circular 1-sigma error for every source.
+    Fixed {
+        /// Per-axis 1-sigma error, arcsec.
+        sigma_arcsec: f64,
+    },
+    /// A per-source circular 1-sigma error column.
+    Circular {
+        /// Column name.
+        column: String,
+        /// Column unit.
+        unit: AngleUnit,
+    },
+    /// A per-source error ellipse: semi-major and semi-minor axes and position angle
+    /// (degrees east of north).
+    Ellipse {
+        /// Semi-major axis column.
+        major: String,
+        /// Semi-minor axis column.
+        minor: String,
+        /// Position-angle column, degrees east of north.
+        angle: String,
+        /// Unit of the two axes.
+        unit: AngleUnit,
+    },
+    /// Separate 1-sigma errors along RA (as a true angle, i.e. times cos Dec) and Dec.
+    Axes {
+        /// RA error column.
+        ra: String,
+        /// Dec error column.
+        dec: String,
+        /// Unit of both.
+        unit: AngleUnit,
+    },
+}
+
+/// The epoch of the positions.
+#[derive(Debug, Clone, PartialEq)]
+pub enum Epoch {
+    /// One epoch for the whole catalog, in Julian years (e.g. 2015.5).
+    Fixed(f64),
+    /// A per-source epoch column.
+    Column {
+        /// Column name.
+        column: String,
+        /// What the column holds.
+        unit: EpochUnit,
+    },
+}
+
+/// The unit of an epoch column.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum EpochUnit {
+    /// Julian year, e.g. 2010.53.
+    Year,
+    /// Modified Julian Date.
+    Mjd,
+    /// Julian Date.
+    Jd,
+}
+
+/// Proper-motion columns, in mas/yr.
+#[derive(Debug, Clone, PartialEq)]
+pub struct ProperMotion {
+    /// RA component column.
+    pub ra: String,
+    /// Dec component column.
+    pub dec: String,
+    /// True when the RA component is mu_alpha* = mu_alpha cos(dec) (the usual convention).
+    pub ra_includes_cos_dec: bool,
+}
+
+/// How a band marks a measurement that is an upper limit or a non-detection.
+#[derive(Debug, Clone, PartialEq)]
+pub enum LimitMarker {
+    /// A flag column: when it holds one of `values` (or, with `char`, when the
+    /// character at that 1-based position does), the value column holds an upper limit.
+    Flag {
+        /// Flag column.
+        column: String,
+        /// Flag values meaning "upper limit".
+        values: Vec<String>,
+        /// 1-based character position inside a multi-band flag string.
+        char_position: Option<usize>,
+    },
+    /// Measurements with flux / error below `below` become upper limits by `rule`.
+    SignalToNoise {
+        /// S/N threshold.
+        below: f64,
+        /// How the limit is computed from the measurement.
+        rule: LimitRule,
+    },
+    /// The value equals one of these sentinels when the source was not detected
+    /// (no limit is given).
+    Sentinel {
+        /// Sentinel values.
+        values: Vec<f64>,
+    },
+    /// A separate column holds the limit, used when the value column is empty.
+    Column {
+        /// The limit column, in the same unit as the value column.
+        column: String,
+    },
+    /// A value given without an error is a limit (common in published tables).
+    MissingError,
+}
+
+/// A rule that rejects a band's measurement (status "rejected").
+#[derive(Debug, Clone, PartialEq)]
+pub enum QualityRule {
+    /// Reject when the column (or its character at `char_position`) is one of `values`.
+    Reject {
+        /// Flag column.
+        column: String,
+        /// Values that reject.
+        values: Vec<String>,
+        /// 1-based character position inside a multi-band flag string.
+        char_position: Option<usize>,
+    },
+    /// Reject when the numeric column is below `min` or above `max`.
+    Range {
+        /// Numeric column.
+        column: String,
+        /// Smallest accepted value.
+        min: Option<f64>,
+        /// Largest accepted value.
+        max: Option<f64>,
+    },
+}
+
+impl QualityRule {
+    /// A short readable name used when counting rejections.
+    pub fn describe(&self) -> String {
+        match self {
+            QualityRule::Reject { column, values, .. } => {
+                format!("{column} in [{}]", values.join(", "))
+            }
+            QualityRule::Range { column, min, max } => match (min, max) {
+                (Some(lo), Some(hi)) => format!("{column} outside [{lo}, {hi}]"),
+                (Some(lo), None) => format!("{column} below {lo}"),
+                (None, Some(hi)) => format!("{column} above {hi}"),
+                (None, None) => column.clone(),
+            },
+        }
+    }
+
+    /// The column the rule reads.
+    pub fn column(&self) -> &str {
+        match self {
+            QualityRule::Reject { column, .. } | QualityRule::Range { column, .. } => column,
+        }
+    }
+}
+
+/// One band of a survey: where its measurements are and how to read them.
+#[derive(Debug, Clone, PartialEq)]
+pub struct BandColumns {
+    /// The band from the library.
+    pub band: Band,
+    /// Value column.
+    pub value: String,
+    /// Unit of the value (and error) column.
+    pub unit: ValueUnit,
+    /// Error column (1 sigma, same unit as the value; magnitudes for magnitude units).
+    pub error: Option<String>,
+    /// Numeric values meaning "no measurement".
+    pub nulls: Vec<f64>,
+    /// Text values meaning "no measurement" (besides the empty string and NaN).
+    pub null_text: Vec<String>,
+    /// Magnitude offset added before conversion (e.g. a survey's published AB correction).
+    pub offset_mag: f64,
+    /// asinh softening b (dimensionless, in units of the zero-point flux).
+    pub softening: Option<f64>,
+    /// How upper limits are marked, if at all.
+    pub limit: Option<LimitMarker>,
+    /// Rules that reject a measurement.
+    pub quality: Vec<QualityRule>,
+    /// The survey's limiting depth in the value unit (used for "not detected" limits).
+    pub depth: Option<f64>,
+    /// Schema line of this band's entry, for messages.
+    pub line: usize,
+}
+
+impl BandColumns {
+    /// True when the band has a zero point, i.e. its values become flux densities;
+    /// otherwise only magnitudes (and colour indices) are kept.
+    pub fn has_flux(&self) -> bool {
+        !matches!(self.unit, ValueUnit::VegaMag) || self.band.zero_point_jy.is_some()
+    }
+}
+
+/// A validated survey schema.
+#[derive(Debug, Clone, PartialEq)]
+pub struct SurveySchema {
+    /// Catalog name used in outputs (`[a-z][a-z0-9_]*`).
+    pub survey: String,
+    /// Free-text description.
+    pub description: Option<String>,
+    /// File encoding.
+    pub format: FileFormat,
+    /// Identifier column; `None` numbers the rows.
+    pub id: Option<String>,
+    /// RA column.
+    pub ra: String,
+    /// Dec column.
+    pub dec: String,
+    /// How positions are written.
+    pub position_format: PositionFormat,
+    /// Positional uncertainty model.
+    pub position_error: PositionError,
+    /// Epoch of the positions.
+    pub epoch: Epoch,
+    /// Proper motions, if the catalog has them.
+    pub proper_motion: Option<ProperMotion>,
+    /// The bands.
+    pub bands: Vec<BandColumns>,
+    /// The schema file.
+    pub path: PathBuf,
+    /// The schema text, kept for messages and output metadata.
+    pub text: String,
+}
+
+impl SurveySchema {
+    /// Reads and validates the schema at `path` against `library`.
+    ///
+    /// # Errors
+    /// An [`Error::Toml`] when the file does not parse or has unknown keys, and an
+    /// [`Error::Config`] naming the schema line when a value is impossible (an
+    /// unknown band, unit or format, a band without a zero point where one is needed).
+    pub fn from_file(path: &Path, library: &BandLibrary) -> Result<SurveySchema> {
+        let text = std::fs::read_to_string(path).map_err(|e| Error::io(path, e))?;
+        SurveySchema::from_str(&text, path, library)
+    }
+
+    /// Parses and validates schema `text`; `path` is used in messages only.
+    ///
+    /// # Errors
+    /// As [`SurveySchema::from_file`].
+    pub fn from_str(text: &str, path: &Path, library: &BandLibrary) -> Result<SurveySchema> {
+        let raw: RawSchema = toml::from_str(text).map_err(|e| Error::Toml {
+            path: path.to_path_buf(),
+            message: e.to_string().trim_end().replace('\n', " "),
+        })?;
+        Validator {
+            text,
+            path,
+            library,
+        }
+        .schema(raw)
+    }
+
+    /// Every column of the file the schema reads, with the schema line that names it.
+    pub fn referenced_columns(&self) -> Vec<(String, usize)> {
+        let mut cols: Vec<(String, usize)> = Vec::new();
+        let mut add = |name: &str, line: usize| {
+            if !cols.iter().any(|(c, _)| c == name) {
+                cols.push((name.to_string(), line));
+            }
+        };
+        let top = 0;
+        if let Some(id) = &self.id {
+            add(id, top);
+        }
+        add(&self.ra, top);
+        add(&self.dec, top);
+        match &self.position_error {
+            PositionError::Fixed { .. } => {}
+            PositionError::Circular { column, .. } => add(column, top),
+            PositionError::Ellipse {
+                major,
+                minor,
+                angle,
+                ..
+            } => {
+                add(major, top);
+                add(minor, top);
+                add(angle, top);
+            }
+            PositionError::Axes { ra, dec, .. } => {
+                add(ra, top);
+                add(dec, top);
+            }
+        }
+        if let Epoch::Column { column, .. } = &self.epoch {
+            add(column, top);
+        }
+        if let Some(pm) = &self.proper_motion {
+            add(&pm.ra, top);
+            add(&pm.dec, top);
+        }
+        for band in &self.bands {
+            add(&band.value, band.line);
+            if let Some(err) = &band.error {
+                add(err, band.line);
+            }
+            match &band.limit {
+                Some(LimitMarker::Flag { column, .. }) | Some(LimitMarker::Column { column }) => {
+                    add(column, band.line)
+                }
+                _ => {}
+            }
+            for rule in &band.quality {
+                add(rule.column(), band.line);
+            }
+        }
+        cols
+    }
+
+    /// The schema line where `key` is first set at the top of a line, or 0.
+    pub fn line_of_key(&self, key: &str) -> usize {
+        line_of_key(&self.text, key)
+    }
+}
+
+fn line_of_key(text: &str, key: &str) -> usize {
+    text.lines()
+        .position(|l| {
+            let t = l.trim_start();
+            t.starts_with(key) && t[key.len()..].trim_start().starts_with('=')
+        })
+        .map(|i| i + 1)
+        .unwrap_or(0)
+}
+
+// ---------------------------------------------------------------------------
+// The TOML shape, as written by users.
+
+#[derive(Deserialize)]
+#[serde(deny_unknown_fields)]
+struct RawSchema {
+    survey: Spanned<String>,
+    description: Option<String>,
+    format: Spanned<String>,
+    id: Option<String>,
+    csv: Option<RawCsv>,
+    fits: Option<RawFits>,
+    votable: Option<RawVotable>,
+    position: Spanned<RawPosition>,
+    epoch: Spanned<RawEpoch>,
+    proper_motion: Option<Spanned<RawProperMotion>>,
+    #[serde(default)]
+    band: Vec<Spanned<RawBand>>,
+}
+
+#[derive(Deserialize)]
+#[serde(deny_unknown_fields)]
+struct RawCsv {
+    delimiter: Option<Spanned<String>>,
+    comment: Option<Spanned<String>>,
+    quote: Option<Spanned<String>>,
+    header: Option<bool>,
+    gzip: Option<bool>,
+}
+
+#[derive(Deserialize)]
+#[serde(deny_unknown_fields)]
+struct RawFits {
+    hdu: Option<usize>,
+}
+
+#[derive(Deserialize)]
+#[serde(deny_unknown_fields)]
+struct RawVotable {
+    table: Option<usize>,
+}
+
+#[derive(Deserialize)]
+#[serde(deny_unknown_fields)]
+struct RawPosition {
+    ra: String,
+    dec: String,
+    format: Option<Spanned<String>>,
+    error: Spanned<RawPositionError>,
+}
+
+#[derive(Deserialize)]
+#[serde(deny_unknown_fields)]
+struct RawPositionError {
+    kind: String,
+    arcsec: Option<f64>,
+    column: Option<String>,
+    major: Option<String>,
+    minor: Option<String>,
+    angle: Option<String>,
+    ra: Option<String>,
+    dec: Option<String>,
+    unit: Option<String>,
+}
+
+#[derive(Deserialize)]
+#[serde(deny_unknown_fields)]
+struct RawEpoch {
+    year: Option<f64>,
+    column: Option<String>,
+    unit: Option<String>,
+}
+
+#[derive(Deserialize)]
+#[serde(deny_unknown_fields)]
+struct RawProperMotion {
+    ra: String,
+    dec: String,
+    ra_includes_cos_dec: Option<bool>,
+    unit: Option<String>,
+}
+
+#[derive(Deserialize)]
+#[serde(deny_unknown_fields)]
+struct RawBand {
+    band: Spanned<String>,
+    value: String,
+    unit: Spanned<String>,
+    error: Option<String>,
+    #[serde(default)]
+    nulls: Vec<f64>,
+    #[serde(default)]
+    null_text: Vec<String>,
+    offset_mag: Option<f64>,
+    softening: Option<Spanned<f64>>,
+    limit: Option<Spanned<RawLimit>>,
+    #[serde(default)]
+    quality: Vec<Spanned<RawQuality>>,
+    depth: Option<f64>,
+}
+
+#[derive(Deserialize)]
+#[serde(deny_unknown_fields)]
+struct RawLimit {
+    kind: String,
+    column: Option<String>,
+    values: Option<toml::Value>,
+    char: Option<usize>,
+    below: Option<f64>,
+    rule: Option<String>,
+    n: Option<f64>,
+}
+
+#[derive(Deserialize)]
+#[serde(deny_unknown_fields)]
+struct RawQuality {
+    column: String,
+    reject: Option<Vec<toml::Value>>,
+    char: Option<usize>,
+    min: Option<f64>,
+    max: Option<f64>,
+}
+
+// ---------------------------------------------------------------------------
+// Validation: raw TOML values into a SurveySchema, with schema lines in errors.
+
+struct Validator<'a> {
+    text: &'a str,
+    path: &'a Path,
+    library: &'a BandLibrary,
+}
+
+impl Validator<'_> {
+    fn line(&self, span: std::ops::Range<usize>) -> usize {
+        line_of_offset(self.text, span.start)
+    }
+
+    fn err(&self, span: std::ops::Range<usize>, message: impl Into<String>) -> Error {
+        Error::config(self.path, self.line(span), message)
+    }
+
+    fn schema(&self, raw: RawSchema) -> Result<SurveySchema> {
+        let survey = raw.survey.get_ref().clone();
+        if !is_identifier(&survey) {
+            return Err(self.err(
+                raw.survey.span(),
+                format!(
+                    "survey name \"{survey}\" must be lowercase letters, digits and '_', starting with a letter"
+                ),
+            ));
+        }
+        let format = self.format(&raw)?;
+        let position = raw.position.get_ref();
+        let position_format = match position.format.as_ref().map(|f| f.get_ref().as_str()) {
+            None | Some("degrees") => PositionFormat::Degrees,
+            Some("sexagesimal") => PositionFormat::Sexagesimal,
+            Some(other) => {
+                return Err(self.err(
+                    position.format.as_ref().map(|f| f.span()).unwrap_or(raw.position.span()),
+                    format!("position format \"{other}\" is unknown; expected \"degrees\" or \"sexagesimal\""),
+                ));
+            }
+        };
+        let position_error = self.position_error(&position.error)?;
+        let epoch = self.epoch(&raw.epoch)?;
+        let proper_motion = match &raw.proper_motion {
+            None => None,
+            Some(pm) => {
+                let inner = pm.get_ref();
+                if let Some(unit) = &inner.unit
+                    && unit != "mas/yr"
+                {
+                    return Err(self.err(
+                        pm.span(),
+                        format!("proper-motion unit \"{unit}\" is unknown; expected \"mas/yr\""),
+                    ));
+                }
+                let Some(cos) = inner.ra_includes_cos_dec else {
+                    return Err(self.err(
+                        pm.span(),
+                        "proper_motion needs ra_includes_cos_dec = true or false: catalogs differ, and guessing moves stars by up to 1/cos(dec)",
+                    ));
+                };
+                Some(ProperMotion {
+                    ra: inner.ra.clone(),
+                    dec: inner.dec.clone(),
+                    ra_includes_cos_dec: cos,
+                })
+            }
+        };
+        let mut bands: Vec<BandColumns> = Vec::with_capacity(raw.band.len());
+        for raw_band in &raw.band {
+            let band = self.band(raw_band)?;
+            if bands.iter().any(|b| b.band.id == band.band.id) {
+                return Err(self.err(
+                    raw_band.get_ref().band.span(),
+                    format!("band \"{}\" is listed twice", band.band.id),
+                ));
+            }
+            bands.push(band);
+        }
+        if bands.is_empty() {
+            return Err(Error::config(
+                self.path,
+                0,
+                "the schema lists no [[band]]; a survey schema needs at least one band",
+            ));
+        }
+        Ok(SurveySchema {
+            survey,
+            description: raw.description,
+            format,
+            id: raw.id,
+            ra: position.ra.clone(),
+            dec: position.dec.clone(),
+            position_format,
+            position_error,
+            epoch,
+            proper_motion,
+            bands,
+            path: self.path.to_path_buf(),
+            text: self.text.to_string(),
+        })
+    }
+
+    fn format(&self, raw: &RawSchema) -> Result<FileFormat> {
+        let single_byte = |s: &Spanned<String>, what: &str| -> Result<u8> {
+            let v = s.get_ref();
+            let v = if v == "\\t" { "\t" } else { v.as_str() };
+            if v.len() == 1 {
+                Ok(v.as_bytes()[0])
+            } else {
+                Err(self.err(
+                    s.span(),
+                    format!("{what} must be a single character, found \"{v}\""),
+                ))
+            }
+        };
+        match raw.format.get_ref().as_str() {
+            fmt @ ("csv" | "tsv") => {
+                let mut options = CsvOptions::default();
+                if fmt == "tsv" {
+                    options.delimiter = b'\t';
+                }
+                if let Some(csv) = &raw.csv {
+                    if let Some(d) = &csv.delimiter {
+                        options.delimiter = single_byte(d, "csv.delimiter")?;
+                    }
+                    if let Some(c) = &csv.comment {
+                        options.comment = if c.get_ref().is_empty() {
+                            None
+                        } else {
+                            Some(single_byte(c, "csv.comment")?)
+                        };
+                    }
+                    if let Some(q) = &csv.quote {
+                        options.quote = single_byte(q, "csv.quote")?;
+                    }
+                    if let Some(h) = csv.header {
+                        options.header = h;
+                    }
+                    options.gzip = csv.gzip;
+                }
+                if !options.header {
+                    return Err(self.err(
+                        raw.format.span(),
+                        "csv.header = false is not supported: the schema names columns, so the file needs a header line",
+                    ));
+                }
+                Ok(FileFormat::Csv(options))
+            }
+            "parquet" => Ok(FileFormat::Parquet),
+            "fits" => Ok(FileFormat::Fits {
+                hdu: raw.fits.as_ref().and_then(|f| f.hdu),
+            }),
+            "votable" => Ok(FileFormat::Votable {
+                table: raw.votable.as_ref().and_then(|v| v.table).unwrap_or(0),
+            }),
+            other => Err(self.err(
+                raw.format.span(),
+                format!(
+                    "format \"{other}\" is unknown; expected one of csv, tsv, parquet, fits, votable"
+                ),
+            )),
+        }
+    }
+
+    fn angle_unit(&self, unit: Option<&str>, span: std::ops::Range<usize>) -> Result<AngleUnit> {
+        match unit {
+            None | Some("arcsec") => Ok(AngleUnit::Arcsec),
+            Some("mas") => Ok(AngleUnit::Mas),
+            Some("deg") => Ok(AngleUnit::Deg),
+            Some(other) => Err(self.err(
+                span,
+                format!("angle unit \"{other}\" is unknown; expected arcsec, mas or deg"),
+            )),
+        }
+    }
+
+    fn position_error(&self, raw: &Spanned<RawPositionError>) -> Result<PositionError> {
+        let span = raw.span();
+        let e = raw.get_ref();
+        let need = |v: &Option<String>, key: &str| -> Result<String> {
+            v.clone().ok_or_else(|| {
+                self.err(
+                    span.clone(),
+                    format!("position error of kind \"{}\" needs \"{key}\"", e.kind),
+                )
+            })
+        };
+        let unit = self.angle_unit(e.unit.as_deref(), span.clone())?;
+        match e.kind.as_str() {
+            "fixed" => match e.arcsec {
+                Some(s) if s > 0.0 && s.is_finite() => Ok(PositionError::Fixed { sigma_arcsec: s }),
+                Some(s) => Err(self.err(
+                    span,
+                    format!("a fixed position error must be a positive number of arcsec, found {s}"),
+                )),
+                None => Err(self.err(span, "position error of kind \"fixed\" needs \"arcsec\"")),
+            },
+            "circular" => Ok(PositionError::Circular {
+                column: need(&e.column, "column")?,
+                unit,
+            }),
+            "ellipse" => Ok(PositionError::Ellipse {
+                major: need(&e.major, "major")?,
+                minor: need(&e.minor, "minor")?,
+                angle: need(&e.angle, "angle")?,
+                unit,
+            }),
+            "axes" => Ok(PositionError::Axes {
+                ra: need(&e.ra, "ra")?,
+                dec: need(&e.dec, "dec")?,
+                unit,
+            }),
+            other => Err(self.err(
+                span,
+                format!(
+                    "position error kind \"{other}\" is unknown; expected fixed, circular, ellipse or axes"
+                ),
+            )),
+        }
+    }
+
+    fn epoch(&self, raw: &Spanned<RawEpoch>) -> Result<Epoch> {
+        let e = raw.get_ref();
+        match (&e.year, &e.column) {
+            (Some(year), None) => {
+                if !(1800.0..=2200.0).contains(year) {
+                    return Err(self.err(
+                        raw.span(),
+                        format!("epoch year {year} is implausible; expected a Julian year such as 2015.5"),
+                    ));
+                }
+                Ok(Epoch::Fixed(*year))
+            }
+            (None, Some(column)) => {
+                let unit = match e.unit.as_deref() {
+                    None | Some("year") => EpochUnit::Year,
+                    Some("mjd") => EpochUnit::Mjd,
+                    Some("jd") => EpochUnit::Jd,
+                    Some(other) => {
+                        return Err(self.err(
+                            raw.span(),
+                            format!("epoch unit \"{other}\" is unknown; expected year, mjd or jd"),
+                        ));
+                    }
+                };
+                Ok(Epoch::Column {
+                    column: column.clone(),
+                    unit,
+                })
+            }
+            _ => Err(self.err(
+                raw.span(),
+                "[epoch] needs exactly one of \"year\" (one epoch for all) or \"column\" (per source)",
+            )),
+        }
+    }
+
+    fn band(&self, raw: &Spanned<RawBand>) -> Result<BandColumns> {
+        let b = raw.get_ref();
+        let id = b.band.get_ref();
+        let Some(band) = self.library.get(id) else {
+            return Err(self.err(
+                b.band.span(),
+                format!(
+                    "band \"{id}\" is not in the band library; add it to a band file given with --bands, or use one of: {}",
+                    nearby_ids(self.library, id)
+                ),
+            ));
+        };
+        let Some(unit) = ValueUnit::parse(b.unit.get_ref()) else {
+            return Err(self.err(
+                b.unit.span(),
+                format!(
+                    "unit \"{}\" is unknown; expected one of {}",
+                    b.unit.get_ref(),
+                    ValueUnit::spellings().join(", ")
+                ),
+            ));
+        };
+        if matches!(unit, ValueUnit::VegaMag) && band.zero_point_jy.is_none() {
+            // Magnitude-only band: allowed, kept as magnitudes for colour indices.
+        }
+        if !matches!(unit, ValueUnit::VegaMag) && band.zero_point_jy.is_none() {
+            return Err(self.err(
+                b.unit.span(),
+                format!(
+                    "band \"{id}\" has no zero point in the band library, so only Vega magnitudes can be read for it (found unit \"{}\")",
+                    b.unit.get_ref()
+                ),
+            ));
+        }
+        if matches!(unit, ValueUnit::VegaMag) && band.system == crate::photometry::PhotSystem::Ab {
+            return Err(self.err(
+                b.unit.span(),
+                format!("band \"{id}\" is an AB band; its magnitudes have unit \"ab_mag\", not \"vega_mag\""),
+            ));
+        }
+        let softening = match (&unit, &b.softening) {
+            (ValueUnit::AsinhMag, Some(s)) if *s.get_ref() > 0.0 => Some(*s.get_ref()),
+            (ValueUnit::AsinhMag, Some(s)) => {
+                return Err(self.err(
+                    s.span(),
+                    format!("asinh softening must be positive, found {}", s.get_ref()),
+                ));
+            }
+            (ValueUnit::AsinhMag, None) => match band.asinh_softening {
+                Some(s) => Some(s),
+                None => {
+                    return Err(self.err(
+                        b.unit.span(),
+                        format!(
+                            "asinh magnitudes need a softening: band \"{id}\" has none in the library; set softening = <b> in this band"
+                        ),
+                    ));
+                }
+            },
+            (_, Some(s)) => {
+                return Err(self.err(s.span(), "softening applies only to unit \"asinh_mag\""));
+            }
+            (_, None) => None,
+        };
+        let limit = match &b.limit {
+            None => None,
+            Some(l) => Some(self.limit(l)?),
+        };
+        if matches!(limit, Some(LimitMarker::MissingError)) && b.error.is_none() {
+            return Err(self.err(
+                raw.span(),
+                "limit kind \"missing_error\" needs an error column: a value without an error is the limit",
+            ));
+        }
+        if matches!(limit, Some(LimitMarker::SignalToNoise { .. })) && b.error.is_none() {
+            return Err(self.err(
+                raw.span(),
+                "limit kind \"snr\" needs an error column to compute the signal-to-noise ratio",
+            ));
+        }
+        let mut quality = Vec::with_capacity(b.quality.len());
+        for q in &b.quality {
+            quality.push(self.quality(q)?);
+        }
+        Ok(BandColumns {
+            band: band.clone(),
+            value: b.value.clone(),
+            unit,
+            error: b.error.clone(),
+            nulls: b.nulls.clone(),
+            null_text: b.null_text.clone(),
+            offset_mag: b.offset_mag.unwrap_or(0.0),
+            softening,
+            limit,
+            quality,
+            depth: b.depth,
+            line: self.line(raw.span()),
+        })
+    }
+
+    fn limit(&self, raw: &Spanned<RawLimit>) -> Result<LimitMarker> {
+        let l = raw.get_ref();
+        let span = raw.span();
+        let need_column = || {
+            l.column.clone().ok_or_else(|| {
+                self.err(
+                    span.clone(),
+                    format!("limit kind \"{}\" needs \"column\"", l.kind),
+                )
+            })
+        };
+        match l.kind.as_str() {
+            "flag" => {
+                let values = self.text_values(l.values.as_ref(), span.clone(), "values")?;
+                if l.char == Some(0) {
+                    return Err(self.err(span, "char counts from 1"));
+                }
+                Ok(LimitMarker::Flag {
+                    column: need_column()?,
+                    values,
+                    char_position: l.char,
+                })
+            }
+            "snr" => {
+                let below = l.below.unwrap_or(3.0);
+                let n = l.n.unwrap_or(3.0);
+                if below <= 0.0 || n <= 0.0 {
+                    return Err(self.err(span, "snr limits need positive \"below\" and \"n\""));
+                }
+                let rule = match l.rule.as_deref() {
+                    None | Some("flux_plus_sigma") => LimitRule::FluxPlusSigma { n },
+                    Some("sigma") => LimitRule::SigmaMultiple { n },
+                    Some(other) => {
+                        return Err(self.err(
+                            span,
+                            format!(
+                                "limit rule \"{other}\" is unknown; expected \"sigma\" (n x sigma) or \"flux_plus_sigma\" (max(flux, 0) + n x sigma)"
+                            ),
+                        ));
+                    }
+                };
+                Ok(LimitMarker::SignalToNoise { below, rule })
+            }
+            "sentinel" => {
+                let values = match &l.values {
+                    Some(toml::Value::Array(items)) => items
+                        .iter()
+                        .map(|v| match v {
+                            toml::Value::Float(f) => Some(*f),
+                            toml::Value::Integer(i) => Some(*i as f64),
+                            _ => None,
+                        })
+                        .collect::<Option<Vec<f64>>>(),
+                    _ => None,
+                };
+                match values {
+                    Some(v) if !v.is_empty() => Ok(LimitMarker::Sentinel { values: v }),
+                    _ => Err(self.err(
+                        span,
+                        "limit kind \"sentinel\" needs values = [numbers], e.g. [99.0]",
+                    )),
+                }
+            }
+            "column" => Ok(LimitMarker::Column {
+                column: need_column()?,
+            }),
+            "missing_error" => Ok(LimitMarker::MissingError),
+            other => Err(self.err(
+                span,
+                format!(
+                    "limit kind \"{other}\" is unknown; expected flag, snr, sentinel, column or missing_error"
+                ),
+            )),
+        }
+    }
+
+    fn text_values(
+        &self,
+        values: Option<&toml::Value>,
+        span: std::ops::Range<usize>,
+        key: &str,
+    ) -> Result<Vec<String>> {
+        let items = match values {
+            Some(toml::Value::Array(items)) if !items.is_empty() => items,
+            _ => {
+                return Err(self.err(span, format!("\"{key}\" must be a non-empty list")));
+            }
+        };
+        items
+            .iter()
+            .map(|v| match v {
+                toml::Value::String(s) => Ok(s.clone()),
+                toml::Value::Integer(i) => Ok(i.to_string()),
+                toml::Value::Boolean(b) => Ok(b.to_string()),
+                other => Err(self.err(
+                    span.clone(),
+                    format!(
+                        "\"{key}\" holds a {}; expected strings or integers",
+                        other.type_str()
+                    ),
+                )),
+            })
+            .collect()
+    }
+
+    fn quality(&self, raw: &Spanned<RawQuality>) -> Result<QualityRule> {
+        let q = raw.get_ref();
+        match (&q.reject, q.min.or(q.max)) {
+            (Some(values), None) => {
+                let values = self.text_values(
+                    Some(&toml::Value::Array(values.clone())),
+                    raw.span(),
+                    "reject",
+                )?;
+                Ok(QualityRule::Reject {
+                    column: q.column.clone(),
+                    values,
+                    char_position: q.char,
+                })
+            }
+            (None, Some(_)) => Ok(QualityRule::Range {
+                column: q.column.clone(),
+                min: q.min,
+                max: q.max,
+            }),
+            _ => Err(self.err(
+                raw.span(),
+                "a quality rule needs either reject = [values] or min / max",
+            )),
+        }
+    }
+}
+
+/// True for `[a-z][a-z0-9_]*`.
+pub fn is_identifier(s: &str) -> bool {
+    let mut chars = s.chars();
+    matches!(chars.next(), Some(c) if c.is_ascii_lowercase())
+        && chars.all(|c| c.is_ascii_lowercase() || c.is_ascii_digit() || c == '_')
+}
+
+/// Up to eight library ids sharing the first three characters of `id` (or the first eight ids).
+fn nearby_ids(library: &BandLibrary, id: &str) -> String {
+    let prefix: String = id.chars().take(3).collect::<String>().to_lowercase();
+    let mut near: Vec<&str> = library
+        .iter()
+        .map(|b| b.id.as_str())
+        .filter(|b| b.starts_with(&prefix))
+        .take(8)
+        .collect();
+    if near.is_empty() {
+        near = library.iter().map(|b| b.id.as_str()).take(8).collect();
+        near.push("...");
+    }
+    near.join(", ")
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn parse(text: &str) -> Result<SurveySchema> {
+        SurveySchema::from_str(text, Path::new("s.toml"), &BandLibrary::builtin())
+    }
+
+    const GOOD: &str = r#"survey = "nearir"
+format = "csv"
+id = "src"
+
+[position]
+ra = "ra"
+dec = "dec"
+error = { kind = "fixed", arcsec = 0.1 }
+
+[epoch]
+year = 2001.3
+
+[[band]]
+band = "tmass_j"
+value = "jmag"
+unit = "vega_mag"
+error = "e_jmag"
+nulls = [99.999]
+limit = { kind = "flag", column = "qual", values = ["U"], char = 1 }
+
+[[band]]
+band = "tmass_ks"
+value = "kmag"
+unit = "vega_mag"
+error = "e_kmag"
+quality = [{ column = "cc", reject = ["D", "H"] }]
+"#;
+
+    #[test]
+    fn a_good_schema_parses() {
+        let s = parse(GOOD).unwrap();
+        assert_eq!(s.survey, "nearir");
+        assert_eq!(s.bands.len(), 2);
+        assert_eq!(s.bands[0].line, 13);
+        assert_eq!(
+            s.bands[0].limit,
+            Some(LimitMarker::Flag {
+                column: "qual".into(),
+                values: vec!["U".into()],
+                char_position: Some(1)
+            })
+        );
+        assert_eq!(s.epoch, Epoch::Fixed(2001.3));
+        let cols: Vec<String> = s.referenced_columns().into_iter().map(|c| c.0).collect();
+        assert_eq!(
+            cols,
+            [
+                "src", "ra", "dec", "jmag", "e_jmag", "qual", "kmag", "e_kmag", "cc"
+            ]
+        );
+    }
+
+    #[test]
+    fn an_unknown_band_names_its_line() {
+        let text = GOOD.replace("band = \"tmass_ks\"", "band = \"tmass_kz\"");
+        let err = parse(&text).unwrap_err().to_string();
+        assert!(
+            err.starts_with("s.toml:22: band \"tmass_kz\" is not in the band library"),
+            "{err}"
+        );
+        assert!(err.contains("tmass_ks"), "{err}");
+    }
+
+    #[test]
+    fn an_impossible_unit_names_its_line() {
+        let text = GOOD.replace(
+            "unit = \"vega_mag\"\nerror = \"e_kmag\"",
+            "unit = \"furlongs\"\nerror = \"e_kmag\"",
+        );
+        let err = parse(&text).unwrap_err().to_string();
+        assert!(
+            err.starts_with("s.toml:24: unit \"furlongs\" is unknown; expected one of"),
+            "{err}"
+        );
+    }
+
+    #[test]
+    fn an_ab_band_read_as_vega_is_refused() {
+        let text = GOOD.replace("band = \"tmass_ks\"", "band = \"sdss_r\"");
+        let err = parse(&text).unwrap_err().to_string();
+        assert!(err.contains("is an AB band"), "{err}");
+    }
+
+    #[test]
+    fn unknown_keys_are_refused() {
+        let text = GOOD.replace("id = \"src\"", "id = \"src\"\nidentifier = \"x\"");
+        let err = parse(&text).unwrap_err().to_string();
+        assert!(err.contains("unknown field `identifier`"), "{err}");
+    }
+
+    #[test]
+    fn proper_motion_must_say_its_convention() {
+        let text = format!("{GOOD}\n[proper_motion]\nra = \"pmra\"\ndec = \"pmde\"\n");
+        let err = parse(&text).unwrap_err().to_string();
+        assert!(err.contains("ra_includes_cos_dec"), "{err}");
+    }
+
+    #[test]
+    fn magnitude_only_bands_refuse_flux_units() {
+        let text = GOOD.replace(
+            "band = \"tmass_ks\"\nvalue = \"kmag\"\nunit = \"vega_mag\"",
+            "band = \"strom_y\"\nvalue = \"kmag\"\nunit = \"mJy\"",
+        );
+        let err = parse(&text).unwrap_err().to_string();
+        assert!(err.contains("has no zero point"), "{err}");
+    }
+
+    #[test]
+    fn identifiers() {
+        assert!(is_identifier("wise_w1"));
+        assert!(!is_identifier("2mass"));
+        assert!(!is_identifier("W1"));
+        assert!(!is_identifier(""));
+    }
+}

@@ -1,0 +1,54 @@
+//! The command line: one module per command. Each command's `run` takes its
+//! parsed arguments and returns a [`Result`]; `main` decides the exit status.
+
+pub mod bands;
+pub mod progress;
+pub mod vet;
+
+use clap::{Parser, Subcommand};
+
+use crate::error::Result;
+
+/// fluxloom: multi-survey photometry into calibrated SED tables.
+#[derive(Debug, Parser)]
+#[command(name = "fluxloom", version, about, long_about = None)]
+pub struct Cli {
+    /// No progress bars (they are also hidden when stderr is not a terminal).
+    #[arg(long, short, global = true)]
+    pub quiet: bool,
+
+    /// The command to run.
+    #[command(subcommand)]
+    pub command: Command,
+}
+
+/// The commands.
+#[derive(Debug, Subcommand)]
+pub enum Command {
+    /// Read one catalog through its survey schema: count detections, upper limits,
+    /// nulls and rejections per band, show the first problems, and optionally
+    /// write the normalized source table as Parquet.
+    Vet(vet::VetArgs),
+    /// List the band library: ids, systems, wavelengths, zero points and sources.
+    Bands(bands::BandsArgs),
+}
+
+/// Runs the parsed command line.
+///
+/// # Errors
+/// Whatever the command reports; `main` prints it once.
+pub fn run(cli: Cli) -> Result<()> {
+    match cli.command {
+        Command::Vet(args) => vet::run(&args, cli.quiet),
+        Command::Bands(args) => bands::run(&args),
+    }
+}
+
+/// Writes to stdout, turning a write failure (such as a closed pipe) into an error.
+pub(crate) fn write_stdout(text: &str) -> Result<()> {
+    use std::io::Write;
+    let mut out = std::io::stdout().lock();
+    out.write_all(text.as_bytes())
+        .and_then(|_| out.flush())
+        .map_err(|e| crate::Error::io("<stdout>", e))
+}

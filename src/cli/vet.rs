@@ -1,0 +1,184 @@
+//! `fluxloom vet`: read one catalog through its survey schema and say what is in it.
+//!
+//! Prints rows read, kept and skipped (by reason); per band the counts of
+//! detections, upper limits, non-detections, missing and rejected values (with
+//! rejection reasons); and the first problems with their rows. With `--out` it
+//! also writes the normalized source table as Parquet, atomically, with the band
+//! table and the survey schema in the file's metadata.
+
+use std::path::{Path, PathBuf};
+
+use clap::Args;
+
+use super::bands::load_library;
+use super::progress::row_counter;
+use crate::catalog::normalize::{BandStatus, NormalizeOptions, NormalizeReport, Normalizer};
+use crate::catalog::schema::SurveySchema;
+use crate::catalog::{DEFAULT_BATCH_ROWS, open};
+use crate::error::{Error, Result};
+use crate::output::parquet::ParquetOutput;
+
+/// Arguments of `fluxloom vet`.
+#[derive(Debug, Args)]
+pub struct VetArgs {
+    /// The catalog file (CSV/TSV, optionally .gz; Parquet; FITS; VOTable).
+    pub catalog: PathBuf,
+    /// The survey schema (TOML) describing the catalog.
+    #[arg(long, short, value_name = "SCHEMA")]
+    pub schema: PathBuf,
+    /// A band file of your own to add to the built-in band library.
+    #[arg(long, value_name = "FILE")]
+    pub bands: Option<PathBuf>,
+    /// Write the normalized source table to this Parquet file.
+    #[arg(long, short, value_name = "PARQUET")]
+    pub out: Option<PathBuf>,
+    /// Skip rows whose identifier, position, epoch or position error cannot be read,
+    /// and mark unreadable band values as rejected, counting both by reason
+    /// (default: stop at the first unreadable value).
+    #[arg(long)]
+    pub skip_bad_rows: bool,
+    /// Print the summary as JSON instead of a table.
+    #[arg(long)]
+    pub json: bool,
+    /// Rows per batch.
+    #[arg(long, default_value_t = DEFAULT_BATCH_ROWS, hide = true)]
+    pub batch_rows: usize,
+}
+
+/// Runs `fluxloom vet`.
+///
+/// # Errors
+/// Schema, read and write errors; an unreadable value unless `--skip-bad-rows`.
+pub fn run(args: &VetArgs, quiet: bool) -> Result<()> {
+    let library = load_library(args.bands.as_deref())?;
+    let schema = SurveySchema::from_file(&args.schema, &library)?;
+    let options = NormalizeOptions {
+        skip_bad_rows: args.skip_bad_rows,
+    };
+    let (report, written) = vet_catalog(
+        &args.catalog,
+        &schema,
+        options,
+        args.out.as_deref(),
+        args.batch_rows,
+        quiet,
+    )?;
+    let text = if args.json {
+        serde_json::to_string_pretty(&report).map_err(|e| Error::Usage(e.to_string()))? + "\n"
+    } else {
+        summary(&args.catalog, &schema, &report, written.as_ref())
+    };
+    super::write_stdout(&text)
+}
+
+/// Reads and normalizes `catalog`, writing the normalized table to `out` when given.
+/// Returns the report and, when written, the output path and row count.
+///
+/// # Errors
+/// Schema, read and write errors.
+pub fn vet_catalog(
+    catalog: &Path,
+    schema: &SurveySchema,
+    options: NormalizeOptions,
+    out: Option<&Path>,
+    batch_rows: usize,
+    quiet: bool,
+) -> Result<(NormalizeReport, Option<(PathBuf, u64)>)> {
+    let stream = open(catalog, &schema.format, batch_rows)?;
+    let mut normalizer = Normalizer::new(schema, catalog, options);
+    normalizer.check_file(&stream.schema)?;
+    let mut output = match out {
+        Some(path) => Some(ParquetOutput::create(
+            path,
+            normalizer.output_schema(),
+            normalized_metadata(schema)?,
+        )?),
+        None => None,
+    };
+    let bar = row_counter(&format!("reading {}", catalog.display()), quiet);
+    for batch in stream.batches {
+        let normalized = normalizer.normalize(&batch?)?;
+        bar.inc(normalized.num_rows() as u64);
+        if let Some(o) = output.as_mut() {
+            o.write(&normalized)?;
+        }
+    }
+    bar.finish_and_clear();
+    let written = match (output, out) {
+        (Some(o), Some(path)) => Some((path.to_path_buf(), o.finish()?)),
+        _ => None,
+    };
+    Ok((normalizer.finish(), written))
+}
+
+/// Key-value metadata of a normalized table: the survey schema text and the bands used.
+fn normalized_metadata(schema: &SurveySchema) -> Result<Vec<(String, String)>> {
+    let bands: Vec<_> = schema.bands.iter().map(|b| &b.band).collect();
+    Ok(vec![
+        ("fluxloom.survey".into(), schema.survey.clone()),
+        ("fluxloom.survey_schema".into(), schema.text.clone()),
+        (
+            "fluxloom.bands".into(),
+            serde_json::to_string(&bands).map_err(|e| Error::Usage(e.to_string()))?,
+        ),
+    ])
+}
+
+/// The human-readable summary.
+fn summary(
+    catalog: &Path,
+    schema: &SurveySchema,
+    r: &NormalizeReport,
+    written: Option<&(PathBuf, u64)>,
+) -> String {
+    let mut s = String::new();
+    s.push_str(&format!(
+        "catalog  {} (survey \"{}\", schema {})\n",
+        catalog.display(),
+        schema.survey,
+        schema.path.display()
+    ));
+    s.push_str(&format!(
+        "rows     {} read, {} kept, {} skipped\n",
+        r.rows_read,
+        r.rows_kept,
+        r.rows_skipped_total()
+    ));
+    for (reason, count) in &r.rows_skipped {
+        s.push_str(&format!("         skipped {count}: {reason}\n"));
+    }
+    s.push_str(&format!(
+        "\n{:<12} {:>10} {:>12} {:>13} {:>10} {:>10}\n",
+        "band", "detected", "upper_limit", "not_detected", "missing", "rejected"
+    ));
+    for b in &r.bands {
+        let c: Vec<u64> = BandStatus::ALL.iter().map(|st| b.count(*st)).collect();
+        s.push_str(&format!(
+            "{:<12} {:>10} {:>12} {:>13} {:>10} {:>10}\n",
+            b.band, c[0], c[1], c[2], c[3], c[4]
+        ));
+        for (reason, count) in &b.rejected_by {
+            s.push_str(&format!("             rejected {count}: {reason}\n"));
+        }
+    }
+    if r.problem_count > 0 {
+        s.push_str(&format!(
+            "\nproblems {} in all; the first {}:\n",
+            r.problem_count,
+            r.problems.len()
+        ));
+        for p in &r.problems {
+            s.push_str(&format!(
+                "  row {}, column \"{}\": expected {}, found \"{}\" ({})\n",
+                p.row, p.column, p.expected, p.found, p.action
+            ));
+        }
+    }
+    match written {
+        Some((path, rows)) => s.push_str(&format!("\nwrote    {} ({rows} rows)\n", path.display())),
+        None => s.push_str(
+            "\nwrote    nothing (add --out FILE.parquet to write the normalized table)\n",
+        ),
+    }
+    s
+}

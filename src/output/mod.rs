@@ -1,0 +1,5 @@
+//! Writing results: Parquet files that are written atomically and carry their
+//! own description (band table, schema or plan) in key-value metadata.
+
+pub mod atomic;
+pub mod parquet;
