@@ -35,6 +35,17 @@
 //! Complex (`C`, `M`) and variable-length (`P`, `Q`) columns are refused with an
 //! error naming the column. Every Arrow field is nullable; a non-empty `TUNITn`
 //! is kept in the field metadata under `"unit"`.
+//!
+//! ```no_run
+//! use fluxloom::catalog::fits::{FitsOptions, read_fits};
+//!
+//! let options = FitsOptions { hdu: None, batch_rows: 65_536 };
+//! let table = read_fits(std::path::Path::new("field.fits"), &options)?;
+//! for batch in table.batches {
+//!     println!("{} rows", batch?.num_rows());
+//! }
+//! # Ok::<(), fluxloom::Error>(())
+//! ```
 
 use std::fs::File;
 use std::io::{self, BufReader, Read, Seek};
@@ -42,8 +53,8 @@ use std::path::{Path, PathBuf};
 use std::sync::Arc;
 
 use arrow::array::{
-    Array, ArrayRef, BooleanArray, FixedSizeListArray, PrimitiveArray, RecordBatch,
-    RecordBatchOptions, StringArray,
+    ArrayRef, BooleanArray, FixedSizeListArray, PrimitiveArray, RecordBatch, RecordBatchOptions,
+    StringArray,
 };
 use arrow::datatypes::{
     ArrowPrimitiveType, DataType, Field, Float32Type, Float64Type, Int8Type, Int16Type, Int32Type,
@@ -838,7 +849,7 @@ impl Cells<'_> {
     }
 }
 
-/// Reads a big-endian value from the first `N` bytes of `b` (the caller passes exactly `N`).
+/// The first `N` bytes of `b` as an array, ready for `from_be_bytes`.
 fn be<const N: usize>(b: &[u8]) -> [u8; N] {
     let mut out = [0u8; N];
     out.copy_from_slice(&b[..N]);
@@ -960,14 +971,13 @@ fn decode_text(cells: &Cells<'_>, path: &Path, first_row: u64) -> Result<ArrayRe
         })?;
         out.push(text.trim_end_matches(' '));
     }
-    let array: StringArray = out.into_iter().map(Some).collect();
-    debug_assert_eq!(array.null_count(), 0);
-    Ok(Arc::new(array))
+    Ok(Arc::new(StringArray::from(out)))
 }
 
 #[cfg(test)]
 mod tests {
     use super::*;
+    use arrow::array::Array;
 
     /// Pads `text` to one 80-byte card.
     fn card(text: &str) -> Vec<u8> {

@@ -31,6 +31,16 @@
 //!   string) columns in every serialization; NaN floats are null.
 //!
 //! The FITS serialization and remote streams (`STREAM/@href`) are refused.
+//!
+//! ```no_run
+//! use fluxloom::catalog::votable::{VotableOptions, read_votable};
+//!
+//! let options = VotableOptions { table_index: 0, batch_rows: 65_536 };
+//! let table = read_votable(std::path::Path::new("field.vot"), &options)?;
+//! println!("columns: {:?}", table.schema.fields().iter().map(|f| f.name()).collect::<Vec<_>>());
+//! let batches = table.collect_all()?;
+//! # Ok::<(), fluxloom::Error>(())
+//! ```
 
 use std::fs::File;
 use std::io::BufReader;
@@ -147,7 +157,7 @@ struct FieldSpec {
 
 /// How the rows of the chosen TABLE are serialized.
 #[derive(Debug)]
-enum Data {
+enum Serialization {
     /// No rows (no DATA, or an empty one).
     Empty,
     /// `TABLEDATA`; the reader is just after its start tag.
@@ -181,7 +191,7 @@ fn attributes(
 }
 
 /// Reads up to the DATA of TABLE `index`, returning its FIELDs and serialization.
-fn find_table(xml: &mut Xml, index: usize) -> Result<(Vec<FieldSpec>, Data)> {
+fn find_table(xml: &mut Xml, index: usize) -> Result<(Vec<FieldSpec>, Serialization)> {
     let path = xml.path.clone();
     let mut tables_seen = 0usize;
     let mut root_seen = false;
@@ -195,7 +205,7 @@ fn find_table(xml: &mut Xml, index: usize) -> Result<(Vec<FieldSpec>, Data)> {
             Event::Empty(e) => (e, true),
             Event::End(e) => {
                 match e.local_name().as_ref() {
-                    b"TABLE" if in_table => return Ok((fields, Data::Empty)),
+                    b"TABLE" if in_table => return Ok((fields, Serialization::Empty)),
                     b"FIELD" => in_field = false,
                     _ => {}
                 }
@@ -238,7 +248,7 @@ fn find_table(xml: &mut Xml, index: usize) -> Result<(Vec<FieldSpec>, Data)> {
             b"TABLE" => {
                 if tables_seen == index {
                     if empty {
-                        return Ok((fields, Data::Empty));
+                        return Ok((fields, Serialization::Empty));
                     }
                     in_table = true;
                 }
@@ -278,13 +288,17 @@ fn find_table(xml: &mut Xml, index: usize) -> Result<(Vec<FieldSpec>, Data)> {
                 }
             }
             b"TABLEDATA" if in_table => {
-                let data = if empty { Data::Empty } else { Data::TableData };
+                let data = if empty {
+                    Serialization::Empty
+                } else {
+                    Serialization::TableData
+                };
                 return Ok((fields, data));
             }
             b"BINARY" | b"BINARY2" if in_table => {
                 let mask = name == b"BINARY2";
                 if empty {
-                    return Ok((fields, Data::Empty));
+                    return Ok((fields, Serialization::Empty));
                 }
                 let data = open_stream(xml, index, mask)?;
                 return Ok((fields, data));
@@ -303,14 +317,14 @@ fn find_table(xml: &mut Xml, index: usize) -> Result<(Vec<FieldSpec>, Data)> {
 }
 
 /// Reads from just inside BINARY / BINARY2 to the start of its base64 STREAM.
-fn open_stream(xml: &mut Xml, table: usize, mask: bool) -> Result<Data> {
+fn open_stream(xml: &mut Xml, table: usize, mask: bool) -> Result<Serialization> {
     let path = xml.path.clone();
     loop {
         let event = read_event(&mut xml.reader, &mut xml.buf, &path)?;
         let (start, empty) = match event {
             Event::Start(e) => (e, false),
             Event::Empty(e) => (e, true),
-            Event::End(_) => return Ok(Data::Empty),
+            Event::End(_) => return Ok(Serialization::Empty),
             Event::Eof => {
                 return Err(Error::format(
                     &path,
@@ -338,9 +352,11 @@ fn open_stream(xml: &mut Xml, table: usize, mask: bool) -> Result<Data> {
                 ));
             }
         }
-        let mut stream = Base64Stream::default();
-        stream.ended = empty;
-        return Ok(Data::Binary { mask, stream });
+        let stream = Base64Stream {
+            ended: empty,
+            ..Base64Stream::default()
+        };
+        return Ok(Serialization::Binary { mask, stream });
     }
 }
 
@@ -964,7 +980,7 @@ struct TableBatches {
     schema: SchemaRef,
     columns: Vec<Column>,
     table: usize,
-    data: Data,
+    data: Serialization,
     batch_rows: usize,
     /// Rows read so far, over all batches.
     rows_read: u64,
@@ -981,9 +997,9 @@ impl Iterator for TableBatches {
             return None;
         }
         let rows = match &self.data {
-            Data::Empty => Ok(0),
-            Data::TableData => self.read_tabledata(),
-            Data::Binary { .. } => self.read_binary(),
+            Serialization::Empty => Ok(0),
+            Serialization::TableData => self.read_tabledata(),
+            Serialization::Binary { .. } => self.read_binary(),
         };
         let rows = match rows {
             Ok(rows) => rows,
@@ -1105,7 +1121,7 @@ impl TableBatches {
                         self.rows_read += 1;
                     }
                     b"TABLEDATA" => {
-                        self.data = Data::Empty;
+                        self.data = Serialization::Empty;
                         break;
                     }
                     _ => {}
@@ -1127,7 +1143,7 @@ impl TableBatches {
 
     /// Reads up to `batch_rows` BINARY / BINARY2 rows; returns how many were read.
     fn read_binary(&mut self) -> Result<usize> {
-        let Data::Binary { mask, stream } = &mut self.data else {
+        let Serialization::Binary { mask, stream } = &mut self.data else {
             return Ok(0);
         };
         let mask_bytes = if *mask {
