@@ -21,7 +21,7 @@ use arrow::array::{ArrayRef, Float64Array, RecordBatch, StringArray};
 use arrow::datatypes::{DataType, Field, Schema};
 use fluxloom::catalog::normalize::{NormalizeOptions, Normalizer};
 use fluxloom::catalog::schema::SurveySchema;
-use fluxloom::catalog::{DEFAULT_BATCH_ROWS, open};
+use fluxloom::catalog::{DEFAULT_BATCH_ROWS, open, prefetch};
 use fluxloom::photometry::BandLibrary;
 
 const BANDS: [(&str, &str); 8] = [
@@ -225,7 +225,7 @@ fn arrow_parquet_alone(path: &Path) -> usize {
 }
 
 fn fluxloom_read(path: &Path, schema: &SurveySchema) -> usize {
-    let stream = open(path, &schema.format, DEFAULT_BATCH_ROWS).unwrap();
+    let stream = prefetch(open(path, &schema.format, DEFAULT_BATCH_ROWS).unwrap(), 2);
     let mut normalizer = Normalizer::new(schema, path, NormalizeOptions::default());
     normalizer.check_file(&stream.schema).unwrap();
     let mut rows = 0;

@@ -16,8 +16,10 @@
 
 pub mod catalog;
 pub mod cli;
+pub mod crossmatch;
 pub mod error;
 pub mod output;
 pub mod photometry;
+pub mod sky;
 
 pub use error::{Error, Result};

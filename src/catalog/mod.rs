@@ -58,3 +58,23 @@ pub fn open(path: &Path, format: &schema::FileFormat, batch_rows: usize) -> Resu
         ),
     }
 }
+
+/// Reads `stream` on a background thread, keeping up to `depth` batches ready,
+/// so decoding the file and normalizing its batches run on two cores at once.
+/// The thread stops when the stream ends, errs, or the consumer goes away.
+pub fn prefetch(stream: CatalogBatches, depth: usize) -> CatalogBatches {
+    let (sender, receiver) = std::sync::mpsc::sync_channel(depth.max(1));
+    let CatalogBatches { schema, batches } = stream;
+    std::thread::spawn(move || {
+        for batch in batches {
+            let failed = batch.is_err();
+            if sender.send(batch).is_err() || failed {
+                break;
+            }
+        }
+    });
+    CatalogBatches {
+        schema,
+        batches: Box::new(receiver.into_iter()),
+    }
+}

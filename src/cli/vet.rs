@@ -14,7 +14,7 @@ use super::bands::load_library;
 use super::progress::row_counter;
 use crate::catalog::normalize::{BandStatus, NormalizeOptions, NormalizeReport, Normalizer};
 use crate::catalog::schema::SurveySchema;
-use crate::catalog::{DEFAULT_BATCH_ROWS, open};
+use crate::catalog::{DEFAULT_BATCH_ROWS, open, prefetch};
 use crate::error::{Error, Result};
 use crate::output::parquet::ParquetOutput;
 
@@ -84,7 +84,7 @@ pub fn vet_catalog(
     batch_rows: usize,
     quiet: bool,
 ) -> Result<(NormalizeReport, Option<(PathBuf, u64)>)> {
-    let stream = open(catalog, &schema.format, batch_rows)?;
+    let stream = prefetch(open(catalog, &schema.format, batch_rows)?, 2);
     let mut normalizer = Normalizer::new(schema, catalog, options);
     normalizer.check_file(&stream.schema)?;
     let mut output = match out {

@@ -38,7 +38,8 @@ pub const MAG_TO_LN_FLUX: f64 = 0.4 * std::f64::consts::LN_10;
 
 /// Pogson magnitude to flux density: F_ν [Jy] = `zero_point_jy` · 10^(−0.4 `mag`).
 pub fn mag_to_flux_jy(mag: f64, zero_point_jy: f64) -> f64 {
-    zero_point_jy * 10f64.powf(-0.4 * mag)
+    // 10^(−0.4 m) = exp(−0.4 ln10 · m), one exp instead of a general power.
+    zero_point_jy * (-MAG_TO_LN_FLUX * mag).exp()
 }
 
 /// AB magnitude to flux density: F_ν [Jy] = 3631 Jy · 10^(−0.4 m_AB) (Oke & Gunn 1983, ApJ 266, 713).
@@ -247,12 +248,16 @@ impl Conversion {
     fn pogson(&self, mag: f64, err_mag: Option<f64>, zero_point_jy: f64) -> FluxJy {
         let flux_jy = mag_to_flux_jy(mag + self.offset_mag, zero_point_jy);
         match err_mag {
-            Some(sigma_mag) => FluxJy {
-                flux_jy,
-                err_jy: Some(MAG_TO_LN_FLUX * flux_jy * sigma_mag),
-                lo_jy: Some(flux_jy * 10f64.powf(-0.4 * sigma_mag)),
-                hi_jy: Some(flux_jy * 10f64.powf(0.4 * sigma_mag)),
-            },
+            Some(sigma_mag) => {
+                // F·10^(±0.4σ): one exp for both ends of the interval.
+                let factor = (MAG_TO_LN_FLUX * sigma_mag).exp();
+                FluxJy {
+                    flux_jy,
+                    err_jy: Some(MAG_TO_LN_FLUX * flux_jy * sigma_mag),
+                    lo_jy: Some(flux_jy / factor),
+                    hi_jy: Some(flux_jy * factor),
+                }
+            }
             None => FluxJy::without_error(flux_jy),
         }
     }

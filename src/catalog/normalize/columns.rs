@@ -21,18 +21,22 @@ pub struct NotANumber {
 pub enum NumberColumn {
     /// Stored as a number of some type, converted to f64.
     Numeric(Float64Array),
-    /// Stored as text, parsed on access.
-    Text(StringArray),
+    /// Stored as text: parsed in one pass where possible (null where the text is
+    /// not a plain number), with the text kept for everything else.
+    Text(StringArray, Float64Array),
 }
 
 impl NumberColumn {
     /// Wraps a file column; `None` when its type holds neither numbers nor text.
     pub fn new(array: &ArrayRef) -> Option<NumberColumn> {
         match array.data_type() {
-            DataType::Utf8 => Some(NumberColumn::Text(array.as_string::<i32>().clone())),
-            DataType::LargeUtf8 | DataType::Utf8View => {
+            DataType::Utf8 | DataType::LargeUtf8 | DataType::Utf8View => {
                 let text = cast(array, &DataType::Utf8).ok()?;
-                Some(NumberColumn::Text(text.as_string::<i32>().clone()))
+                let parsed = cast(&text, &DataType::Float64).ok()?;
+                Some(NumberColumn::Text(
+                    text.as_string::<i32>().clone(),
+                    parsed.as_primitive().clone(),
+                ))
             }
             t if t.is_numeric() || *t == DataType::Null => {
                 let values = cast(array, &DataType::Float64).ok()?;
@@ -58,22 +62,14 @@ impl NumberColumn {
                 }
                 a.value(i)
             }
-            NumberColumn::Text(a) => {
+            NumberColumn::Text(a, parsed) => {
                 if a.is_null(i) {
                     return Ok(None);
                 }
-                let raw = a.value(i);
-                let text = raw.trim();
-                if text.is_empty() || null_text.iter().any(|n| n == text) {
-                    return Ok(None);
-                }
-                match parse_number(text) {
-                    Some(v) => v,
-                    None => {
-                        return Err(NotANumber {
-                            found: raw.to_string(),
-                        });
-                    }
+                if parsed.is_valid(i) && null_text.is_empty() {
+                    parsed.value(i)
+                } else {
+                    Self::parse_text(a.value(i), null_text)?.unwrap_or(f64::NAN)
                 }
             }
         };
@@ -86,6 +82,21 @@ impl NumberColumn {
             });
         }
         Ok(Some(value))
+    }
+
+    /// The slow path for text that is not a plain number: blanks, null text,
+    /// Fortran exponents, or garbage.
+    fn parse_text(raw: &str, null_text: &[String]) -> Result<Option<f64>, NotANumber> {
+        let text = raw.trim();
+        if text.is_empty() || null_text.iter().any(|n| n == text) {
+            return Ok(None);
+        }
+        match parse_number(text) {
+            Some(v) => Ok(Some(v)),
+            None => Err(NotANumber {
+                found: raw.to_string(),
+            }),
+        }
     }
 }
 

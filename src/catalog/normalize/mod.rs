@@ -43,7 +43,10 @@ mod report;
 use std::path::{Path, PathBuf};
 use std::sync::Arc;
 
-use arrow::array::{ArrayRef, Float64Builder, RecordBatch, StringBuilder, UInt64Builder};
+use arrow::array::{
+    ArrayRef, Float64Array, Float64Builder, RecordBatch, StringArray, StringBuilder, UInt64Builder,
+};
+use arrow::buffer::NullBuffer;
 use arrow::datatypes::{DataType, Field, Schema, SchemaRef};
 
 pub use columns::{NotANumber, NumberColumn, TextColumn};
@@ -267,10 +270,7 @@ impl Normalizer {
                 .zip(self.report.bands.iter_mut())
             {
                 let status = builders.append(outcome, counts);
-                *counts
-                    .by_status
-                    .entry(status.as_str().to_string())
-                    .or_insert(0) += 1;
+                counts.add(status);
             }
             self.report.rows_kept += 1;
         }
@@ -366,8 +366,8 @@ fn with_unit(field: Field, unit: &str) -> Field {
 // ---------------------------------------------------------------------------
 // Row-level fields: identifier, position, epoch, position error, proper motion.
 
-struct RowFields {
-    id: Option<String>,
+struct RowFields<'a> {
+    id: Option<&'a str>,
     ra_deg: f64,
     dec_deg: f64,
     epoch_yr: f64,
@@ -479,10 +479,10 @@ impl RowInputs {
         })
     }
 
-    fn read(&self, i: usize, schema: &SurveySchema) -> Result<RowFields, RowProblem> {
+    fn read(&self, i: usize, schema: &SurveySchema) -> Result<RowFields<'_>, RowProblem> {
         let id = match (&self.id, &schema.id) {
             (Some(col), Some(name)) => match col.get(i) {
-                Some(s) if !s.is_empty() => Some(s.to_string()),
+                Some(s) if !s.is_empty() => Some(s),
                 _ => return Err(RowProblem::new(name, "a source identifier", "")),
             },
             _ => None,
@@ -634,7 +634,7 @@ impl RowBuilders {
     }
 
     fn append(&mut self, row: u64, f: &RowFields) {
-        match &f.id {
+        match f.id {
             Some(id) => self.source_id.append_value(id),
             None => self.source_id.append_value(row.to_string()),
         }
@@ -864,10 +864,13 @@ impl<'a> BandInput<'a> {
     }
 }
 
+/// Output columns of one band, filled row by row: values with validity, and
+/// status codes turned into text at the end.
 struct BandBuilders {
     has_flux: bool,
-    values: Vec<Float64Builder>,
-    status: StringBuilder,
+    values: Vec<Vec<f64>>,
+    valid: Vec<Vec<bool>>,
+    status: Vec<u8>,
 }
 
 impl BandBuilders {
@@ -875,14 +878,14 @@ impl BandBuilders {
         let count = if spec.has_flux() { 5 } else { 3 };
         BandBuilders {
             has_flux: spec.has_flux(),
-            values: (0..count)
-                .map(|_| Float64Builder::with_capacity(n))
-                .collect(),
-            status: StringBuilder::with_capacity(n, n * 9),
+            values: (0..count).map(|_| Vec::with_capacity(n)).collect(),
+            valid: (0..count).map(|_| Vec::with_capacity(n)).collect(),
+            status: Vec::with_capacity(n),
         }
     }
 
     /// Appends one measurement; returns its status.
+    #[inline]
     fn append(&mut self, outcome: Outcome, counts: &mut BandCounts) -> BandStatus {
         // Flux bands: flux, err, lo, hi, ulim. Magnitude bands: mag, err, ulim.
         let ulim = self.values.len() - 1;
@@ -912,20 +915,31 @@ impl BandBuilders {
                 BandStatus::Rejected
             }
         };
-        for (b, v) in self.values.iter_mut().zip(row) {
-            b.append_option(v);
+        for ((values, valid), v) in self.values.iter_mut().zip(self.valid.iter_mut()).zip(row) {
+            values.push(v.unwrap_or(0.0));
+            valid.push(v.is_some());
         }
-        self.status.append_value(status.as_str());
+        self.status.push(status as u8);
         status
     }
 
-    fn finish(mut self) -> Vec<ArrayRef> {
+    fn finish(self) -> Vec<ArrayRef> {
         let mut cols: Vec<ArrayRef> = self
             .values
-            .iter_mut()
-            .map(|b| Arc::new(b.finish()) as ArrayRef)
+            .into_iter()
+            .zip(self.valid)
+            .map(|(values, valid)| {
+                Arc::new(Float64Array::new(
+                    values.into(),
+                    Some(NullBuffer::from(valid)),
+                )) as ArrayRef
+            })
             .collect();
-        cols.push(Arc::new(self.status.finish()));
+        cols.push(Arc::new(StringArray::from_iter_values(
+            self.status
+                .iter()
+                .map(|&s| BandStatus::ALL[s as usize].as_str()),
+        )));
         cols
     }
 }

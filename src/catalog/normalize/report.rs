@@ -8,6 +8,7 @@ use serde::Serialize;
 /// The status of one band measurement of one source.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
 #[serde(rename_all = "snake_case")]
+#[repr(u8)]
 pub enum BandStatus {
     /// A measurement with flux density (and error when given).
     Detected,
@@ -44,12 +45,12 @@ impl BandStatus {
 }
 
 /// Counts for one band.
-#[derive(Debug, Clone, Default, Serialize)]
+#[derive(Debug, Clone, Default)]
 pub struct BandCounts {
     /// Band id.
     pub band: String,
-    /// Measurements per status (keys are [`BandStatus::as_str`]).
-    pub by_status: BTreeMap<String, u64>,
+    /// Measurements per status, in [`BandStatus::ALL`] order.
+    pub by_status: [u64; 5],
     /// Rejections per reason.
     pub rejected_by: BTreeMap<String, u64>,
 }
@@ -57,7 +58,28 @@ pub struct BandCounts {
 impl BandCounts {
     /// The count for one status.
     pub fn count(&self, status: BandStatus) -> u64 {
-        self.by_status.get(status.as_str()).copied().unwrap_or(0)
+        self.by_status[status as usize]
+    }
+
+    /// Counts one more measurement of `status`.
+    #[inline]
+    pub fn add(&mut self, status: BandStatus) {
+        self.by_status[status as usize] += 1;
+    }
+}
+
+impl Serialize for BandCounts {
+    fn serialize<S: serde::Serializer>(&self, serializer: S) -> Result<S::Ok, S::Error> {
+        use serde::ser::SerializeStruct;
+        let by_status: BTreeMap<&str, u64> = BandStatus::ALL
+            .iter()
+            .map(|s| (s.as_str(), self.count(*s)))
+            .collect();
+        let mut st = serializer.serialize_struct("BandCounts", 3)?;
+        st.serialize_field("band", &self.band)?;
+        st.serialize_field("by_status", &by_status)?;
+        st.serialize_field("rejected_by", &self.rejected_by)?;
+        st.end()
     }
 }
 

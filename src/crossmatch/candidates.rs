@@ -1,0 +1,217 @@
+//! Candidate pairs: every pair of sources from two different catalogs that
+//! passes the pair's tolerance.
+//!
+//! The sky is cut into HEALPix NESTED cells at `config.partition_order`; each
+//! cell holds its own sources (core) plus every source within the largest
+//! tolerance of it (margin). Within a cell a zone index finds all pairs within the
+//! largest tolerance, and a pair is kept only by the cell that is home to its
+//! lower-ranked source, so every pair is found exactly once whatever the
+//! partitioning (Górski et al. 2005 for HEALPix; the one-owner rule is common practice).
+//! A source with a proper motion is also indexed at the epochs of catalogs without
+//! proper motions, so a fast star meets its counterpart of another epoch
+//! ([`IndexPoints`]); every pair is then tested at a common epoch ([`test_pair`]).
+//! [`find_candidates_in_cell`] is the per-cell function: sources in, pairs out.
+
+use rayon::prelude::*;
+
+use super::bayes::ln_bayes_factor_pair;
+use super::config::MatchConfig;
+use super::prepare::{RAD_PER_ARCSEC, Sources};
+use super::tolerance::accepts;
+use crate::sky::partition::{Cell, partition};
+use crate::sky::propagation::propagate_deg;
+use crate::sky::separation::{separation_deg, tangent_offsets_arcsec};
+use crate::sky::zones::ZoneIndex;
+
+/// A pair of sources from different catalogs within their tolerance.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct Candidate {
+    /// Lower rank of the two sources.
+    pub a: u32,
+    /// Higher rank.
+    pub b: u32,
+    /// Angular separation at the reference epoch, arcsec.
+    pub sep_arcsec: f64,
+    /// Normalized distance sqrt(Δᵀ C⁻¹ Δ) with both error ellipses and floors.
+    pub norm_dist: f64,
+    /// ln of the two-catalog Bayes factor (Budavári & Szalay 2008).
+    pub ln_bayes: f64,
+}
+
+/// Moving sources get an extra index entry at another catalog's epoch when
+/// their displacement to it exceeds this, arcsec.
+pub const EPOCH_COPY_MIN_ARCSEC: f64 = 0.05;
+/// Cap on the extra search radius for catalogs whose epochs spread around their
+/// median, arcsec.
+pub const MAX_EPOCH_SLACK_ARCSEC: f64 = 5.0;
+
+/// Tests one pair: positions at a common epoch ([`Sources::position_for_pair`]),
+/// exact separation, normalized distance, tolerance; `Some` for a candidate.
+pub fn test_pair(sources: &Sources, config: &MatchConfig, a: u32, b: u32) -> Option<Candidate> {
+    let (ia, ib) = (a as usize, b as usize);
+    let (ca, cb) = (sources.catalog[ia] as usize, sources.catalog[ib] as usize);
+    if ca == cb {
+        return None;
+    }
+    let ((ra_a, dec_a), (ra_b, dec_b)) =
+        sources.position_for_pair(ia, ib, config.reference_epoch_yr);
+    let sep_arcsec = separation_deg(ra_a, dec_a, ra_b, dec_b) * 3600.0;
+    let tolerance = config.tolerance_for(ca, cb);
+    if sep_arcsec > tolerance.max_arcsec() {
+        return None;
+    }
+    let floor = config.catalogs[ca].systematic_arcsec.powi(2)
+        + config.catalogs[cb].systematic_arcsec.powi(2);
+    let (east, north) = tangent_offsets_arcsec(ra_a, dec_a, ra_b, dec_b);
+    let d2 = sources.cov[ia]
+        .combine(&sources.cov[ib], floor)
+        .normalized_distance2(east, north);
+    if !accepts(&tolerance, sep_arcsec, d2) {
+        return None;
+    }
+    Some(Candidate {
+        a: a.min(b),
+        b: a.max(b),
+        sep_arcsec,
+        norm_dist: d2.sqrt(),
+        ln_bayes: ln_bayes_factor_pair(
+            sources.sigma_rad[ia],
+            sources.sigma_rad[ib],
+            sep_arcsec * RAD_PER_ARCSEC,
+        ),
+    })
+}
+
+/// The points put in the spatial index: every source at its stored position,
+/// plus, for a moving source, a copy at the epoch of each catalog whose sources
+/// have no proper motion (so a fast star is found next to its old position).
+#[derive(Debug, Clone, Default)]
+pub struct IndexPoints {
+    /// Right ascension of each point, degrees.
+    pub ra_deg: Vec<f64>,
+    /// Declination of each point, degrees.
+    pub dec_deg: Vec<f64>,
+    /// The source (rank) each point stands for.
+    pub source: Vec<u32>,
+    /// Extra search radius for catalogs whose epochs spread around their median, arcsec.
+    pub slack_arcsec: f64,
+}
+
+impl IndexPoints {
+    /// Builds the points of `sources`.
+    pub fn new(sources: &Sources, config: &MatchConfig) -> IndexPoints {
+        let n = sources.len();
+        let mut p = IndexPoints {
+            ra_deg: sources.ra_deg.clone(),
+            dec_deg: sources.dec_deg.clone(),
+            source: (0..n as u32).collect(),
+            slack_arcsec: 0.0,
+        };
+        // Median epoch and spread of each catalog's sources without proper motion.
+        let ncat = sources.catalog_start.len() - 1;
+        let mut epochs: Vec<(usize, f64, f64)> = Vec::new();
+        for c in 0..ncat {
+            let mut e: Vec<f64> = (sources.catalog_start[c]..sources.catalog_start[c + 1])
+                .filter(|&i| !sources.has_pm(i) && sources.epoch_yr[i].is_finite())
+                .map(|i| sources.epoch_yr[i])
+                .collect();
+            if e.is_empty() {
+                continue;
+            }
+            e.sort_by(f64::total_cmp);
+            let median = e[e.len() / 2];
+            let spread = (e[e.len() - 1] - median).max(median - e[0]);
+            epochs.push((c, median, spread));
+        }
+        let mut fastest_arcsec_per_yr: f64 = 0.0;
+        for i in 0..n {
+            if !sources.has_pm(i) {
+                continue;
+            }
+            let (pmra, pmdec) = sources.pm_masyr[i];
+            let speed = pmra.hypot(pmdec) / 1000.0;
+            fastest_arcsec_per_yr = fastest_arcsec_per_yr.max(speed);
+            for &(c, median, _) in &epochs {
+                let dt = median - config.reference_epoch_yr;
+                if c == sources.catalog[i] as usize || speed * dt.abs() <= EPOCH_COPY_MIN_ARCSEC {
+                    continue;
+                }
+                let (ra, dec) =
+                    propagate_deg(sources.ra_deg[i], sources.dec_deg[i], pmra, pmdec, dt);
+                p.ra_deg.push(ra);
+                p.dec_deg.push(dec);
+                p.source.push(i as u32);
+            }
+        }
+        let widest_spread = epochs.iter().map(|e| e.2).fold(0.0, f64::max);
+        p.slack_arcsec = (fastest_arcsec_per_yr * widest_spread).min(MAX_EPOCH_SLACK_ARCSEC);
+        p
+    }
+}
+
+/// The candidates owned by one cell of the index points: pairs among its core
+/// and margin points whose lower-numbered point has `cell.id` as home cell
+/// (`home[point]`). Pairs of the same source pair found through several points
+/// are removed later by [`find_candidates`].
+pub fn find_candidates_in_cell(
+    sources: &Sources,
+    points: &IndexPoints,
+    config: &MatchConfig,
+    cell: &Cell,
+    home: &[u64],
+) -> Vec<Candidate> {
+    let mut members: Vec<u32> = Vec::with_capacity(cell.core.len() + cell.margin.len());
+    members.extend_from_slice(&cell.core);
+    members.extend_from_slice(&cell.margin);
+    members.sort_unstable();
+    let ra: Vec<f64> = members.iter().map(|&m| points.ra_deg[m as usize]).collect();
+    let dec: Vec<f64> = members
+        .iter()
+        .map(|&m| points.dec_deg[m as usize])
+        .collect();
+    let radius_deg = (config.max_radius_arcsec() + points.slack_arcsec) / 3600.0;
+    let index = ZoneIndex::build(&ra, &dec, radius_deg);
+    let mut out = Vec::new();
+    index.for_each_pair(|i, j, _| {
+        let (p, q) = (members[i].min(members[j]), members[i].max(members[j]));
+        if home[p as usize] != cell.id {
+            return;
+        }
+        let (a, b) = (points.source[p as usize], points.source[q as usize]);
+        if a == b || sources.catalog[a as usize] == sources.catalog[b as usize] {
+            return;
+        }
+        if let Some(c) = test_pair(sources, config, a, b) {
+            out.push(c);
+        }
+    });
+    out
+}
+
+/// All candidate pairs, sorted by (a, b) without repeats; cells are searched in parallel.
+pub fn find_candidates(sources: &Sources, config: &MatchConfig) -> Vec<Candidate> {
+    if sources.is_empty() {
+        return Vec::new();
+    }
+    let points = IndexPoints::new(sources, config);
+    let radius_deg = (config.max_radius_arcsec() + points.slack_arcsec) / 3600.0;
+    let cells = partition(
+        config.partition_order,
+        &points.ra_deg,
+        &points.dec_deg,
+        radius_deg,
+    );
+    let mut home = vec![0u64; points.source.len()];
+    for cell in &cells {
+        for &m in &cell.core {
+            home[m as usize] = cell.id;
+        }
+    }
+    let mut all: Vec<Candidate> = cells
+        .par_iter()
+        .flat_map_iter(|cell| find_candidates_in_cell(sources, &points, config, cell, &home))
+        .collect();
+    all.par_sort_unstable_by_key(|c| (c.a, c.b));
+    all.dedup_by_key(|c| (c.a, c.b));
+    all
+}

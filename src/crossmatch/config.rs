@@ -1,0 +1,135 @@
+//! Settings of a cross-match: reference epoch, tolerances, priors, partitions.
+//!
+//! Defaults and the assumptions behind them:
+//! - tolerance: `Sigma { k: 3.439, max_arcsec: 5.0 }` — 3.439 sigma of the combined
+//!   per-axis error encloses 99.73 % of true matches for circular Gaussian errors
+//!   (Rayleigh distribution, r_P = σ·sqrt(−2 ln(1−P)); standard), capped at 5″;
+//! - systematic floor per catalog: 0″ (set it for catalogs whose quoted errors omit
+//!   frame-tie or calibration errors);
+//! - prior: the density of objects common to a set of catalogs is `common_fraction`
+//!   (default 1) times the density of the sparsest of them, i.e. by default every
+//!   source of the sparsest catalog is assumed to have counterparts in the others;
+//! - minimum probability for a clean association: 0.8;
+//! - partition order 7 (cells of about 27′; results do not depend on it).
+
+use std::collections::BTreeMap;
+
+/// How close two sources of a catalog pair must be to be candidates.
+#[derive(Debug, Clone, Copy, PartialEq, serde::Serialize)]
+pub enum Tolerance {
+    /// A fixed radius.
+    Radius {
+        /// Radius, arcsec.
+        arcsec: f64,
+    },
+    /// k sigma of the combined positional errors (both error ellipses plus both
+    /// catalogs' systematic floors), and never more than `max_arcsec`.
+    Sigma {
+        /// Normalized-distance limit.
+        k: f64,
+        /// Cap on the separation, arcsec.
+        max_arcsec: f64,
+    },
+}
+
+impl Tolerance {
+    /// The largest separation this tolerance can accept, arcsec.
+    pub fn max_arcsec(&self) -> f64 {
+        match self {
+            Tolerance::Radius { arcsec } => *arcsec,
+            Tolerance::Sigma { max_arcsec, .. } => *max_arcsec,
+        }
+    }
+}
+
+impl Default for Tolerance {
+    fn default() -> Self {
+        Tolerance::Sigma {
+            k: 3.439,
+            max_arcsec: 5.0,
+        }
+    }
+}
+
+/// Per-catalog settings.
+#[derive(Debug, Clone, PartialEq, Default, serde::Serialize)]
+pub struct CatalogSettings {
+    /// Systematic positional error floor added in quadrature to each source's error
+    /// on both axes, arcsec.
+    pub systematic_arcsec: f64,
+    /// Angular resolution (PSF FWHM), arcsec. A source of a catalog with a larger
+    /// resolution than another's is "coarser"; it is needed to recognize blends.
+    pub resolution_arcsec: Option<f64>,
+}
+
+/// All settings of one cross-match run.
+#[derive(Debug, Clone, PartialEq, serde::Serialize)]
+pub struct MatchConfig {
+    /// Epoch all positions are brought to, Julian years.
+    pub reference_epoch_yr: f64,
+    /// One entry per input catalog, in input order.
+    pub catalogs: Vec<CatalogSettings>,
+    /// Tolerance for every catalog pair without its own.
+    pub tolerance: Tolerance,
+    /// Tolerances of particular catalog pairs, keyed by (lower index, higher index).
+    pub pair_tolerance: BTreeMap<(usize, usize), Tolerance>,
+    /// Associations with a posterior below this are flagged `low_probability`.
+    pub min_probability: f64,
+    /// Density of common objects as a fraction of the sparsest catalog's density.
+    pub common_fraction: f64,
+    /// HEALPix order of the partitions (NESTED scheme).
+    pub partition_order: u8,
+    /// When non-empty, only objects with a source in one of these catalogs are kept.
+    pub primary: Vec<usize>,
+    /// Largest group (in sources) resolved by exact search; larger ones are resolved greedily.
+    pub max_exact_group: usize,
+}
+
+impl MatchConfig {
+    /// Default settings for `n` catalogs at `reference_epoch_yr`.
+    pub fn new(n: usize, reference_epoch_yr: f64) -> MatchConfig {
+        MatchConfig {
+            reference_epoch_yr,
+            catalogs: vec![CatalogSettings::default(); n],
+            tolerance: Tolerance::default(),
+            pair_tolerance: BTreeMap::new(),
+            min_probability: 0.8,
+            common_fraction: 1.0,
+            partition_order: 7,
+            primary: Vec::new(),
+            max_exact_group: 24,
+        }
+    }
+
+    /// The tolerance of catalogs `a` and `b` (in either order).
+    pub fn tolerance_for(&self, a: usize, b: usize) -> Tolerance {
+        let key = (a.min(b), a.max(b));
+        self.pair_tolerance
+            .get(&key)
+            .copied()
+            .unwrap_or(self.tolerance)
+    }
+
+    /// The largest separation any catalog pair accepts, arcsec.
+    pub fn max_radius_arcsec(&self) -> f64 {
+        self.pair_tolerance
+            .values()
+            .map(Tolerance::max_arcsec)
+            .fold(self.tolerance.max_arcsec(), f64::max)
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn pair_tolerances_override_in_either_order() {
+        let mut c = MatchConfig::new(3, 2016.0);
+        c.pair_tolerance
+            .insert((0, 2), Tolerance::Radius { arcsec: 8.0 });
+        assert_eq!(c.tolerance_for(2, 0), Tolerance::Radius { arcsec: 8.0 });
+        assert_eq!(c.tolerance_for(0, 1), Tolerance::default());
+        assert_eq!(c.max_radius_arcsec(), 8.0);
+    }
+}

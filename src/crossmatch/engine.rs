@@ -1,0 +1,432 @@
+//! The cross-match run: source tables in, objects and links out.
+//!
+//! [`run_match`] prepares the sources (rank order, reference epoch), estimates
+//! catalog densities, finds candidate pairs per sky cell, joins them into
+//! connected groups, resolves every group on its own (in parallel), and assembles
+//! objects with positions, members, probabilities and flags, plus every candidate
+//! as a link.
+//!
+//! Object identifiers: an object's `object_id` is `<catalog>:<source_id>` of its
+//! anchor, the member from the earliest catalog in input order (ties within a
+//! catalog cannot occur: one source per catalog). The same inputs give the same
+//! identifiers whatever the row order, threads or partitioning.
+//!
+//! Object positions are at the reference epoch: the inverse-variance weighted mean
+//! of the members' positions, where a member without proper motion is carried
+//! from its own epoch with the object's proper motion (the mean of its moving
+//! members'), when it has one.
+//!
+//! Ownership for partitioned runs: an object belongs to the HEALPix cell (at the
+//! partition order) of its anchor's position at the reference epoch (`owner_cell`).
+
+use std::collections::BTreeMap;
+use std::time::Instant;
+
+use rayon::prelude::*;
+use serde::Serialize;
+
+use super::bayes::posterior;
+use super::candidates::{Candidate, find_candidates};
+use super::config::MatchConfig;
+use super::density::footprint_area_sr;
+use super::flags;
+use super::groups::connected_groups;
+use super::input::SourceTable;
+use super::prepare::{RAD_PER_ARCSEC, Sources};
+use super::resolve::{Context, ResolvedObject, resolve_group};
+use crate::error::Result;
+use crate::sky::partition::home_cell;
+use crate::sky::propagation::propagate_deg;
+use crate::sky::separation::separation_vec_rad;
+use crate::sky::vector::{Vec3, radec_deg_to_vec, vec_to_radec_deg};
+
+/// A source of a catalog, as a member of an object.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct Member {
+    /// Catalog index (input order).
+    pub catalog: usize,
+    /// Row of the source in its [`SourceTable`].
+    pub row: usize,
+    /// Separation from the object position, arcsec.
+    pub sep_arcsec: f64,
+    /// Probability that this source belongs to the object.
+    pub probability: f64,
+}
+
+/// One merged object.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct MatchedObject {
+    /// Stable identifier: `<catalog>:<source_id>` of the anchor member.
+    pub object_id: String,
+    /// Position at the reference epoch: inverse-variance weighted mean of the members.
+    pub ra_deg: f64,
+    /// Declination at the reference epoch, degrees.
+    pub dec_deg: f64,
+    /// Per-axis 1-sigma error of the position, arcsec.
+    pub pos_err_arcsec: f64,
+    /// Proper motion in RA (times cos dec), mas/yr: the mean of the members' own; NaN when none has one.
+    pub pmra_cosdec_masyr: f64,
+    /// Proper motion in Dec, mas/yr; NaN when no member has one.
+    pub pmdec_masyr: f64,
+    /// Members, one per catalog, in catalog order.
+    pub members: Vec<Member>,
+    /// Flag bits, see [`super::flags`].
+    pub flags: u32,
+    /// Posterior probability of the association (1 for one member).
+    pub probability: f64,
+    /// Related objects (blend relations), by identifier.
+    pub related: Vec<String>,
+    /// HEALPix NESTED cell (partition order) that owns the object.
+    pub owner_cell: u64,
+}
+
+impl MatchedObject {
+    /// The readable status of the flags.
+    pub fn status(&self) -> String {
+        flags::status(self.flags)
+    }
+
+    /// The member from catalog `c`, if any.
+    pub fn member(&self, c: usize) -> Option<&Member> {
+        self.members.iter().find(|m| m.catalog == c)
+    }
+}
+
+/// A candidate pair, chosen or not.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct Link {
+    /// Catalog of the first source.
+    pub catalog_a: usize,
+    /// Row of the first source.
+    pub row_a: usize,
+    /// Catalog of the second source.
+    pub catalog_b: usize,
+    /// Row of the second source.
+    pub row_b: usize,
+    /// Separation at the reference epoch, arcsec.
+    pub sep_arcsec: f64,
+    /// Normalized distance (errors and floors included).
+    pub norm_dist: f64,
+    /// ln of the pair's Bayes factor.
+    pub ln_bayes: f64,
+    /// Posterior probability of the pair alone being one object.
+    pub probability: f64,
+    /// True when both sources ended in the same object.
+    pub chosen: bool,
+    /// Object of the first source.
+    pub object_a: String,
+    /// Object of the second source.
+    pub object_b: String,
+}
+
+/// Wall-clock seconds of each phase.
+#[derive(Debug, Clone, Default, PartialEq, Serialize)]
+pub struct PhaseSeconds {
+    /// Rank ordering and epoch propagation.
+    pub prepare: f64,
+    /// Density estimates.
+    pub densities: f64,
+    /// Partitioning, indexing and the candidate search.
+    pub candidates: f64,
+    /// Connected groups.
+    pub groups: f64,
+    /// Group resolution.
+    pub resolution: f64,
+    /// Objects and links.
+    pub assemble: f64,
+}
+
+/// Counts of a match run.
+#[derive(Debug, Clone, Default, PartialEq, Serialize)]
+pub struct MatchStats {
+    /// Sources per catalog.
+    pub sources: Vec<usize>,
+    /// Surface density used for each catalog's prior, per square degree.
+    pub density_per_deg2: Vec<f64>,
+    /// Candidate pairs.
+    pub candidates: usize,
+    /// Connected groups (including single sources).
+    pub groups: usize,
+    /// Sources in the largest group.
+    pub largest_group: usize,
+    /// Groups resolved greedily.
+    pub approximate_groups: usize,
+    /// Objects kept.
+    pub objects: usize,
+    /// Objects left out by the primary-catalog rule.
+    pub objects_not_primary: usize,
+    /// Objects per number of members.
+    pub objects_by_members: BTreeMap<usize, usize>,
+    /// Objects per flag name.
+    pub flags: BTreeMap<String, usize>,
+    /// Seconds per phase.
+    pub seconds: PhaseSeconds,
+}
+
+/// The result of a match.
+#[derive(Debug, Clone, Default, PartialEq)]
+pub struct MatchResult {
+    /// Objects, ordered by anchor (catalog, then source identifier).
+    pub objects: Vec<MatchedObject>,
+    /// Every candidate pair.
+    pub links: Vec<Link>,
+    /// Counts and timings.
+    pub stats: MatchStats,
+}
+
+/// Square degrees per steradian, (180/π)².
+pub const DEG2_PER_SR: f64 = (180.0 / std::f64::consts::PI) * (180.0 / std::f64::consts::PI);
+
+/// Cross-matches `tables` (one per catalog, in the order of `config.catalogs`).
+///
+/// # Errors
+/// A usage error for duplicated source identifiers, non-finite positions, or
+/// settings that do not fit the tables.
+pub fn run_match(tables: &[SourceTable], config: &MatchConfig) -> Result<MatchResult> {
+    run_match_with_area(tables, config, None)
+}
+
+/// As [`run_match`], with the field area (steradians) given instead of estimated
+/// per catalog; all catalogs are then taken to cover that area.
+///
+/// # Errors
+/// As [`run_match`].
+pub fn run_match_with_area(
+    tables: &[SourceTable],
+    config: &MatchConfig,
+    area_sr: Option<f64>,
+) -> Result<MatchResult> {
+    let mut seconds = PhaseSeconds::default();
+    let t = Instant::now();
+    let sources = Sources::prepare(tables, config)?;
+    seconds.prepare = t.elapsed().as_secs_f64();
+
+    let t = Instant::now();
+    let densities: Vec<f64> = (0..tables.len())
+        .into_par_iter()
+        .map(|c| {
+            let range = sources.catalog_start[c]..sources.catalog_start[c + 1];
+            let area = area_sr.unwrap_or_else(|| {
+                footprint_area_sr(&sources.ra_deg[range.clone()], &sources.dec_deg[range])
+            });
+            if area > 0.0 {
+                sources.catalog_len(c) as f64 / area
+            } else {
+                1.0
+            }
+        })
+        .collect();
+    seconds.densities = t.elapsed().as_secs_f64();
+
+    let t = Instant::now();
+    let candidates = find_candidates(&sources, config);
+    seconds.candidates = t.elapsed().as_secs_f64();
+
+    let t = Instant::now();
+    let groups = connected_groups(sources.len(), candidates.iter().map(|c| (c.a, c.b)));
+    let per_group = candidates_per_group(&groups, &candidates, sources.len());
+    seconds.groups = t.elapsed().as_secs_f64();
+
+    let t = Instant::now();
+    let ctx = Context {
+        sources: &sources,
+        config,
+        ln_density_per_sr: densities.iter().map(|d| d.ln()).collect(),
+    };
+    let resolved: Vec<Vec<ResolvedObject>> = groups
+        .par_iter()
+        .zip(per_group.par_iter())
+        .map(|(members, cands)| {
+            let group_cands: Vec<Candidate> =
+                cands.iter().map(|&k| candidates[k as usize]).collect();
+            resolve_group(&ctx, members, &group_cands)
+        })
+        .collect();
+    seconds.resolution = t.elapsed().as_secs_f64();
+
+    let t = Instant::now();
+    let mut result = assemble(
+        tables,
+        &sources,
+        config,
+        &ctx,
+        &groups,
+        resolved,
+        &candidates,
+    );
+    seconds.assemble = t.elapsed().as_secs_f64();
+    result.stats.density_per_deg2 = densities.iter().map(|d| d / DEG2_PER_SR).collect();
+    result.stats.sources = tables.iter().map(SourceTable::len).collect();
+    result.stats.seconds = seconds;
+    Ok(result)
+}
+
+/// Candidate indices of each group (candidates sorted by (a, b) stay in that order).
+fn candidates_per_group(groups: &[Vec<u32>], candidates: &[Candidate], n: usize) -> Vec<Vec<u32>> {
+    let mut group_of = vec![0u32; n];
+    for (g, members) in groups.iter().enumerate() {
+        for &m in members {
+            group_of[m as usize] = g as u32;
+        }
+    }
+    let mut per_group: Vec<Vec<u32>> = vec![Vec::new(); groups.len()];
+    for (k, c) in candidates.iter().enumerate() {
+        per_group[group_of[c.a as usize] as usize].push(k as u32);
+    }
+    per_group
+}
+
+fn assemble(
+    tables: &[SourceTable],
+    sources: &Sources,
+    config: &MatchConfig,
+    ctx: &Context,
+    groups: &[Vec<u32>],
+    resolved: Vec<Vec<ResolvedObject>>,
+    candidates: &[Candidate],
+) -> MatchResult {
+    let mut stats = MatchStats {
+        candidates: candidates.len(),
+        groups: groups.len(),
+        largest_group: groups.iter().map(Vec::len).max().unwrap_or(0),
+        approximate_groups: resolved
+            .iter()
+            .filter(|g| g.iter().any(|o| o.flags & flags::APPROXIMATE != 0))
+            .count(),
+        ..MatchStats::default()
+    };
+    let id_of_rank = |rank: u32| -> String {
+        let r = rank as usize;
+        let c = sources.catalog[r] as usize;
+        format!(
+            "{}:{}",
+            tables[c].name, tables[c].source_id[sources.row[r] as usize]
+        )
+    };
+    let mut all: Vec<ResolvedObject> = resolved.into_iter().flatten().collect();
+    all.sort_by_key(|o| o.members[0]);
+    let mut object_of_rank = vec![0u32; sources.len()];
+    for (k, o) in all.iter().enumerate() {
+        for &m in &o.members {
+            object_of_rank[m as usize] = k as u32;
+        }
+    }
+    let mut objects = Vec::with_capacity(all.len());
+    for o in &all {
+        // The object's proper motion is the mean of its members' own; members
+        // without one are carried with it from their epoch to the reference epoch.
+        let moving: Vec<(f64, f64)> = o
+            .members
+            .iter()
+            .filter(|&&m| sources.has_pm(m as usize))
+            .map(|&m| sources.pm_masyr[m as usize])
+            .collect();
+        let pm = if moving.is_empty() {
+            (f64::NAN, f64::NAN)
+        } else {
+            let k = moving.len() as f64;
+            (
+                moving.iter().map(|p| p.0).sum::<f64>() / k,
+                moving.iter().map(|p| p.1).sum::<f64>() / k,
+            )
+        };
+        let at_reference = |m: usize| -> Vec3 {
+            if sources.has_pm(m) || pm.0.is_nan() || !sources.epoch_yr[m].is_finite() {
+                sources.vec[m]
+            } else {
+                let dt = config.reference_epoch_yr - sources.epoch_yr[m];
+                let (ra, dec) =
+                    propagate_deg(sources.ra_deg[m], sources.dec_deg[m], pm.0, pm.1, dt);
+                radec_deg_to_vec(ra, dec)
+            }
+        };
+        let mut sum = [0.0f64; 3];
+        let mut weight = 0.0;
+        for &m in &o.members {
+            let w = 1.0 / sources.sigma_rad[m as usize].powi(2);
+            let v = at_reference(m as usize);
+            for k in 0..3 {
+                sum[k] += w * v[k];
+            }
+            weight += w;
+        }
+        let (ra_deg, dec_deg) = vec_to_radec_deg(sum);
+        let centre = radec_deg_to_vec(ra_deg, dec_deg);
+        let members = o
+            .members
+            .iter()
+            .zip(&o.member_probability)
+            .map(|(&m, &p)| Member {
+                catalog: sources.catalog[m as usize] as usize,
+                row: sources.row[m as usize] as usize,
+                sep_arcsec: separation_vec_rad(centre, at_reference(m as usize)) / RAD_PER_ARCSEC,
+                probability: p,
+            })
+            .collect();
+        let anchor = o.members[0] as usize;
+        objects.push(MatchedObject {
+            object_id: id_of_rank(o.members[0]),
+            ra_deg,
+            dec_deg,
+            pos_err_arcsec: (1.0 / weight).sqrt() / RAD_PER_ARCSEC,
+            pmra_cosdec_masyr: pm.0,
+            pmdec_masyr: pm.1,
+            members,
+            flags: o.flags,
+            probability: o.probability,
+            related: o.related.iter().map(|&r| id_of_rank(r)).collect(),
+            owner_cell: home_cell(
+                config.partition_order,
+                sources.ra_deg[anchor],
+                sources.dec_deg[anchor],
+            ),
+        });
+    }
+    let links = candidates
+        .iter()
+        .map(|c| {
+            let (a, b) = (c.a as usize, c.b as usize);
+            let (ca, cb) = (sources.catalog[a] as usize, sources.catalog[b] as usize);
+            let (oa, ob) = (object_of_rank[a], object_of_rank[b]);
+            Link {
+                catalog_a: ca,
+                row_a: sources.row[a] as usize,
+                catalog_b: cb,
+                row_b: sources.row[b] as usize,
+                sep_arcsec: c.sep_arcsec,
+                norm_dist: c.norm_dist,
+                ln_bayes: c.ln_bayes,
+                probability: posterior(c.ln_bayes, ctx.ln_prior(&[ca, cb])),
+                chosen: oa == ob,
+                object_a: objects[oa as usize].object_id.clone(),
+                object_b: objects[ob as usize].object_id.clone(),
+            }
+        })
+        .collect();
+    if !config.primary.is_empty() {
+        let before = objects.len();
+        objects.retain(|o| {
+            o.members
+                .iter()
+                .any(|m| config.primary.contains(&m.catalog))
+        });
+        stats.objects_not_primary = before - objects.len();
+    }
+    stats.objects = objects.len();
+    for o in &objects {
+        *stats.objects_by_members.entry(o.members.len()).or_insert(0) += 1;
+        for (bit, name) in flags::ALL {
+            if o.flags & bit != 0 {
+                *stats.flags.entry(name.to_string()).or_insert(0) += 1;
+            }
+        }
+        if o.flags & !flags::SINGLE_CATALOG == 0 && o.members.len() > 1 {
+            *stats.flags.entry("clean".to_string()).or_insert(0) += 1;
+        }
+    }
+    MatchResult {
+        objects,
+        links,
+        stats,
+    }
+}

@@ -1,0 +1,138 @@
+//! The matcher's input: one [`SourceTable`] per catalog, holding only what
+//! positional matching needs, in plain columns.
+//!
+//! A table is usually built from normalized source batches
+//! ([`SourceTable::from_batches`]); tests build them directly.
+
+use arrow::array::{Array, AsArray, RecordBatch};
+use arrow::datatypes::Float64Type;
+
+use crate::error::{Error, Result};
+
+/// Positions, epochs, errors and proper motions of one catalog's sources.
+#[derive(Debug, Clone, Default, PartialEq)]
+pub struct SourceTable {
+    /// Catalog name.
+    pub name: String,
+    /// Source identifiers (unique within the catalog).
+    pub source_id: Vec<String>,
+    /// Right ascension at `epoch_yr`, degrees.
+    pub ra_deg: Vec<f64>,
+    /// Declination at `epoch_yr`, degrees.
+    pub dec_deg: Vec<f64>,
+    /// Epoch of the position, Julian years.
+    pub epoch_yr: Vec<f64>,
+    /// 1-sigma error ellipse semi-major axis, arcsec.
+    pub err_major_arcsec: Vec<f64>,
+    /// 1-sigma error ellipse semi-minor axis, arcsec.
+    pub err_minor_arcsec: Vec<f64>,
+    /// Error ellipse position angle, degrees east of north.
+    pub err_pa_deg: Vec<f64>,
+    /// Proper motion in RA including cos(dec), mas/yr; NaN when unknown.
+    pub pmra_cosdec_masyr: Vec<f64>,
+    /// Proper motion in Dec, mas/yr; NaN when unknown.
+    pub pmdec_masyr: Vec<f64>,
+}
+
+impl SourceTable {
+    /// Number of sources.
+    pub fn len(&self) -> usize {
+        self.ra_deg.len()
+    }
+
+    /// True when the table has no sources.
+    pub fn is_empty(&self) -> bool {
+        self.ra_deg.is_empty()
+    }
+
+    /// Appends one source with a circular error and no proper motion (handy in tests).
+    pub fn push_simple(
+        &mut self,
+        id: &str,
+        ra_deg: f64,
+        dec_deg: f64,
+        epoch_yr: f64,
+        sigma_arcsec: f64,
+    ) {
+        self.push(
+            id,
+            ra_deg,
+            dec_deg,
+            epoch_yr,
+            (sigma_arcsec, sigma_arcsec, 0.0),
+            None,
+        );
+    }
+
+    /// Appends one source; `ellipse` is (major, minor, angle) in (arcsec, arcsec, deg)
+    /// and `pm` is (mu_ra cos dec, mu_dec) in mas/yr.
+    pub fn push(
+        &mut self,
+        id: &str,
+        ra_deg: f64,
+        dec_deg: f64,
+        epoch_yr: f64,
+        ellipse: (f64, f64, f64),
+        pm: Option<(f64, f64)>,
+    ) {
+        self.source_id.push(id.to_string());
+        self.ra_deg.push(ra_deg);
+        self.dec_deg.push(dec_deg);
+        self.epoch_yr.push(epoch_yr);
+        self.err_major_arcsec.push(ellipse.0);
+        self.err_minor_arcsec.push(ellipse.1);
+        self.err_pa_deg.push(ellipse.2);
+        let (a, d) = pm.unwrap_or((f64::NAN, f64::NAN));
+        self.pmra_cosdec_masyr.push(a);
+        self.pmdec_masyr.push(d);
+    }
+
+    /// Collects the matching columns of normalized source batches (as written by
+    /// the normalizer) into a table named `name`.
+    ///
+    /// # Errors
+    /// [`Error::Format`] naming `origin` when a column is missing or mistyped.
+    pub fn from_batches(
+        name: &str,
+        batches: &[RecordBatch],
+        origin: &std::path::Path,
+    ) -> Result<SourceTable> {
+        let mut t = SourceTable {
+            name: name.to_string(),
+            ..SourceTable::default()
+        };
+        for batch in batches {
+            let f64s = |col: &str| -> Result<&arrow::array::PrimitiveArray<Float64Type>> {
+                batch
+                    .column_by_name(col)
+                    .and_then(|c| c.as_primitive_opt::<Float64Type>())
+                    .ok_or_else(|| {
+                        Error::format(
+                            origin,
+                            format!("normalized table lacks a Float64 column \"{col}\""),
+                        )
+                    })
+            };
+            let ids = batch
+                .column_by_name("source_id")
+                .and_then(|c| c.as_string_opt::<i32>())
+                .ok_or_else(|| {
+                    Error::format(origin, "normalized table lacks a text column \"source_id\"")
+                })?;
+            t.source_id
+                .extend(ids.iter().map(|s| s.unwrap_or_default().to_string()));
+            let opt = |a: &arrow::array::PrimitiveArray<Float64Type>, out: &mut Vec<f64>| {
+                out.extend((0..a.len()).map(|i| if a.is_null(i) { f64::NAN } else { a.value(i) }));
+            };
+            opt(f64s("ra_deg")?, &mut t.ra_deg);
+            opt(f64s("dec_deg")?, &mut t.dec_deg);
+            opt(f64s("epoch_yr")?, &mut t.epoch_yr);
+            opt(f64s("pos_err_major_arcsec")?, &mut t.err_major_arcsec);
+            opt(f64s("pos_err_minor_arcsec")?, &mut t.err_minor_arcsec);
+            opt(f64s("pos_err_pa_deg")?, &mut t.err_pa_deg);
+            opt(f64s("pmra_cosdec_masyr")?, &mut t.pmra_cosdec_masyr);
+            opt(f64s("pmdec_masyr")?, &mut t.pmdec_masyr);
+        }
+        Ok(t)
+    }
+}

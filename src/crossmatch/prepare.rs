@@ -1,0 +1,189 @@
+//! Preparing sources for matching: one flat, deterministic list of every
+//! catalog's sources, brought to the reference epoch.
+//!
+//! Sources are put in *rank order*: by catalog (input order), then by source
+//! identifier. Every later step works on ranks, so the result does not depend on
+//! the order of rows in the files, the number of threads or the partitioning; and
+//! ties are broken by rank. Identifiers must therefore be unique within a catalog.
+//!
+//! Positions of sources with a proper motion are propagated to the reference epoch
+//! (linear space motion, [`crate::sky::propagation::propagate_deg`]); a source
+//! without proper motion keeps its observed position and epoch, and is compared
+//! with a moving source at its own epoch (see [`Sources::position_for_pair`]).
+
+use super::bayes::circularized_sigma_arcsec;
+use super::config::MatchConfig;
+use super::input::SourceTable;
+use super::tolerance::Covariance;
+use crate::error::{Error, Result};
+use crate::sky::propagation::propagate_deg;
+use crate::sky::vector::{Vec3, radec_deg_to_vec};
+
+/// Radians per arcsecond.
+pub const RAD_PER_ARCSEC: f64 = std::f64::consts::PI / 648_000.0;
+
+/// Every source of every catalog, in rank order, ready for matching.
+#[derive(Debug, Clone, Default)]
+pub struct Sources {
+    /// Catalog index of each source.
+    pub catalog: Vec<u16>,
+    /// Row of each source in its [`SourceTable`].
+    pub row: Vec<u32>,
+    /// Right ascension, degrees: at the reference epoch when the source has a
+    /// proper motion, else as observed at `epoch_yr`.
+    pub ra_deg: Vec<f64>,
+    /// Declination, degrees, at the same epoch as `ra_deg`.
+    pub dec_deg: Vec<f64>,
+    /// Epoch of observation, Julian years.
+    pub epoch_yr: Vec<f64>,
+    /// Proper motion (mu_ra cos dec, mu_dec), mas/yr; NaN when unknown.
+    pub pm_masyr: Vec<(f64, f64)>,
+    /// Unit vectors of the positions.
+    pub vec: Vec<Vec3>,
+    /// Positional covariance (east, north), arcsec², without systematic floors.
+    pub cov: Vec<Covariance>,
+    /// Circularized per-axis sigma including the catalog's systematic floor, radians.
+    pub sigma_rad: Vec<f64>,
+    /// First rank of each catalog, plus the total at the end.
+    pub catalog_start: Vec<usize>,
+}
+
+impl Sources {
+    /// Number of sources.
+    pub fn len(&self) -> usize {
+        self.catalog.len()
+    }
+
+    /// True when there are no sources.
+    pub fn is_empty(&self) -> bool {
+        self.catalog.is_empty()
+    }
+
+    /// Flattens `tables` into rank order at `config.reference_epoch_yr`.
+    ///
+    /// # Errors
+    /// [`Error::Usage`] when a catalog repeats a source identifier, has a
+    /// non-finite position, or when `config` describes a different number of catalogs.
+    pub fn prepare(tables: &[SourceTable], config: &MatchConfig) -> Result<Sources> {
+        if tables.len() != config.catalogs.len() {
+            return Err(Error::Usage(format!(
+                "the match settings describe {} catalogs but {} were given",
+                config.catalogs.len(),
+                tables.len()
+            )));
+        }
+        if tables.len() > u16::MAX as usize {
+            return Err(Error::Usage("too many catalogs (at most 65535)".into()));
+        }
+        let total: usize = tables.iter().map(SourceTable::len).sum();
+        let mut s = Sources {
+            catalog: Vec::with_capacity(total),
+            row: Vec::with_capacity(total),
+            ra_deg: Vec::with_capacity(total),
+            dec_deg: Vec::with_capacity(total),
+            epoch_yr: Vec::with_capacity(total),
+            pm_masyr: Vec::with_capacity(total),
+            vec: Vec::with_capacity(total),
+            cov: Vec::with_capacity(total),
+            sigma_rad: Vec::with_capacity(total),
+            catalog_start: Vec::with_capacity(tables.len() + 1),
+        };
+        for (c, table) in tables.iter().enumerate() {
+            s.catalog_start.push(s.len());
+            let mut order: Vec<u32> = (0..table.len() as u32).collect();
+            order.sort_unstable_by(|&a, &b| {
+                table.source_id[a as usize].cmp(&table.source_id[b as usize])
+            });
+            if let Some(w) = order
+                .windows(2)
+                .find(|w| table.source_id[w[0] as usize] == table.source_id[w[1] as usize])
+            {
+                let (a, b) = (w[0].min(w[1]) as usize, w[0].max(w[1]) as usize);
+                return Err(Error::Usage(format!(
+                    "catalog \"{}\": source identifier \"{}\" appears twice (sources {} and {}); identifiers must be unique within a catalog",
+                    table.name,
+                    table.source_id[a],
+                    a + 1,
+                    b + 1
+                )));
+            }
+            let sys = config.catalogs[c].systematic_arcsec;
+            for &r in &order {
+                let i = r as usize;
+                let (mut ra, mut dec) = (table.ra_deg[i], table.dec_deg[i]);
+                if !(ra.is_finite() && dec.is_finite()) {
+                    return Err(Error::Usage(format!(
+                        "catalog \"{}\": source \"{}\" has no finite position",
+                        table.name, table.source_id[i]
+                    )));
+                }
+                let (mut pmra, mut pmdec) = (table.pmra_cosdec_masyr[i], table.pmdec_masyr[i]);
+                let epoch = table.epoch_yr[i];
+                if !(pmra.is_finite() && pmdec.is_finite() && epoch.is_finite()) {
+                    (pmra, pmdec) = (f64::NAN, f64::NAN);
+                } else if epoch != config.reference_epoch_yr {
+                    (ra, dec) =
+                        propagate_deg(ra, dec, pmra, pmdec, config.reference_epoch_yr - epoch);
+                }
+                let (a, b, pa) = (
+                    table.err_major_arcsec[i],
+                    table.err_minor_arcsec[i],
+                    table.err_pa_deg[i],
+                );
+                s.catalog.push(c as u16);
+                s.row.push(r);
+                s.ra_deg.push(ra);
+                s.dec_deg.push(dec);
+                s.epoch_yr.push(epoch);
+                s.pm_masyr.push((pmra, pmdec));
+                s.vec.push(radec_deg_to_vec(ra, dec));
+                s.cov.push(Covariance::from_ellipse(a, b, pa));
+                s.sigma_rad
+                    .push(circularized_sigma_arcsec(a, b, sys) * RAD_PER_ARCSEC);
+            }
+        }
+        s.catalog_start.push(s.len());
+        Ok(s)
+    }
+
+    /// True when source `i` has a proper motion.
+    pub fn has_pm(&self, i: usize) -> bool {
+        !self.pm_masyr[i].0.is_nan()
+    }
+
+    /// Positions of sources `a` and `b` at a common epoch: both as stored when
+    /// both or neither have a proper motion; otherwise the moving one is carried
+    /// from the reference epoch to the other's epoch of observation.
+    pub fn position_for_pair(
+        &self,
+        a: usize,
+        b: usize,
+        reference_epoch_yr: f64,
+    ) -> ((f64, f64), (f64, f64)) {
+        let stored = |i: usize| (self.ra_deg[i], self.dec_deg[i]);
+        let moved = |i: usize, to_epoch: f64| {
+            let (pmra, pmdec) = self.pm_masyr[i];
+            propagate_deg(
+                self.ra_deg[i],
+                self.dec_deg[i],
+                pmra,
+                pmdec,
+                to_epoch - reference_epoch_yr,
+            )
+        };
+        match (self.has_pm(a), self.has_pm(b)) {
+            (true, false) if self.epoch_yr[b].is_finite() => {
+                (moved(a, self.epoch_yr[b]), stored(b))
+            }
+            (false, true) if self.epoch_yr[a].is_finite() => {
+                (stored(a), moved(b, self.epoch_yr[a]))
+            }
+            _ => (stored(a), stored(b)),
+        }
+    }
+
+    /// Number of sources of catalog `c`.
+    pub fn catalog_len(&self, c: usize) -> usize {
+        self.catalog_start[c + 1] - self.catalog_start[c]
+    }
+}
