@@ -229,8 +229,10 @@ fn fluxloom_read(path: &Path, schema: &SurveySchema) -> usize {
     let mut normalizer = Normalizer::new(schema, path, NormalizeOptions::default());
     normalizer.check_file(&stream.schema).unwrap();
     let mut rows = 0;
-    for batch in stream.batches {
-        rows += normalizer.normalize(&batch.unwrap()).unwrap().num_rows();
-    }
+    fluxloom::cli::vet::for_each_normalized(stream, &mut normalizer, |b| {
+        rows += b.num_rows();
+        Ok(())
+    })
+    .unwrap();
     rows
 }

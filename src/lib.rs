@@ -20,6 +20,8 @@ pub mod crossmatch;
 pub mod error;
 pub mod output;
 pub mod photometry;
+pub mod plan;
+pub mod sed;
 pub mod sky;
 
 pub use error::{Error, Result};

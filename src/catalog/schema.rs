@@ -36,7 +36,7 @@ use serde::Deserialize;
 use toml::Spanned;
 
 use crate::error::{Error, Result, line_of_offset};
-use crate::photometry::{Band, BandLibrary, LimitRule, ValueUnit};
+use crate::photometry::{AB_ZERO_POINT_JY, Band, BandLibrary, Conversion, LimitRule, ValueUnit};
 
 /// How the catalog file is encoded.
 #[derive(Debug, Clone, PartialEq)]
@@ -306,6 +306,28 @@ impl BandColumns {
     pub fn has_flux(&self) -> bool {
         !matches!(self.unit, ValueUnit::VegaMag) || self.band.zero_point_jy.is_some()
     }
+
+    /// The conversion of this band's values to Jy; `None` for a magnitude-only band.
+    pub fn conversion(&self) -> Option<Conversion> {
+        self.has_flux().then(|| Conversion {
+            unit: self.unit,
+            // Vega and asinh magnitudes use the band zero point; AB magnitudes use
+            // 3631 Jy by definition and flux units none. A band without a zero
+            // point is read only as Vega magnitudes and has no conversion.
+            zero_point_jy: self.band.zero_point_jy.unwrap_or(AB_ZERO_POINT_JY),
+            offset_mag: self.offset_mag,
+            softening: self.softening,
+        })
+    }
+
+    /// A value in this band's unit expressed in the output unit: Jy, or (for a
+    /// magnitude-only band) the magnitude with the offset applied.
+    pub fn to_output(&self, value: f64) -> f64 {
+        match self.conversion() {
+            Some(c) => c.value_to_flux_jy(value),
+            None => value + self.offset_mag,
+        }
+    }
 }
 
 /// A validated survey schema.
@@ -431,7 +453,8 @@ impl SurveySchema {
     }
 }
 
-fn line_of_key(text: &str, key: &str) -> usize {
+/// The 1-based line of `text` where `key = ...` is first set, or 0.
+pub fn line_of_key(text: &str, key: &str) -> usize {
     text.lines()
         .position(|l| {
             let t = l.trim_start();

@@ -14,9 +14,10 @@ use super::bands::load_library;
 use super::progress::row_counter;
 use crate::catalog::normalize::{BandStatus, NormalizeOptions, NormalizeReport, Normalizer};
 use crate::catalog::schema::SurveySchema;
-use crate::catalog::{DEFAULT_BATCH_ROWS, open, prefetch};
+use crate::catalog::{CatalogBatches, DEFAULT_BATCH_ROWS, open, prefetch};
 use crate::error::{Error, Result};
 use crate::output::parquet::ParquetOutput;
+use arrow::array::RecordBatch;
 
 /// Arguments of `fluxloom vet`.
 #[derive(Debug, Args)]
@@ -96,19 +97,48 @@ pub fn vet_catalog(
         None => None,
     };
     let bar = row_counter(&format!("reading {}", catalog.display()), quiet);
-    for batch in stream.batches {
-        let normalized = normalizer.normalize(&batch?)?;
+    for_each_normalized(stream, &mut normalizer, |normalized| {
         bar.inc(normalized.num_rows() as u64);
-        if let Some(o) = output.as_mut() {
-            o.write(&normalized)?;
+        match output.as_mut() {
+            Some(o) => o.write(&normalized),
+            None => Ok(()),
         }
-    }
+    })?;
     bar.finish_and_clear();
     let written = match (output, out) {
         (Some(o), Some(path)) => Some((path.to_path_buf(), o.finish()?)),
         _ => None,
     };
     Ok((normalizer.finish(), written))
+}
+
+/// Feeds the stream's batches to `normalizer` a few at a time (normalized in
+/// parallel) and hands each normalized batch, in file order, to `sink`.
+///
+/// # Errors
+/// Read errors, normalization errors, and whatever `sink` returns.
+pub fn for_each_normalized(
+    stream: CatalogBatches,
+    normalizer: &mut Normalizer,
+    mut sink: impl FnMut(RecordBatch) -> Result<()>,
+) -> Result<()> {
+    let chunk = 2 * rayon::current_num_threads().max(1);
+    let mut pending: Vec<RecordBatch> = Vec::with_capacity(chunk);
+    let mut batches = stream.batches;
+    loop {
+        let next = batches.next().transpose()?;
+        let done = next.is_none();
+        pending.extend(next);
+        if pending.len() == chunk || (done && !pending.is_empty()) {
+            for normalized in normalizer.normalize_many(&pending)? {
+                sink(normalized)?;
+            }
+            pending.clear();
+        }
+        if done {
+            return Ok(());
+        }
+    }
 }
 
 /// Key-value metadata of a normalized table: the survey schema text and the bands used.

@@ -258,6 +258,32 @@ mod tests {
         assert_eq!(field("x#1"), "x#1");
     }
 
+    fn float(v: f64) -> String {
+        let mut line = String::new();
+        write_float(&mut line, v, v != 0.0 && !(1e-5..1e16).contains(&v.abs())).unwrap();
+        line
+    }
+
+    #[test]
+    fn floats_use_the_fewest_digits_that_read_back() {
+        for (v, text) in [
+            (0.1, "0.1"),
+            (-0.0, "-0"),
+            (1e-5, "0.00001"),
+            (9.999e-6, "9.999e-6"),
+            (1e16, "1e16"),
+            (123456789012345.6, "123456789012345.6"),
+            (5e-324, "5e-324"),
+            (f64::NAN, "NaN"),
+            (f64::NEG_INFINITY, "-inf"),
+        ] {
+            assert_eq!(float(v), text);
+            if v.is_finite() {
+                assert_eq!(text.parse::<f64>().unwrap().to_bits(), v.to_bits());
+            }
+        }
+    }
+
     #[test]
     fn only_listed_types_are_exportable() {
         assert!(is_exportable(&DataType::LargeUtf8));

@@ -50,7 +50,7 @@
 //! use fluxloom::output::fits::write_fits;
 //!
 //! let field = Field::new("flux_jy", DataType::Float64, true)
-//!     .with_metadata([("unit".to_string(), "Jy".to_string())].into());
+//!     .with_metadata([("unit", "Jy")]);
 //! let schema = Arc::new(Schema::new(vec![field]));
 //! let batch = RecordBatch::try_new(
 //!     schema.clone(),

@@ -5,4 +5,6 @@ pub mod atomic;
 pub mod csv;
 pub mod fits;
 pub mod parquet;
+pub mod staging;
+pub mod tables;
 pub mod votable;

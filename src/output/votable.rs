@@ -39,7 +39,7 @@
 //! use fluxloom::output::votable::write_votable;
 //!
 //! let field = Field::new("flux_jy", DataType::Float64, true)
-//!     .with_metadata([("unit".to_string(), "Jy".to_string())].into());
+//!     .with_metadata([("unit", "Jy")]);
 //! let schema = Arc::new(Schema::new(vec![field]));
 //! let batch = RecordBatch::try_new(
 //!     schema.clone(),

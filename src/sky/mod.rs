@@ -41,6 +41,7 @@
 //!   propagation of space motion.
 //! - Calabretta & Greisen 2002, A&A 395, 1077 (from memory): the gnomonic (TAN) projection.
 
+pub mod coverage;
 pub mod partition;
 pub mod propagation;
 pub mod separation;

@@ -48,6 +48,7 @@ use arrow::array::{
 };
 use arrow::buffer::NullBuffer;
 use arrow::datatypes::{DataType, Field, Schema, SchemaRef};
+use rayon::prelude::*;
 
 pub use columns::{NotANumber, NumberColumn, TextColumn};
 pub use report::{BandCounts, BandStatus, NormalizeReport, Problem};
@@ -102,26 +103,16 @@ impl RowProblem {
 impl Normalizer {
     /// A normalizer for the catalog at `path` described by `schema`.
     pub fn new(schema: &SurveySchema, path: &Path, options: NormalizeOptions) -> Normalizer {
-        let report = NormalizeReport {
-            survey: schema.survey.clone(),
-            bands: schema
-                .bands
-                .iter()
-                .map(|b| BandCounts {
-                    band: b.band.id.clone(),
-                    ..BandCounts::default()
-                })
-                .collect(),
-            ..NormalizeReport::default()
-        };
-        Normalizer {
+        let mut normalizer = Normalizer {
             output: output_schema(schema),
             schema: schema.clone(),
             path: path.to_path_buf(),
             options,
-            report,
+            report: NormalizeReport::default(),
             rows_seen: 0,
-        }
+        };
+        normalizer.report = normalizer.empty_report();
+        normalizer
     }
 
     /// The Arrow schema of the normalized batches.
@@ -190,10 +181,49 @@ impl Normalizer {
     /// Without skipping, the first unreadable value as [`Error::BadValue`] naming
     /// its row and column; a missing column as [`Error::MissingColumn`].
     pub fn normalize(&mut self, batch: &RecordBatch) -> Result<RecordBatch> {
-        let n = batch.num_rows();
         let first_row = self.rows_seen + 1;
-        self.rows_seen += n as u64;
-        self.report.rows_read += n as u64;
+        self.rows_seen += batch.num_rows() as u64;
+        let (out, part) = self.normalize_at(batch, first_row)?;
+        self.report.absorb(part);
+        Ok(out)
+    }
+
+    /// Normalizes several consecutive batches of the file at once, in parallel;
+    /// the result and the counts are the same as one [`Normalizer::normalize`] call
+    /// per batch, in order.
+    ///
+    /// # Errors
+    /// As [`Normalizer::normalize`]; the error of the earliest failing batch.
+    pub fn normalize_many(&mut self, batches: &[RecordBatch]) -> Result<Vec<RecordBatch>> {
+        let mut first_rows = Vec::with_capacity(batches.len());
+        for b in batches {
+            first_rows.push(self.rows_seen + 1);
+            self.rows_seen += b.num_rows() as u64;
+        }
+        let parts: Vec<Result<(RecordBatch, NormalizeReport)>> = batches
+            .par_iter()
+            .zip(first_rows)
+            .map(|(b, first)| self.normalize_at(b, first))
+            .collect();
+        let mut out = Vec::with_capacity(parts.len());
+        for part in parts {
+            let (batch, report) = part?;
+            self.report.absorb(report);
+            out.push(batch);
+        }
+        Ok(out)
+    }
+
+    /// Normalizes one batch whose first row is data row `first_row` of the file,
+    /// returning the batch and its own counts.
+    fn normalize_at(
+        &self,
+        batch: &RecordBatch,
+        first_row: u64,
+    ) -> Result<(RecordBatch, NormalizeReport)> {
+        let n = batch.num_rows();
+        let mut report = self.empty_report();
+        report.rows_read = n as u64;
         let inputs = RowInputs::new(&self.schema, batch, &self.path)?;
         let bands: Vec<BandInput> = self
             .schema
@@ -201,85 +231,105 @@ impl Normalizer {
             .iter()
             .map(|spec| BandInput::new(spec, batch, &self.path))
             .collect::<Result<_>>()?;
+        let skip = self.options.skip_bad_rows;
+        let bad_value = |i: usize, p: RowProblem| Error::BadValue {
+            path: self.path.clone(),
+            row: first_row + i as u64,
+            column: p.column,
+            expected: p.expected,
+            found: p.found,
+        };
+        let mut problems: Vec<Problem> = Vec::new();
 
+        // Row-level fields first; in strict mode stop at the first bad row, but
+        // report a band problem of an earlier row if there is one (below).
         let mut out = RowBuilders::new(n, &self.schema.survey);
-        let mut band_out: Vec<BandBuilders> =
-            bands.iter().map(|b| BandBuilders::new(n, b.spec)).collect();
-
-        let mut outcomes = Vec::with_capacity(bands.len());
+        let mut kept: Vec<u32> = Vec::with_capacity(n);
+        let mut row_error: Option<(usize, RowProblem)> = None;
         for i in 0..n {
-            let row = first_row + i as u64;
-            let fields = match inputs.read(i, &self.schema) {
-                Ok(f) => f,
-                Err(p) => {
-                    if !self.options.skip_bad_rows {
-                        return Err(Error::BadValue {
-                            path: self.path.clone(),
-                            row,
-                            column: p.column,
-                            expected: p.expected,
-                            found: p.found,
-                        });
-                    }
+            match inputs.read(i, &self.schema) {
+                Ok(fields) => {
+                    out.append(first_row + i as u64, &fields);
+                    kept.push(i as u32);
+                }
+                Err(p) if skip => {
                     let reason = format!("column \"{}\": expected {}", p.column, p.expected);
-                    *self.report.rows_skipped.entry(reason).or_insert(0) += 1;
-                    self.report.record_problem(Problem {
-                        row,
+                    *report.rows_skipped.entry(reason).or_insert(0) += 1;
+                    problems.push(Problem {
+                        row: first_row + i as u64,
                         column: p.column,
                         expected: p.expected,
                         found: p.found,
                         action: "row skipped".into(),
                     });
-                    continue;
                 }
-            };
-            // Bands are evaluated before anything is appended, so a strict-mode
-            // error cannot leave the builders with rows of unequal length.
-            outcomes.clear();
-            for band in bands.iter() {
-                match band.evaluate(i) {
-                    Ok(o) => outcomes.push(o),
-                    Err(p) => {
-                        if !self.options.skip_bad_rows {
-                            return Err(Error::BadValue {
-                                path: self.path.clone(),
-                                row,
-                                column: p.column,
-                                expected: p.expected,
-                                found: p.found,
-                            });
-                        }
-                        self.report.record_problem(Problem {
-                            row,
-                            column: p.column.clone(),
-                            expected: p.expected.clone(),
+                Err(p) => {
+                    row_error = Some((i, p));
+                    break;
+                }
+            }
+        }
+
+        // Then each band over the kept rows, one column at a time.
+        let mut columns = out.finish();
+        let mut band_error: Option<(usize, RowProblem)> = None;
+        for (band, counts) in bands.iter().zip(report.bands.iter_mut()) {
+            let mut cols = BandOutput::new(kept.len(), band.spec.has_flux());
+            for (k, &i) in kept.iter().enumerate() {
+                let i = i as usize;
+                let outcome = match band.evaluate(i) {
+                    Ok(o) => o,
+                    Err(p) if skip => {
+                        let reason = format!("unreadable value in column \"{}\"", p.column);
+                        problems.push(Problem {
+                            row: first_row + i as u64,
+                            column: p.column,
+                            expected: p.expected,
                             found: p.found,
                             action: "band rejected".into(),
                         });
-                        outcomes.push(Outcome::Rejected(format!(
-                            "unreadable value in column \"{}\"",
-                            p.column
-                        )));
+                        Outcome::Rejected(reason)
                     }
-                }
-            }
-            out.append(row, &fields);
-            for ((outcome, builders), counts) in outcomes
-                .drain(..)
-                .zip(band_out.iter_mut())
-                .zip(self.report.bands.iter_mut())
-            {
-                let status = builders.append(outcome, counts);
+                    Err(p) => {
+                        if band_error.as_ref().is_none_or(|(row, _)| i < *row) {
+                            band_error = Some((i, p));
+                        }
+                        break;
+                    }
+                };
+                let status = cols.set(k, outcome, counts);
                 counts.add(status);
             }
-            self.report.rows_kept += 1;
+            columns.extend(cols.finish());
         }
-        let mut columns = out.finish();
-        for b in band_out {
-            columns.extend(b.finish());
+        match (band_error, row_error) {
+            (Some((i, p)), _) | (None, Some((i, p))) => return Err(bad_value(i, p)),
+            (None, None) => {}
         }
-        RecordBatch::try_new(self.output.clone(), columns)
-            .map_err(|e| Error::columnar(&self.path, e))
+        problems.sort_by_key(|p| p.row);
+        for p in problems {
+            report.record_problem(p);
+        }
+        report.rows_kept = kept.len() as u64;
+        let out = RecordBatch::try_new(self.output.clone(), columns)
+            .map_err(|e| Error::columnar(&self.path, e))?;
+        Ok((out, report))
+    }
+
+    fn empty_report(&self) -> NormalizeReport {
+        NormalizeReport {
+            survey: self.schema.survey.clone(),
+            bands: self
+                .schema
+                .bands
+                .iter()
+                .map(|b| BandCounts {
+                    band: b.band.id.clone(),
+                    ..BandCounts::default()
+                })
+                .collect(),
+            ..NormalizeReport::default()
+        }
     }
 }
 
@@ -351,9 +401,24 @@ pub fn output_schema(schema: &SurveySchema) -> SchemaRef {
                 ));
             }
         }
-        fields.push(Field::new(format!("{id}_status"), DataType::Utf8, false));
+        fields.push(Field::new(format!("{id}_status"), status_type(), false));
     }
     Arc::new(Schema::new(fields))
+}
+
+/// The type of status columns: text, dictionary-encoded (one byte per row).
+pub fn status_type() -> DataType {
+    DataType::Dictionary(Box::new(DataType::Int8), Box::new(DataType::Utf8))
+}
+
+/// A status column from status codes (indices into `names`).
+pub fn status_column(codes: Vec<i8>, names: &[&str]) -> ArrayRef {
+    let keys = arrow::array::Int8Array::from(codes);
+    let values: ArrayRef = Arc::new(StringArray::from(names.to_vec()));
+    Arc::new(
+        arrow::array::DictionaryArray::<arrow::datatypes::Int8Type>::try_new(keys, values)
+            .expect("status codes index the status names"),
+    )
 }
 
 fn with_unit(field: Field, unit: &str) -> Field {
@@ -704,18 +769,7 @@ struct BandInput<'a> {
 
 impl<'a> BandInput<'a> {
     fn new(spec: &'a BandColumns, batch: &RecordBatch, path: &Path) -> Result<BandInput<'a>> {
-        let conversion = spec.has_flux().then(|| Conversion {
-            unit: spec.unit,
-            // Vega and asinh magnitudes use the band zero point; AB magnitudes use
-            // 3631 Jy by definition and flux units none. A band without a zero
-            // point is read only as Vega magnitudes and has no conversion.
-            zero_point_jy: spec
-                .band
-                .zero_point_jy
-                .unwrap_or(crate::photometry::magnitude::AB_ZERO_POINT_JY),
-            offset_mag: spec.offset_mag,
-            softening: spec.softening,
-        });
+        let conversion = spec.conversion();
         let flag = match &spec.limit {
             Some(LimitMarker::Flag { column, .. }) => Some(text(batch, column, path)?),
             _ => None,
@@ -864,49 +918,56 @@ impl<'a> BandInput<'a> {
     }
 }
 
-/// Output columns of one band, filled row by row: values with validity, and
-/// status codes turned into text at the end.
-struct BandBuilders {
+/// Output columns of one band, written by row index into preallocated
+/// columns; status codes become text at the end.
+struct BandOutput {
     has_flux: bool,
     values: Vec<Vec<f64>>,
     valid: Vec<Vec<bool>>,
     status: Vec<u8>,
 }
 
-impl BandBuilders {
-    fn new(n: usize, spec: &BandColumns) -> BandBuilders {
-        let count = if spec.has_flux() { 5 } else { 3 };
-        BandBuilders {
-            has_flux: spec.has_flux(),
-            values: (0..count).map(|_| Vec::with_capacity(n)).collect(),
-            valid: (0..count).map(|_| Vec::with_capacity(n)).collect(),
-            status: Vec::with_capacity(n),
+impl BandOutput {
+    fn new(n: usize, has_flux: bool) -> BandOutput {
+        let count = if has_flux { 5 } else { 3 };
+        BandOutput {
+            has_flux,
+            values: vec![vec![0.0; n]; count],
+            valid: vec![vec![false; n]; count],
+            status: vec![0; n],
         }
     }
 
-    /// Appends one measurement; returns its status.
     #[inline]
-    fn append(&mut self, outcome: Outcome, counts: &mut BandCounts) -> BandStatus {
+    fn put(&mut self, column: usize, k: usize, value: Option<f64>) {
+        if let Some(v) = value {
+            self.values[column][k] = v;
+            self.valid[column][k] = true;
+        }
+    }
+
+    /// Writes one measurement at row `k`; returns its status.
+    #[inline]
+    fn set(&mut self, k: usize, outcome: Outcome, counts: &mut BandCounts) -> BandStatus {
         // Flux bands: flux, err, lo, hi, ulim. Magnitude bands: mag, err, ulim.
         let ulim = self.values.len() - 1;
-        let mut row = [None; 5];
         let status = match outcome {
             Outcome::Detected(f) => {
-                row[0] = Some(f.flux_jy);
-                row[1] = f.err_jy;
+                self.put(0, k, Some(f.flux_jy));
+                self.put(1, k, f.err_jy);
                 if self.has_flux {
-                    row[2] = f.lo_jy;
-                    row[3] = f.hi_jy;
+                    self.put(2, k, f.lo_jy);
+                    self.put(3, k, f.hi_jy);
                 }
                 BandStatus::Detected
             }
             Outcome::UpperLimit(limit, noise) => {
-                row[1] = noise;
-                row[ulim] = Some(limit);
+                self.put(1, k, noise);
+                self.put(ulim, k, Some(limit));
                 BandStatus::UpperLimit
             }
             Outcome::NotDetected(limit) => {
-                row[ulim] = limit;
+                self.put(ulim, k, limit);
                 BandStatus::NotDetected
             }
             Outcome::Missing => BandStatus::Missing,
@@ -915,11 +976,7 @@ impl BandBuilders {
                 BandStatus::Rejected
             }
         };
-        for ((values, valid), v) in self.values.iter_mut().zip(self.valid.iter_mut()).zip(row) {
-            values.push(v.unwrap_or(0.0));
-            valid.push(v.is_some());
-        }
-        self.status.push(status as u8);
+        self.status[k] = status as u8;
         status
     }
 
@@ -935,11 +992,11 @@ impl BandBuilders {
                 )) as ArrayRef
             })
             .collect();
-        cols.push(Arc::new(StringArray::from_iter_values(
-            self.status
-                .iter()
-                .map(|&s| BandStatus::ALL[s as usize].as_str()),
-        )));
+        let names: Vec<&str> = BandStatus::ALL.iter().map(|s| s.as_str()).collect();
+        cols.push(status_column(
+            self.status.into_iter().map(|s| s as i8).collect(),
+            &names,
+        ));
         cols
     }
 }

@@ -126,6 +126,28 @@ impl NormalizeReport {
         self.rows_skipped.values().sum()
     }
 
+    /// Adds the counts of a later part of the same file.
+    pub(super) fn absorb(&mut self, part: NormalizeReport) {
+        self.rows_read += part.rows_read;
+        self.rows_kept += part.rows_kept;
+        for (reason, count) in part.rows_skipped {
+            *self.rows_skipped.entry(reason).or_insert(0) += count;
+        }
+        for (mine, theirs) in self.bands.iter_mut().zip(part.bands) {
+            for (a, b) in mine.by_status.iter_mut().zip(theirs.by_status) {
+                *a += b;
+            }
+            for (reason, count) in theirs.rejected_by {
+                *mine.rejected_by.entry(reason).or_insert(0) += count;
+            }
+        }
+        let total = self.problem_count + part.problem_count;
+        for p in part.problems {
+            self.record_problem(p);
+        }
+        self.problem_count = total;
+    }
+
     pub(super) fn record_problem(&mut self, problem: Problem) {
         self.problem_count += 1;
         if self.problems.len() < Self::MAX_PROBLEMS {

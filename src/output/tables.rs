@@ -1,0 +1,390 @@
+//! The SED tables as Arrow record batches: objects (wide), photometry (long)
+//! and links (every candidate pair). Column units travel in each field's `unit`
+//! metadata; the column reference is in the README.
+
+use std::collections::HashMap;
+use std::sync::Arc;
+
+use arrow::array::{
+    ArrayRef, BooleanArray, Float64Array, RecordBatch, StringArray, UInt16Array, UInt32Array,
+    UInt64Array,
+};
+use arrow::datatypes::{DataType, Field, Schema, SchemaRef};
+
+use crate::catalog::normalize::{status_column, status_type};
+use crate::crossmatch::{Link, MatchedObject, SourceTable};
+use crate::error::{Error, Result};
+use crate::photometry::flux::nu_fnu_cgs;
+use crate::sed::{BandSlot, Sed, SedStatus};
+
+fn field(name: &str, data_type: DataType, nullable: bool, unit: Option<&str>) -> Field {
+    let f = Field::new(name, data_type, nullable);
+    match unit {
+        Some(u) => f.with_metadata(HashMap::from([("unit".to_string(), u.to_string())])),
+        None => f,
+    }
+}
+
+fn f64s(values: Vec<Option<f64>>) -> ArrayRef {
+    Arc::new(Float64Array::from(values))
+}
+
+fn sed_status_names() -> Vec<&'static str> {
+    SedStatus::ALL.iter().map(|s| s.as_str()).collect()
+}
+
+/// A band of the wide table: its id and the slots (catalogs) that give it.
+struct WideBand<'a> {
+    id: &'a str,
+    has_flux: bool,
+    slots: Vec<usize>,
+}
+
+fn wide_bands(slots: &[BandSlot]) -> Vec<WideBand<'_>> {
+    let mut bands: Vec<WideBand> = Vec::new();
+    for (k, s) in slots.iter().enumerate() {
+        match bands.iter_mut().find(|b| b.id == s.id()) {
+            Some(b) => b.slots.push(k),
+            None => bands.push(WideBand {
+                id: s.id(),
+                has_flux: s.spec.has_flux(),
+                slots: vec![k],
+            }),
+        }
+    }
+    bands
+}
+
+/// Preference when several catalogs give one band: the best status wins, then
+/// the earlier catalog.
+fn status_rank(s: SedStatus) -> u8 {
+    match s {
+        SedStatus::Detected => 0,
+        SedStatus::UpperLimit => 1,
+        SedStatus::Blended => 2,
+        SedStatus::NotDetected => 3,
+        SedStatus::Missing => 4,
+        SedStatus::Rejected => 5,
+        SedStatus::NotCovered => 6,
+    }
+}
+
+/// The objects table: one row per object, with per-catalog members and per-band values.
+///
+/// # Errors
+/// A columnar error if the batch cannot be built.
+pub fn objects_batch(
+    objects: &[MatchedObject],
+    seds: &[Sed],
+    slots: &[BandSlot],
+    tables: &[SourceTable],
+    reference_epoch_yr: f64,
+) -> Result<RecordBatch> {
+    let mut fields = vec![
+        field("object_id", DataType::Utf8, false, None),
+        field("ra_deg", DataType::Float64, false, Some("deg")),
+        field("dec_deg", DataType::Float64, false, Some("deg")),
+        field("pos_err_arcsec", DataType::Float64, false, Some("arcsec")),
+        field("pmra_cosdec_masyr", DataType::Float64, true, Some("mas/yr")),
+        field("pmdec_masyr", DataType::Float64, true, Some("mas/yr")),
+        field("epoch_yr", DataType::Float64, false, Some("yr (Julian)")),
+        field("n_catalogs", DataType::UInt16, false, None),
+        field("n_detected", DataType::UInt16, false, None),
+        field("flags", DataType::UInt32, false, None),
+        field("status", DataType::Utf8, false, None),
+        field("probability", DataType::Float64, false, None),
+        field("related", DataType::Utf8, true, None),
+        field("owner_cell", DataType::UInt64, false, None),
+    ];
+    let opt = |v: f64| (!v.is_nan()).then_some(v);
+    let mut columns: Vec<ArrayRef> = vec![
+        Arc::new(StringArray::from_iter_values(
+            objects.iter().map(|o| o.object_id.as_str()),
+        )),
+        Arc::new(Float64Array::from_iter_values(
+            objects.iter().map(|o| o.ra_deg),
+        )),
+        Arc::new(Float64Array::from_iter_values(
+            objects.iter().map(|o| o.dec_deg),
+        )),
+        Arc::new(Float64Array::from_iter_values(
+            objects.iter().map(|o| o.pos_err_arcsec),
+        )),
+        f64s(objects.iter().map(|o| opt(o.pmra_cosdec_masyr)).collect()),
+        f64s(objects.iter().map(|o| opt(o.pmdec_masyr)).collect()),
+        Arc::new(Float64Array::from_iter_values(
+            objects.iter().map(|_| reference_epoch_yr),
+        )),
+        Arc::new(UInt16Array::from_iter_values(
+            objects.iter().map(|o| o.members.len() as u16),
+        )),
+        Arc::new(UInt16Array::from_iter_values(seds.iter().map(|s| {
+            s.points
+                .iter()
+                .filter(|p| p.status == SedStatus::Detected)
+                .count() as u16
+        }))),
+        Arc::new(UInt32Array::from_iter_values(
+            objects.iter().map(|o| o.flags),
+        )),
+        Arc::new(StringArray::from_iter_values(
+            objects.iter().map(|o| o.status()),
+        )),
+        Arc::new(Float64Array::from_iter_values(
+            objects.iter().map(|o| o.probability),
+        )),
+        Arc::new(StringArray::from(
+            objects
+                .iter()
+                .map(|o| (!o.related.is_empty()).then(|| o.related.join(",")))
+                .collect::<Vec<_>>(),
+        )),
+        Arc::new(UInt64Array::from_iter_values(
+            objects.iter().map(|o| o.owner_cell),
+        )),
+    ];
+    for (c, table) in tables.iter().enumerate() {
+        let name = &table.name;
+        fields.push(field(
+            &format!("{name}_source_id"),
+            DataType::Utf8,
+            true,
+            None,
+        ));
+        fields.push(field(
+            &format!("{name}_sep_arcsec"),
+            DataType::Float64,
+            true,
+            Some("arcsec"),
+        ));
+        fields.push(field(
+            &format!("{name}_probability"),
+            DataType::Float64,
+            true,
+            None,
+        ));
+        columns.push(Arc::new(StringArray::from(
+            objects
+                .iter()
+                .map(|o| o.member(c).map(|m| table.source_id[m.row].as_str()))
+                .collect::<Vec<_>>(),
+        )));
+        columns.push(f64s(
+            objects
+                .iter()
+                .map(|o| o.member(c).map(|m| m.sep_arcsec))
+                .collect(),
+        ));
+        columns.push(f64s(
+            objects
+                .iter()
+                .map(|o| o.member(c).map(|m| m.probability))
+                .collect(),
+        ));
+    }
+    let names = sed_status_names();
+    for band in wide_bands(slots) {
+        // For each object, the slot whose point is used.
+        let chosen: Vec<usize> = seds
+            .iter()
+            .map(|s| {
+                *band
+                    .slots
+                    .iter()
+                    .min_by_key(|&&k| status_rank(s.points[k].status))
+                    .expect("a band has a slot")
+            })
+            .collect();
+        let (value, err, ulim, unit) = if band.has_flux {
+            ("flux_jy", "flux_err_jy", "ulim_jy", "Jy")
+        } else {
+            ("mag", "mag_err", "ulim_mag", "mag (Vega)")
+        };
+        let id = band.id;
+        for (suffix, pick) in [
+            (
+                value,
+                (|p: &crate::sed::SedPoint| p.value) as fn(&crate::sed::SedPoint) -> Option<f64>,
+            ),
+            (err, |p| p.err),
+            (ulim, |p| p.ulim),
+        ] {
+            fields.push(field(
+                &format!("{id}_{suffix}"),
+                DataType::Float64,
+                true,
+                Some(unit),
+            ));
+            columns.push(f64s(
+                seds.iter()
+                    .zip(&chosen)
+                    .map(|(s, &k)| pick(&s.points[k]))
+                    .collect(),
+            ));
+        }
+        fields.push(field(&format!("{id}_status"), status_type(), false, None));
+        columns.push(status_column(
+            seds.iter()
+                .zip(&chosen)
+                .map(|(s, &k)| s.points[k].status as i8)
+                .collect(),
+            &names,
+        ));
+        if band.slots.len() > 1 {
+            fields.push(field(&format!("{id}_catalog"), DataType::Utf8, false, None));
+            columns.push(Arc::new(StringArray::from_iter_values(
+                chosen.iter().map(|&k| slots[k].catalog_name.as_str()),
+            )));
+        }
+    }
+    let schema: SchemaRef = Arc::new(Schema::new(fields));
+    RecordBatch::try_new(schema, columns).map_err(|e| Error::Usage(format!("objects table: {e}")))
+}
+
+/// The photometry table: one row per object and band of each catalog, with the
+/// wavelength, ready for a fitter.
+///
+/// # Errors
+/// A columnar error if the batch cannot be built.
+pub fn photometry_batch(
+    objects: &[MatchedObject],
+    seds: &[Sed],
+    slots: &[BandSlot],
+    tables: &[SourceTable],
+) -> Result<RecordBatch> {
+    let n = objects.len() * slots.len();
+    let mut object_id = Vec::with_capacity(n);
+    let mut catalog = Vec::with_capacity(n);
+    let mut source_id: Vec<Option<&str>> = Vec::with_capacity(n);
+    let mut band = Vec::with_capacity(n);
+    let mut system = Vec::with_capacity(n);
+    let mut wavelength = Vec::with_capacity(n);
+    let mut zero_point = Vec::with_capacity(n);
+    let mut cols: [Vec<Option<f64>>; 9] = Default::default();
+    let mut status = Vec::with_capacity(n);
+    for (o, sed) in objects.iter().zip(seds) {
+        for (slot, p) in slots.iter().zip(&sed.points) {
+            object_id.push(o.object_id.as_str());
+            catalog.push(slot.catalog_name.as_str());
+            source_id.push(
+                o.member(slot.catalog)
+                    .map(|m| tables[slot.catalog].source_id[m.row].as_str()),
+            );
+            band.push(slot.id());
+            system.push(slot.spec.band.system.as_str());
+            wavelength.push(slot.spec.band.wavelength_um);
+            zero_point.push(slot.spec.band.zero_point_jy);
+            // Flux bands fill the Jy columns; magnitude-only bands the magnitude columns.
+            let flux = slot.spec.has_flux();
+            let as_flux = |v: Option<f64>| if flux { v } else { None };
+            let as_mag = |v: Option<f64>| if flux { None } else { v };
+            cols[0].push(as_flux(p.value));
+            cols[1].push(as_flux(p.err));
+            cols[2].push(as_flux(p.lo));
+            cols[3].push(as_flux(p.hi));
+            cols[4].push(as_flux(p.ulim));
+            cols[5].push(as_flux(p.value).map(|v| nu_fnu_cgs(v, slot.spec.band.wavelength_um)));
+            cols[6].push(as_mag(p.value));
+            cols[7].push(as_mag(p.err));
+            cols[8].push(as_mag(p.ulim));
+            status.push(p.status as i8);
+        }
+    }
+    let mut fields = vec![
+        field("object_id", DataType::Utf8, false, None),
+        field("catalog", DataType::Utf8, false, None),
+        field("source_id", DataType::Utf8, true, None),
+        field("band", DataType::Utf8, false, None),
+        field("system", DataType::Utf8, false, None),
+        field("wavelength_um", DataType::Float64, false, Some("um")),
+        field("zero_point_jy", DataType::Float64, true, Some("Jy")),
+    ];
+    for (name, unit) in [
+        ("flux_jy", "Jy"),
+        ("flux_err_jy", "Jy"),
+        ("flux_lo_jy", "Jy"),
+        ("flux_hi_jy", "Jy"),
+        ("ulim_jy", "Jy"),
+        ("nufnu_cgs", "erg s-1 cm-2"),
+        ("mag", "mag (Vega)"),
+        ("mag_err", "mag"),
+        ("ulim_mag", "mag (Vega)"),
+    ] {
+        fields.push(field(name, DataType::Float64, true, Some(unit)));
+    }
+    fields.push(field("status", status_type(), false, None));
+    let mut columns: Vec<ArrayRef> = vec![
+        Arc::new(StringArray::from(object_id)),
+        Arc::new(StringArray::from(catalog)),
+        Arc::new(StringArray::from(source_id)),
+        Arc::new(StringArray::from(band)),
+        Arc::new(StringArray::from(system)),
+        Arc::new(Float64Array::from(wavelength)),
+        f64s(zero_point),
+    ];
+    columns.extend(cols.into_iter().map(f64s));
+    columns.push(status_column(status, &sed_status_names()));
+    RecordBatch::try_new(Arc::new(Schema::new(fields)), columns)
+        .map_err(|e| Error::Usage(format!("photometry table: {e}")))
+}
+
+/// The links table: every candidate pair, chosen or not.
+///
+/// # Errors
+/// A columnar error if the batch cannot be built.
+pub fn links_batch(links: &[Link], tables: &[SourceTable]) -> Result<RecordBatch> {
+    let fields = vec![
+        field("object_a", DataType::Utf8, false, None),
+        field("object_b", DataType::Utf8, false, None),
+        field("catalog_a", DataType::Utf8, false, None),
+        field("source_id_a", DataType::Utf8, false, None),
+        field("catalog_b", DataType::Utf8, false, None),
+        field("source_id_b", DataType::Utf8, false, None),
+        field("sep_arcsec", DataType::Float64, false, Some("arcsec")),
+        field("norm_dist", DataType::Float64, false, None),
+        field("ln_bayes", DataType::Float64, false, None),
+        field("probability", DataType::Float64, false, None),
+        field("chosen", DataType::Boolean, false, None),
+    ];
+    let columns: Vec<ArrayRef> = vec![
+        Arc::new(StringArray::from_iter_values(
+            links.iter().map(|l| l.object_a.as_str()),
+        )),
+        Arc::new(StringArray::from_iter_values(
+            links.iter().map(|l| l.object_b.as_str()),
+        )),
+        Arc::new(StringArray::from_iter_values(
+            links.iter().map(|l| tables[l.catalog_a].name.as_str()),
+        )),
+        Arc::new(StringArray::from_iter_values(
+            links
+                .iter()
+                .map(|l| tables[l.catalog_a].source_id[l.row_a].as_str()),
+        )),
+        Arc::new(StringArray::from_iter_values(
+            links.iter().map(|l| tables[l.catalog_b].name.as_str()),
+        )),
+        Arc::new(StringArray::from_iter_values(
+            links
+                .iter()
+                .map(|l| tables[l.catalog_b].source_id[l.row_b].as_str()),
+        )),
+        Arc::new(Float64Array::from_iter_values(
+            links.iter().map(|l| l.sep_arcsec),
+        )),
+        Arc::new(Float64Array::from_iter_values(
+            links.iter().map(|l| l.norm_dist),
+        )),
+        Arc::new(Float64Array::from_iter_values(
+            links.iter().map(|l| l.ln_bayes),
+        )),
+        Arc::new(Float64Array::from_iter_values(
+            links.iter().map(|l| l.probability),
+        )),
+        Arc::new(BooleanArray::from(
+            links.iter().map(|l| l.chosen).collect::<Vec<_>>(),
+        )),
+    ];
+    RecordBatch::try_new(Arc::new(Schema::new(fields)), columns)
+        .map_err(|e| Error::Usage(format!("links table: {e}")))
+}

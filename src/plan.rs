@@ -1,0 +1,420 @@
+//! The plan file: which catalogs to read with which survey schemas, how to match
+//! them, and where to write the SED tables.
+//!
+//! [`Plan::from_file`] parses and validates a plan; relative paths are taken from
+//! the plan file's folder, and every error names the plan line. The shape (full
+//! reference in the README):
+//!
+//! ```toml
+//! [field]
+//! name = "fl1"
+//! reference_epoch = 2016.0
+//!
+//! [match]
+//! tolerance = { kind = "sigma", k = 3.439, max_arcsec = 5.0 }
+//! astrometric_reference = "ask"
+//!
+//! [[catalog]]
+//! file = "ask.parquet"
+//! schema = "ask.toml"
+//!
+//! [output]
+//! folder = "out/fl1"
+//! ```
+
+use std::path::{Path, PathBuf};
+
+use serde::Deserialize;
+use toml::Spanned;
+
+use crate::catalog::schema::SurveySchema;
+use crate::crossmatch::{CatalogSettings, MatchConfig, Tolerance};
+use crate::error::{Error, Result, line_of_offset};
+use crate::photometry::BandLibrary;
+
+/// One catalog of the plan, with its validated schema.
+#[derive(Debug, Clone)]
+pub struct PlanCatalog {
+    /// Catalog name (the schema's survey name).
+    pub name: String,
+    /// The catalog file.
+    pub file: PathBuf,
+    /// The survey schema.
+    pub schema: SurveySchema,
+    /// Matching settings of this catalog.
+    pub settings: CatalogSettings,
+    /// A coverage map (IVOA MOC, FITS or ASCII), if given.
+    pub coverage: Option<PathBuf>,
+    /// HEALPix order of the coverage derived from positions when no MOC is given
+    /// (None: chosen from the source density).
+    pub coverage_order: Option<u8>,
+}
+
+/// Export formats besides Parquet.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum ExportFormat {
+    /// Comma-separated text.
+    Csv,
+    /// FITS binary table.
+    Fits,
+    /// IVOA VOTable (BINARY2).
+    Votable,
+}
+
+/// A validated plan.
+#[derive(Debug, Clone)]
+pub struct Plan {
+    /// Field name, used in file metadata.
+    pub field: String,
+    /// The catalogs, in plan order (which is also the priority order of anchors).
+    pub catalogs: Vec<PlanCatalog>,
+    /// Match settings (one entry per catalog).
+    pub matching: MatchConfig,
+    /// Field area for the prior, steradians (None: estimated per catalog).
+    pub area_sr: Option<f64>,
+    /// Catalog used as the astrometric reference.
+    pub astrometric_reference: Option<usize>,
+    /// Correct catalogs' offsets against the reference before the final match.
+    pub correct_offsets: bool,
+    /// Estimate false-match rates by shifted catalogs.
+    pub false_matches: bool,
+    /// Output folder.
+    pub output: PathBuf,
+    /// Exports besides Parquet.
+    pub exports: Vec<ExportFormat>,
+    /// Skip unreadable rows (counted) instead of stopping.
+    pub skip_bad_rows: bool,
+    /// The plan file.
+    pub path: PathBuf,
+    /// The plan text, kept for run.json and output metadata.
+    pub text: String,
+}
+
+#[derive(Deserialize)]
+#[serde(deny_unknown_fields)]
+struct RawPlan {
+    field: RawField,
+    #[serde(rename = "match", default)]
+    matching: Option<RawMatch>,
+    catalog: Vec<Spanned<RawCatalog>>,
+    output: RawOutput,
+    bands: Option<String>,
+}
+
+#[derive(Deserialize)]
+#[serde(deny_unknown_fields)]
+struct RawField {
+    name: String,
+    reference_epoch: Spanned<f64>,
+    area_deg2: Option<Spanned<f64>>,
+}
+
+#[derive(Deserialize, Default)]
+#[serde(deny_unknown_fields)]
+struct RawMatch {
+    tolerance: Option<Spanned<RawTolerance>>,
+    min_probability: Option<Spanned<f64>>,
+    common_fraction: Option<Spanned<f64>>,
+    partition_order: Option<Spanned<u8>>,
+    primary: Option<Vec<Spanned<String>>>,
+    astrometric_reference: Option<Spanned<String>>,
+    correct_offsets: Option<bool>,
+    false_matches: Option<bool>,
+    #[serde(default)]
+    pair: Vec<Spanned<RawPair>>,
+}
+
+#[derive(Deserialize)]
+#[serde(deny_unknown_fields)]
+struct RawTolerance {
+    kind: String,
+    arcsec: Option<f64>,
+    k: Option<f64>,
+    max_arcsec: Option<f64>,
+}
+
+#[derive(Deserialize)]
+#[serde(deny_unknown_fields)]
+struct RawPair {
+    catalogs: Vec<String>,
+    tolerance: Spanned<RawTolerance>,
+}
+
+#[derive(Deserialize)]
+#[serde(deny_unknown_fields)]
+struct RawCatalog {
+    file: String,
+    schema: String,
+    systematic_arcsec: Option<f64>,
+    resolution_arcsec: Option<f64>,
+    coverage: Option<String>,
+    coverage_order: Option<u8>,
+}
+
+#[derive(Deserialize)]
+#[serde(deny_unknown_fields)]
+struct RawOutput {
+    folder: String,
+    #[serde(default)]
+    exports: Vec<Spanned<String>>,
+    skip_bad_rows: Option<bool>,
+}
+
+impl Plan {
+    /// Reads and validates the plan at `path`, with the survey schemas it names.
+    ///
+    /// # Errors
+    /// [`Error::Toml`] for a file that does not parse, [`Error::Config`] naming the
+    /// plan line for an impossible value, and any schema or band-file error.
+    pub fn from_file(path: &Path) -> Result<Plan> {
+        let text = std::fs::read_to_string(path).map_err(|e| Error::io(path, e))?;
+        let raw: RawPlan = toml::from_str(&text).map_err(|e| Error::Toml {
+            path: path.to_path_buf(),
+            message: e.to_string().trim_end().replace('\n', " "),
+        })?;
+        let base = path.parent().map(Path::to_path_buf).unwrap_or_default();
+        let resolve = |p: &str| -> PathBuf {
+            let p = PathBuf::from(p);
+            if p.is_absolute() { p } else { base.join(p) }
+        };
+        let err = |span: std::ops::Range<usize>, message: String| {
+            Error::config(path, line_of_offset(&text, span.start), message)
+        };
+        let mut library = BandLibrary::builtin();
+        if let Some(bands) = &raw.bands {
+            library.load_user_file(&resolve(bands))?;
+        }
+        let epoch = *raw.field.reference_epoch.get_ref();
+        if !(1800.0..=2200.0).contains(&epoch) {
+            return Err(err(
+                raw.field.reference_epoch.span(),
+                format!(
+                    "reference_epoch {epoch} is implausible; expected a Julian year such as 2016.0"
+                ),
+            ));
+        }
+        let mut catalogs: Vec<PlanCatalog> = Vec::new();
+        for c in &raw.catalog {
+            let rc = c.get_ref();
+            let schema = SurveySchema::from_file(&resolve(&rc.schema), &library)?;
+            if catalogs.iter().any(|k| k.name == schema.survey) {
+                return Err(err(
+                    c.span(),
+                    format!(
+                        "two catalogs use survey name \"{}\"; each catalog needs its own survey name",
+                        schema.survey
+                    ),
+                ));
+            }
+            for (value, key) in [
+                (rc.systematic_arcsec, "systematic_arcsec"),
+                (rc.resolution_arcsec, "resolution_arcsec"),
+            ] {
+                if let Some(v) = value
+                    && !(v >= 0.0 && v.is_finite())
+                {
+                    return Err(err(
+                        c.span(),
+                        format!("{key} must be a non-negative number of arcsec, found {v}"),
+                    ));
+                }
+            }
+            if let Some(o) = rc.coverage_order
+                && o > 29
+            {
+                return Err(err(
+                    c.span(),
+                    format!("coverage_order {o} is beyond HEALPix order 29"),
+                ));
+            }
+            catalogs.push(PlanCatalog {
+                name: schema.survey.clone(),
+                file: resolve(&rc.file),
+                schema,
+                settings: CatalogSettings {
+                    systematic_arcsec: rc.systematic_arcsec.unwrap_or(0.0),
+                    resolution_arcsec: rc.resolution_arcsec,
+                },
+                coverage: rc.coverage.as_deref().map(resolve),
+                coverage_order: rc.coverage_order,
+            });
+        }
+        if catalogs.is_empty() {
+            return Err(Error::config(path, 0, "the plan lists no [[catalog]]"));
+        }
+        let index_of = |name: &str| catalogs.iter().position(|c| c.name == name);
+        let known = || {
+            catalogs
+                .iter()
+                .map(|c| c.name.as_str())
+                .collect::<Vec<_>>()
+                .join(", ")
+        };
+
+        let m = raw.matching.unwrap_or_default();
+        let mut matching = MatchConfig::new(catalogs.len(), epoch);
+        matching.catalogs = catalogs.iter().map(|c| c.settings.clone()).collect();
+        if let Some(t) = &m.tolerance {
+            matching.tolerance = tolerance(t, &err)?;
+        }
+        for p in &m.pair {
+            let rp = p.get_ref();
+            let [a, b] = rp.catalogs.as_slice() else {
+                return Err(err(
+                    p.span(),
+                    "a [[match.pair]] names exactly two catalogs".into(),
+                ));
+            };
+            let (Some(ia), Some(ib)) = (index_of(a), index_of(b)) else {
+                return Err(err(
+                    p.span(),
+                    format!(
+                        "[[match.pair]] names \"{a}\" and \"{b}\"; the catalogs are: {}",
+                        known()
+                    ),
+                ));
+            };
+            matching
+                .pair_tolerance
+                .insert((ia.min(ib), ia.max(ib)), tolerance(&rp.tolerance, &err)?);
+        }
+        if let Some(p) = &m.min_probability {
+            let v = *p.get_ref();
+            if !(0.0..=1.0).contains(&v) {
+                return Err(err(
+                    p.span(),
+                    format!("min_probability must lie in [0, 1], found {v}"),
+                ));
+            }
+            matching.min_probability = v;
+        }
+        if let Some(f) = &m.common_fraction {
+            let v = *f.get_ref();
+            if !(v > 0.0 && v <= 1.0) {
+                return Err(err(
+                    f.span(),
+                    format!("common_fraction must lie in (0, 1], found {v}"),
+                ));
+            }
+            matching.common_fraction = v;
+        }
+        if let Some(o) = &m.partition_order {
+            let v = *o.get_ref();
+            if v > 20 {
+                return Err(err(
+                    o.span(),
+                    format!("partition_order {v} is too fine; use 0 to 20"),
+                ));
+            }
+            matching.partition_order = v;
+        }
+        for p in m.primary.iter().flatten() {
+            let Some(i) = index_of(p.get_ref()) else {
+                return Err(err(
+                    p.span(),
+                    format!(
+                        "primary catalog \"{}\" is not in the plan; the catalogs are: {}",
+                        p.get_ref(),
+                        known()
+                    ),
+                ));
+            };
+            matching.primary.push(i);
+        }
+        let astrometric_reference = match &m.astrometric_reference {
+            None => None,
+            Some(r) => Some(index_of(r.get_ref()).ok_or_else(|| {
+                err(
+                    r.span(),
+                    format!(
+                        "astrometric_reference \"{}\" is not in the plan; the catalogs are: {}",
+                        r.get_ref(),
+                        known()
+                    ),
+                )
+            })?),
+        };
+        let correct_offsets = m.correct_offsets.unwrap_or(false);
+        if correct_offsets && astrometric_reference.is_none() {
+            return Err(Error::config(
+                path,
+                crate::catalog::schema::line_of_key(&text, "correct_offsets"),
+                "correct_offsets needs an astrometric_reference to measure offsets against",
+            ));
+        }
+        let area_sr = match &raw.field.area_deg2 {
+            None => None,
+            Some(a) => {
+                let v = *a.get_ref();
+                if !(v > 0.0 && v.is_finite()) {
+                    return Err(err(
+                        a.span(),
+                        format!("area_deg2 must be positive, found {v}"),
+                    ));
+                }
+                Some(v * (std::f64::consts::PI / 180.0).powi(2))
+            }
+        };
+        let mut exports = Vec::new();
+        for e in &raw.output.exports {
+            exports.push(match e.get_ref().as_str() {
+                "csv" => ExportFormat::Csv,
+                "fits" => ExportFormat::Fits,
+                "votable" => ExportFormat::Votable,
+                other => {
+                    return Err(err(
+                        e.span(),
+                        format!("export \"{other}\" is unknown; expected csv, fits or votable"),
+                    ));
+                }
+            });
+        }
+        Ok(Plan {
+            field: raw.field.name,
+            catalogs,
+            matching,
+            area_sr,
+            astrometric_reference,
+            correct_offsets,
+            false_matches: m.false_matches.unwrap_or(true),
+            output: resolve(&raw.output.folder),
+            exports,
+            skip_bad_rows: raw.output.skip_bad_rows.unwrap_or(false),
+            path: path.to_path_buf(),
+            text,
+        })
+    }
+}
+
+fn tolerance(
+    t: &Spanned<RawTolerance>,
+    err: &impl Fn(std::ops::Range<usize>, String) -> Error,
+) -> Result<Tolerance> {
+    let r = t.get_ref();
+    let positive = |v: Option<f64>, key: &str| -> Result<f64> {
+        match v {
+            Some(x) if x > 0.0 && x.is_finite() => Ok(x),
+            Some(x) => Err(err(
+                t.span(),
+                format!("tolerance {key} must be positive, found {x}"),
+            )),
+            None => Err(err(
+                t.span(),
+                format!("tolerance of kind \"{}\" needs \"{key}\"", r.kind),
+            )),
+        }
+    };
+    match r.kind.as_str() {
+        "radius" => Ok(Tolerance::Radius {
+            arcsec: positive(r.arcsec, "arcsec")?,
+        }),
+        "sigma" => Ok(Tolerance::Sigma {
+            k: positive(r.k, "k")?,
+            max_arcsec: positive(r.max_arcsec, "max_arcsec")?,
+        }),
+        other => Err(err(
+            t.span(),
+            format!("tolerance kind \"{other}\" is unknown; expected \"radius\" or \"sigma\""),
+        )),
+    }
+}

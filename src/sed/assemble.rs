@@ -1,0 +1,260 @@
+//! Assembling one SED per object from the matched members' normalized rows,
+//! the catalogs' coverage, and the blend relations.
+
+use std::collections::HashMap;
+
+use arrow::array::{Array, AsArray, RecordBatch};
+use arrow::datatypes::Float64Type;
+use serde::Serialize;
+
+use crate::catalog::schema::BandColumns;
+use crate::crossmatch::{MatchedObject, flags};
+use crate::error::{Error, Result};
+use crate::sky::coverage::Coverage;
+
+/// What an SED point is; see the module documentation of [`crate::sed`].
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+#[serde(rename_all = "snake_case")]
+#[repr(u8)]
+pub enum SedStatus {
+    /// A measurement.
+    Detected,
+    /// A non-detection with a limit.
+    UpperLimit,
+    /// Covered, but no source (or the survey reports a non-detection without limit).
+    NotDetected,
+    /// Outside the catalog's footprint.
+    NotCovered,
+    /// The catalog's source is a blend over this and other objects.
+    Blended,
+    /// The source has no value in this band.
+    Missing,
+    /// Ruled out by a quality rule or an unreadable value.
+    Rejected,
+}
+
+impl SedStatus {
+    /// All statuses, in report order.
+    pub const ALL: [SedStatus; 7] = [
+        SedStatus::Detected,
+        SedStatus::UpperLimit,
+        SedStatus::NotDetected,
+        SedStatus::NotCovered,
+        SedStatus::Blended,
+        SedStatus::Missing,
+        SedStatus::Rejected,
+    ];
+
+    /// The text written in status columns.
+    pub fn as_str(self) -> &'static str {
+        match self {
+            SedStatus::Detected => "detected",
+            SedStatus::UpperLimit => "upper_limit",
+            SedStatus::NotDetected => "not_detected",
+            SedStatus::NotCovered => "not_covered",
+            SedStatus::Blended => "blended",
+            SedStatus::Missing => "missing",
+            SedStatus::Rejected => "rejected",
+        }
+    }
+
+    fn from_normalized(text: &str) -> Option<SedStatus> {
+        Some(match text {
+            "detected" => SedStatus::Detected,
+            "upper_limit" => SedStatus::UpperLimit,
+            "not_detected" => SedStatus::NotDetected,
+            "missing" => SedStatus::Missing,
+            "rejected" => SedStatus::Rejected,
+            _ => return None,
+        })
+    }
+}
+
+/// One band of one catalog: a column group of the SED tables.
+#[derive(Debug, Clone)]
+pub struct BandSlot {
+    /// Catalog index.
+    pub catalog: usize,
+    /// Catalog name.
+    pub catalog_name: String,
+    /// The band and how the catalog gives it.
+    pub spec: BandColumns,
+}
+
+impl BandSlot {
+    /// The band id.
+    pub fn id(&self) -> &str {
+        &self.spec.band.id
+    }
+
+    /// The survey depth in output units (Jy, or magnitudes for a magnitude-only band).
+    pub fn depth(&self) -> Option<f64> {
+        self.spec.depth.map(|d| self.spec.to_output(d))
+    }
+}
+
+/// One value of an SED. Values are in Jy, or in magnitudes for a magnitude-only band.
+#[derive(Debug, Clone, Copy, PartialEq, Serialize)]
+pub struct SedPoint {
+    /// What the point is.
+    pub status: SedStatus,
+    /// Flux density (or magnitude) of a detection.
+    pub value: Option<f64>,
+    /// First-order 1-sigma error (also the noise of an upper limit, when known).
+    pub err: Option<f64>,
+    /// Lower end of the exact 1-sigma interval.
+    pub lo: Option<f64>,
+    /// Upper end of the exact 1-sigma interval.
+    pub hi: Option<f64>,
+    /// Upper limit.
+    pub ulim: Option<f64>,
+}
+
+impl SedPoint {
+    fn bare(status: SedStatus) -> SedPoint {
+        SedPoint {
+            status,
+            value: None,
+            err: None,
+            lo: None,
+            hi: None,
+            ulim: None,
+        }
+    }
+}
+
+/// The SED of one object: one point per [`BandSlot`], in slot order.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct Sed {
+    /// The points.
+    pub points: Vec<SedPoint>,
+}
+
+/// Typed access to one band's columns in a catalog's normalized table.
+struct BandColumnsData<'a> {
+    value: &'a arrow::array::PrimitiveArray<Float64Type>,
+    err: &'a arrow::array::PrimitiveArray<Float64Type>,
+    lo: Option<&'a arrow::array::PrimitiveArray<Float64Type>>,
+    hi: Option<&'a arrow::array::PrimitiveArray<Float64Type>>,
+    ulim: &'a arrow::array::PrimitiveArray<Float64Type>,
+    status: arrow::array::StringArray,
+}
+
+fn band_data<'a>(table: &'a RecordBatch, slot: &BandSlot) -> Result<BandColumnsData<'a>> {
+    let id = slot.id();
+    let origin = format!("normalized table of \"{}\"", slot.catalog_name);
+    let f = |suffix: &str| -> Result<&'a arrow::array::PrimitiveArray<Float64Type>> {
+        table
+            .column_by_name(&format!("{id}_{suffix}"))
+            .and_then(|c| c.as_primitive_opt::<Float64Type>())
+            .ok_or_else(|| Error::Usage(format!("{origin} lacks column {id}_{suffix}")))
+    };
+    let status = table
+        .column_by_name(&format!("{id}_status"))
+        .and_then(|c| arrow::compute::cast(c, &arrow::datatypes::DataType::Utf8).ok())
+        .map(|c| c.as_string::<i32>().clone())
+        .ok_or_else(|| Error::Usage(format!("{origin} lacks column {id}_status")))?;
+    Ok(if slot.spec.has_flux() {
+        BandColumnsData {
+            value: f("flux_jy")?,
+            err: f("flux_err_jy")?,
+            lo: Some(f("flux_lo_jy")?),
+            hi: Some(f("flux_hi_jy")?),
+            ulim: f("ulim_jy")?,
+            status,
+        }
+    } else {
+        BandColumnsData {
+            value: f("mag")?,
+            err: f("mag_err")?,
+            lo: None,
+            hi: None,
+            ulim: f("ulim_mag")?,
+            status,
+        }
+    })
+}
+
+fn get(a: &arrow::array::PrimitiveArray<Float64Type>, row: usize) -> Option<f64> {
+    a.is_valid(row).then(|| a.value(row))
+}
+
+impl BandColumnsData<'_> {
+    fn point(&self, row: usize) -> SedPoint {
+        let status =
+            SedStatus::from_normalized(self.status.value(row)).unwrap_or(SedStatus::Rejected);
+        SedPoint {
+            status,
+            value: get(self.value, row),
+            err: get(self.err, row),
+            lo: self.lo.and_then(|a| get(a, row)),
+            hi: self.hi.and_then(|a| get(a, row)),
+            ulim: get(self.ulim, row),
+        }
+    }
+}
+
+/// Builds the SED of every object.
+///
+/// `tables[c]` is catalog c's normalized table (rows in the order the match saw
+/// them), `coverage[c]` its footprint.
+///
+/// # Errors
+/// A usage error when a normalized table lacks a band's columns.
+pub fn assemble(
+    slots: &[BandSlot],
+    objects: &[MatchedObject],
+    tables: &[RecordBatch],
+    coverage: &[Coverage],
+) -> Result<Vec<Sed>> {
+    let data: Vec<BandColumnsData> = slots
+        .iter()
+        .map(|s| band_data(&tables[s.catalog], s))
+        .collect::<Result<_>>()?;
+    let index: HashMap<&str, usize> = objects
+        .iter()
+        .enumerate()
+        .map(|(i, o)| (o.object_id.as_str(), i))
+        .collect();
+    let depths: Vec<Option<f64>> = slots.iter().map(BandSlot::depth).collect();
+    Ok(objects
+        .iter()
+        .map(|o| {
+            let points = slots
+                .iter()
+                .zip(&data)
+                .zip(&depths)
+                .map(|((slot, d), depth)| {
+                    if let Some(m) = o.member(slot.catalog) {
+                        let mut p = d.point(m.row);
+                        if p.status == SedStatus::NotDetected && p.ulim.is_none() {
+                            p.ulim = *depth;
+                        }
+                        return p;
+                    }
+                    if o.flags & flags::HAS_BLEND != 0 {
+                        let blend = o
+                            .related
+                            .iter()
+                            .filter_map(|id| index.get(id.as_str()).map(|&i| &objects[i]))
+                            .find_map(|b| b.member(slot.catalog));
+                        if let Some(m) = blend {
+                            let source = d.point(m.row);
+                            let mut p = SedPoint::bare(SedStatus::Blended);
+                            p.ulim = source.value.or(source.ulim);
+                            return p;
+                        }
+                    }
+                    if coverage[slot.catalog].contains(o.ra_deg, o.dec_deg) {
+                        let mut p = SedPoint::bare(SedStatus::NotDetected);
+                        p.ulim = *depth;
+                        p
+                    } else {
+                        SedPoint::bare(SedStatus::NotCovered)
+                    }
+                })
+                .collect();
+            Sed { points }
+        })
+        .collect())
+}
