@@ -2,6 +2,7 @@
 //! parsed arguments and returns a [`Result`]; `main` decides the exit status.
 
 pub mod bands;
+pub mod build;
 pub mod progress;
 pub mod vet;
 
@@ -25,6 +26,9 @@ pub struct Cli {
 /// The commands.
 #[derive(Debug, Subcommand)]
 pub enum Command {
+    /// Build SED tables from a plan: read every catalog through its schema,
+    /// cross-match them all at once, and write objects, photometry, links and run.json.
+    Build(build::BuildArgs),
     /// Read one catalog through its survey schema: count detections, upper limits,
     /// nulls and rejections per band, show the first problems, and optionally
     /// write the normalized source table as Parquet.
@@ -39,6 +43,7 @@ pub enum Command {
 /// Whatever the command reports; `main` prints it once.
 pub fn run(cli: Cli) -> Result<()> {
     match cli.command {
+        Command::Build(args) => build::run(&args, cli.quiet),
         Command::Vet(args) => vet::run(&args, cli.quiet),
         Command::Bands(args) => bands::run(&args),
     }

@@ -72,6 +72,7 @@ pub struct MatchConfig {
     /// Tolerance for every catalog pair without its own.
     pub tolerance: Tolerance,
     /// Tolerances of particular catalog pairs, keyed by (lower index, higher index).
+    #[serde(serialize_with = "pairs_as_list")]
     pub pair_tolerance: BTreeMap<(usize, usize), Tolerance>,
     /// Associations with a posterior below this are flagged `low_probability`.
     pub min_probability: f64,
@@ -83,6 +84,20 @@ pub struct MatchConfig {
     pub primary: Vec<usize>,
     /// Largest group (in sources) resolved by exact search; larger ones are resolved greedily.
     pub max_exact_group: usize,
+}
+
+/// Writes the pair tolerances as a list of `{catalogs: [a, b], tolerance}` (JSON
+/// object keys must be text).
+fn pairs_as_list<S: serde::Serializer>(
+    pairs: &BTreeMap<(usize, usize), Tolerance>,
+    serializer: S,
+) -> Result<S::Ok, S::Error> {
+    use serde::ser::SerializeSeq;
+    let mut seq = serializer.serialize_seq(Some(pairs.len()))?;
+    for ((a, b), t) in pairs {
+        seq.serialize_element(&serde_json::json!({ "catalogs": [a, b], "tolerance": t }))?;
+    }
+    seq.end()
 }
 
 impl MatchConfig {
@@ -131,5 +146,12 @@ mod tests {
         assert_eq!(c.tolerance_for(2, 0), Tolerance::Radius { arcsec: 8.0 });
         assert_eq!(c.tolerance_for(0, 1), Tolerance::default());
         assert_eq!(c.max_radius_arcsec(), 8.0);
+        let json = serde_json::to_string(&c).unwrap();
+        assert!(
+            json.contains(
+                r#""pair_tolerance":[{"catalogs":[0,2],"tolerance":{"Radius":{"arcsec":8.0}}}]"#
+            ),
+            "{json}"
+        );
     }
 }

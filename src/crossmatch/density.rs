@@ -23,24 +23,33 @@ pub const FALLBACK_ORDER: u8 = 10;
 
 /// Estimated footprint area of a set of positions, steradians.
 pub fn footprint_area_sr(ra_deg: &[f64], dec_deg: &[f64]) -> f64 {
-    let n = ra_deg.len();
-    if n == 0 {
+    if ra_deg.is_empty() {
         return 0.0;
     }
-    let occupied = |order: u8| -> usize {
-        ra_deg
-            .iter()
-            .zip(dec_deg)
-            .map(|(&ra, &dec)| home_cell(order, ra, dec))
-            .collect::<HashSet<u64>>()
-            .len()
-    };
-    // Occupancy falls as the order rises, so search downward from the finest.
+    let order = footprint_order(ra_deg, dec_deg);
+    occupied(order, ra_deg, dec_deg) as f64 * cell_area_sr(order)
+}
+
+fn occupied(order: u8, ra_deg: &[f64], dec_deg: &[f64]) -> usize {
+    ra_deg
+        .iter()
+        .zip(dec_deg)
+        .map(|(&ra, &dec)| home_cell(order, ra, dec))
+        .collect::<HashSet<u64>>()
+        .len()
+}
+
+/// The HEALPix order at which a catalog's occupied cells trace its footprint:
+/// the finest (at most [`MAX_ORDER`]) whose occupied cells hold at least
+/// [`MIN_MEAN_OCCUPANCY`] sources on average, else [`FALLBACK_ORDER`].
+pub fn footprint_order(ra_deg: &[f64], dec_deg: &[f64]) -> u8 {
+    let n = ra_deg.len();
+    let occupied = |order: u8| occupied(order, ra_deg, dec_deg).max(1);
+    // Occupancy falls as the order rises: binary search for the finest order meeting it.
     let mut lo = 0u8;
     let mut hi = MAX_ORDER;
     if (n as f64) / (occupied(lo) as f64) < MIN_MEAN_OCCUPANCY {
-        let order = FALLBACK_ORDER;
-        return occupied(order) as f64 * cell_area_sr(order);
+        return FALLBACK_ORDER;
     }
     while lo < hi {
         let mid = (lo + hi).div_ceil(2);
@@ -50,7 +59,7 @@ pub fn footprint_area_sr(ra_deg: &[f64], dec_deg: &[f64]) -> f64 {
             hi = mid - 1;
         }
     }
-    occupied(lo) as f64 * cell_area_sr(lo)
+    lo
 }
 
 #[cfg(test)]

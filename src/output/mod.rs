@@ -5,6 +5,7 @@ pub mod atomic;
 pub mod csv;
 pub mod fits;
 pub mod parquet;
+pub mod run_record;
 pub mod staging;
 pub mod tables;
 pub mod votable;

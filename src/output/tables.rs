@@ -388,3 +388,35 @@ pub fn links_batch(links: &[Link], tables: &[SourceTable]) -> Result<RecordBatch
     RecordBatch::try_new(Arc::new(Schema::new(fields)), columns)
         .map_err(|e| Error::Usage(format!("links table: {e}")))
 }
+
+/// The batch with column types every export format takes: dictionary-encoded
+/// text as plain text and 16-bit unsigned integers as 32-bit signed ones; field
+/// metadata (units) kept.
+///
+/// # Errors
+/// A usage error if a cast fails (it does not for these types).
+pub fn for_export(batch: &RecordBatch) -> Result<RecordBatch> {
+    let mut fields = Vec::with_capacity(batch.num_columns());
+    let mut columns = Vec::with_capacity(batch.num_columns());
+    for (f, col) in batch.schema().fields().iter().zip(batch.columns()) {
+        let target = match f.data_type() {
+            DataType::Dictionary(_, value) => Some(value.as_ref().clone()),
+            DataType::UInt16 => Some(DataType::Int32),
+            _ => None,
+        };
+        match target {
+            Some(t) => {
+                let cast = arrow::compute::cast(col, &t)
+                    .map_err(|e| Error::Usage(format!("export of column {}: {e}", f.name())))?;
+                fields.push(f.as_ref().clone().with_data_type(t));
+                columns.push(cast);
+            }
+            None => {
+                fields.push(f.as_ref().clone());
+                columns.push(col.clone());
+            }
+        }
+    }
+    RecordBatch::try_new(Arc::new(Schema::new(fields)), columns)
+        .map_err(|e| Error::Usage(format!("export table: {e}")))
+}

@@ -1,0 +1,425 @@
+//! `fluxloom build`: from a plan file to SED tables, in one command.
+//!
+//! Reads and normalizes every catalog of the plan, cross-matches them all at
+//! once (measuring and, if asked, correcting astrometric offsets), assembles one
+//! SED per object with coverage deciding "not detected" against "not covered",
+//! and writes `objects.parquet`, `photometry.parquet`, `links.parquet`, the
+//! exports and `run.json` into the output folder — all or nothing.
+
+use std::path::{Path, PathBuf};
+
+use arrow::array::RecordBatch;
+use clap::Args;
+use sha2::{Digest, Sha256};
+
+use super::progress::{row_counter, spinner};
+use super::vet::for_each_normalized;
+use crate::catalog::normalize::{NormalizeOptions, NormalizeReport, Normalizer};
+use crate::catalog::{DEFAULT_BATCH_ROWS, open, prefetch};
+use crate::crossmatch::density::footprint_order;
+use crate::crossmatch::false_matches::{FalseMatchEstimate, estimate_false_matches};
+use crate::crossmatch::systematics::{CatalogOffset, match_with_offsets};
+use crate::crossmatch::{MatchResult, SourceTable};
+use crate::error::{Error, Result};
+use crate::output::parquet::ParquetOutput;
+use crate::output::run_record::{InputRecord, OutputRecord, RunRecord};
+use crate::output::staging::Staging;
+use crate::output::tables::{for_export, links_batch, objects_batch, photometry_batch};
+use crate::output::{csv::write_csv, fits::write_fits, votable::write_votable};
+use crate::plan::{ExportFormat, Plan};
+use crate::sed::{BandSlot, Sed, SedStatus, assemble};
+use crate::sky::coverage::Coverage;
+
+/// Arguments of `fluxloom build`.
+#[derive(Debug, Args)]
+pub struct BuildArgs {
+    /// The plan file (TOML).
+    pub plan: PathBuf,
+    /// Write into this folder instead of the plan's output folder.
+    #[arg(long, short, value_name = "FOLDER")]
+    pub out: Option<PathBuf>,
+}
+
+/// Everything read from one catalog.
+struct ReadCatalog {
+    table: SourceTable,
+    normalized: RecordBatch,
+    report: NormalizeReport,
+    sha256: String,
+    bytes: u64,
+}
+
+/// Runs `fluxloom build`.
+///
+/// # Errors
+/// Plan, schema, read, match and write errors; nothing is written on error.
+pub fn run(args: &BuildArgs, quiet: bool) -> Result<()> {
+    let plan = Plan::from_file(&args.plan)?;
+    let out_dir = args.out.clone().unwrap_or_else(|| plan.output.clone());
+    let outcome = build(&plan, &out_dir, quiet)?;
+    super::write_stdout(&outcome.summary)
+}
+
+/// What a build produced, for the caller to show.
+pub struct BuildOutcome {
+    /// The human-readable summary.
+    pub summary: String,
+    /// The files written.
+    pub files: Vec<PathBuf>,
+}
+
+/// Runs the whole build of `plan` into `out_dir`.
+///
+/// # Errors
+/// As [`run`].
+pub fn build(plan: &Plan, out_dir: &Path, quiet: bool) -> Result<BuildOutcome> {
+    let options = NormalizeOptions {
+        skip_bad_rows: plan.skip_bad_rows,
+    };
+    let mut read: Vec<ReadCatalog> = Vec::with_capacity(plan.catalogs.len());
+    for c in &plan.catalogs {
+        read.push(read_catalog(&c.file, &c.schema, options, quiet)?);
+    }
+    let tables: Vec<SourceTable> = read.iter().map(|r| r.table.clone()).collect();
+
+    let bar = spinner("cross-matching", quiet);
+    let (result, offsets): (MatchResult, Vec<CatalogOffset>) = match plan.astrometric_reference {
+        Some(reference) => match_with_offsets(
+            &tables,
+            &plan.matching,
+            plan.area_sr,
+            reference,
+            plan.correct_offsets,
+        )?,
+        None => (
+            crate::crossmatch::run_match_with_area(&tables, &plan.matching, plan.area_sr)?,
+            Vec::new(),
+        ),
+    };
+    bar.set_message("estimating false matches");
+    let false_matches: Vec<FalseMatchEstimate> = if plan.false_matches {
+        estimate_false_matches(&tables, &plan.matching)?
+    } else {
+        Vec::new()
+    };
+    bar.finish_and_clear();
+
+    let coverage: Vec<Coverage> = plan
+        .catalogs
+        .iter()
+        .zip(&tables)
+        .map(|(c, t)| match &c.coverage {
+            Some(path) => Coverage::from_moc_file(path),
+            None => {
+                let order = c
+                    .coverage_order
+                    .unwrap_or_else(|| footprint_order(&t.ra_deg, &t.dec_deg));
+                Ok(Coverage::from_positions(order, &t.ra_deg, &t.dec_deg))
+            }
+        })
+        .collect::<Result<_>>()?;
+    let slots: Vec<BandSlot> = plan
+        .catalogs
+        .iter()
+        .enumerate()
+        .flat_map(|(k, c)| {
+            c.schema.bands.iter().map(move |b| BandSlot {
+                catalog: k,
+                catalog_name: c.name.clone(),
+                spec: b.clone(),
+            })
+        })
+        .collect();
+    let normalized: Vec<RecordBatch> = read.iter().map(|r| r.normalized.clone()).collect();
+    let seds = assemble(&slots, &result.objects, &normalized, &coverage)?;
+
+    let bar = spinner("writing", quiet);
+    let mut staging = Staging::new(out_dir)?;
+    let metadata = table_metadata(plan, &slots)?;
+    let objects = objects_batch(
+        &result.objects,
+        &seds,
+        &slots,
+        &tables,
+        plan.matching.reference_epoch_yr,
+    )?;
+    let photometry = photometry_batch(&result.objects, &seds, &slots, &tables)?;
+    let links = links_batch(&result.links, &tables)?;
+    let mut outputs: Vec<OutputRecord> = Vec::new();
+    for (name, batch) in [
+        ("objects", &objects),
+        ("photometry", &photometry),
+        ("links", &links),
+    ] {
+        let file = format!("{name}.parquet");
+        let mut w = ParquetOutput::create(&staging.path(&file), batch.schema(), metadata.clone())?;
+        w.write(batch)?;
+        let rows = w.finish()?;
+        outputs.push(OutputRecord { file, rows });
+    }
+    for format in &plan.exports {
+        for (name, batch) in [("objects", &objects), ("photometry", &photometry)] {
+            let batch = for_export(batch)?;
+            let schema = batch.schema();
+            let batches = std::slice::from_ref(&batch);
+            let (file, rows) = match format {
+                ExportFormat::Csv => {
+                    let file = format!("{name}.csv");
+                    let rows = write_csv(&staging.path(&file), &schema, batches)?;
+                    (file, rows)
+                }
+                ExportFormat::Fits => {
+                    let file = format!("{name}.fits");
+                    let cards = vec![
+                        (
+                            "ORIGIN".to_string(),
+                            format!("fluxloom {}", env!("CARGO_PKG_VERSION")),
+                        ),
+                        ("FIELD".to_string(), plan.field.clone()),
+                    ];
+                    let rows = write_fits(
+                        &staging.path(&file),
+                        &schema,
+                        batches,
+                        &name.to_uppercase(),
+                        &cards,
+                    )?;
+                    (file, rows)
+                }
+                ExportFormat::Votable => {
+                    let file = format!("{name}.vot");
+                    let description = format!("fluxloom {name} table of field {}", plan.field);
+                    let params = vec![("field".to_string(), plan.field.clone())];
+                    let rows = write_votable(
+                        &staging.path(&file),
+                        &schema,
+                        batches,
+                        name,
+                        &description,
+                        &params,
+                    )?;
+                    (file, rows)
+                }
+            };
+            outputs.push(OutputRecord { file, rows });
+        }
+    }
+    let record = RunRecord::new(
+        plan,
+        read.iter()
+            .zip(&plan.catalogs)
+            .map(|(r, c)| InputRecord {
+                catalog: c.name.clone(),
+                file: c.file.display().to_string(),
+                schema: c.schema.path.display().to_string(),
+                sha256: r.sha256.clone(),
+                bytes: r.bytes,
+                normalize: r.report.clone(),
+            })
+            .collect(),
+        &result,
+        offsets,
+        false_matches,
+        sed_counts(&slots, &seds),
+        outputs.clone(),
+    );
+    let run_json = staging.path("run.json");
+    std::fs::write(&run_json, record.to_json()? + "\n").map_err(|e| Error::io(&run_json, e))?;
+    let files = staging.commit()?;
+    bar.finish_and_clear();
+    Ok(BuildOutcome {
+        summary: summary(plan, out_dir, &read, &record, &outputs),
+        files,
+    })
+}
+
+fn read_catalog(
+    file: &Path,
+    schema: &crate::catalog::schema::SurveySchema,
+    options: NormalizeOptions,
+    quiet: bool,
+) -> Result<ReadCatalog> {
+    let (sha256, bytes) = file_digest(file)?;
+    let stream = prefetch(open(file, &schema.format, DEFAULT_BATCH_ROWS)?, 2);
+    let mut normalizer = Normalizer::new(schema, file, options);
+    normalizer.check_file(&stream.schema)?;
+    let output_schema = normalizer.output_schema();
+    let bar = row_counter(&format!("reading {}", file.display()), quiet);
+    let mut batches = Vec::new();
+    for_each_normalized(stream, &mut normalizer, |b| {
+        bar.inc(b.num_rows() as u64);
+        batches.push(b);
+        Ok(())
+    })?;
+    bar.finish_and_clear();
+    let normalized = arrow::compute::concat_batches(&output_schema, &batches)
+        .map_err(|e| Error::columnar(file, e))?;
+    let table = SourceTable::from_batches(&schema.survey, std::slice::from_ref(&normalized), file)?;
+    Ok(ReadCatalog {
+        table,
+        normalized,
+        report: normalizer.finish(),
+        sha256,
+        bytes,
+    })
+}
+
+/// SHA-256 of a file's bytes (hex) and its size.
+fn file_digest(path: &Path) -> Result<(String, u64)> {
+    use std::io::Read;
+    let mut f = std::fs::File::open(path).map_err(|e| Error::io(path, e))?;
+    let mut hasher = Sha256::new();
+    let mut buf = vec![0u8; 1 << 20];
+    let mut total = 0u64;
+    loop {
+        let n = f.read(&mut buf).map_err(|e| Error::io(path, e))?;
+        if n == 0 {
+            break;
+        }
+        total += n as u64;
+        hasher.update(&buf[..n]);
+    }
+    let hex: String = hasher
+        .finalize()
+        .iter()
+        .map(|b| format!("{b:02x}"))
+        .collect();
+    Ok((hex, total))
+}
+
+/// Parquet key-value metadata: field, plan, bands, flag legend.
+fn table_metadata(plan: &Plan, slots: &[BandSlot]) -> Result<Vec<(String, String)>> {
+    let mut bands: Vec<&crate::photometry::Band> = Vec::new();
+    for s in slots {
+        if !bands.iter().any(|b| b.id == s.spec.band.id) {
+            bands.push(&s.spec.band);
+        }
+    }
+    let legend: Vec<serde_json::Value> = crate::crossmatch::flags::ALL
+        .iter()
+        .map(|(bit, name)| serde_json::json!({ "bit": bit, "name": name }))
+        .collect();
+    Ok(vec![
+        ("fluxloom.field".into(), plan.field.clone()),
+        (
+            "fluxloom.reference_epoch_yr".into(),
+            plan.matching.reference_epoch_yr.to_string(),
+        ),
+        ("fluxloom.plan".into(), plan.text.clone()),
+        ("fluxloom.bands".into(), to_json(&bands)?),
+        ("fluxloom.flags".into(), to_json(&legend)?),
+    ])
+}
+
+fn to_json<T: serde::Serialize>(value: &T) -> Result<String> {
+    serde_json::to_string(value).map_err(|e| Error::Usage(e.to_string()))
+}
+
+/// SED points per band slot and status, for run.json and the summary.
+fn sed_counts(slots: &[BandSlot], seds: &[Sed]) -> Vec<(String, String, Vec<(String, u64)>)> {
+    slots
+        .iter()
+        .enumerate()
+        .map(|(k, slot)| {
+            let counts = SedStatus::ALL
+                .iter()
+                .map(|st| {
+                    let n = seds.iter().filter(|s| s.points[k].status == *st).count() as u64;
+                    (st.as_str().to_string(), n)
+                })
+                .collect();
+            (slot.catalog_name.clone(), slot.id().to_string(), counts)
+        })
+        .collect()
+}
+
+fn summary(
+    plan: &Plan,
+    out_dir: &Path,
+    read: &[ReadCatalog],
+    record: &RunRecord,
+    outputs: &[OutputRecord],
+) -> String {
+    let mut s = format!("field    {} (plan {})\n", plan.field, plan.path.display());
+    s.push_str("\nread\n");
+    for (c, r) in plan.catalogs.iter().zip(read) {
+        let rep = &r.report;
+        s.push_str(&format!(
+            "  {:<10} {:>8} rows read, {:>8} kept, {:>6} skipped   {}\n",
+            c.name,
+            rep.rows_read,
+            rep.rows_kept,
+            rep.rows_skipped_total(),
+            c.file.display()
+        ));
+        for (reason, n) in &rep.rows_skipped {
+            s.push_str(&format!("             skipped {n}: {reason}\n"));
+        }
+    }
+    let m = &record.matching;
+    s.push_str(&format!(
+        "\nmatched  {} candidate pairs in {} groups (largest {}) -> {} objects\n",
+        m.candidates, m.groups, m.largest_group, m.objects
+    ));
+    let by_members: Vec<String> = m
+        .objects_by_members
+        .iter()
+        .map(|(k, v)| format!("{v} with {k}"))
+        .collect();
+    s.push_str(&format!("         members: {}\n", by_members.join(", ")));
+    let flags: Vec<String> = m.flags.iter().map(|(k, v)| format!("{k} {v}")).collect();
+    s.push_str(&format!("         flags:   {}\n", flags.join(", ")));
+    for o in &record.offsets {
+        if let Some(i) = &o.initial {
+            s.push_str(&format!(
+                "         offset of {} vs {}: ({:+.3}, {:+.3})\" from {} pairs, corrected by ({:+.3}, {:+.3})\"\n",
+                plan.catalogs[o.catalog].name,
+                record.astrometric_reference.as_deref().unwrap_or("-"),
+                i.dra_cosdec_arcsec,
+                i.ddec_arcsec,
+                i.n,
+                o.applied_arcsec.0,
+                o.applied_arcsec.1
+            ));
+        }
+    }
+    for f in &record.false_matches {
+        s.push_str(&format!(
+            "         false matches {} x {}: {:.1} expected of {} candidates ({:.2} %)\n",
+            plan.catalogs[f.catalog_a].name,
+            plan.catalogs[f.catalog_b].name,
+            f.shifted_candidates_mean,
+            f.real_candidates,
+            100.0 * f.false_fraction
+        ));
+    }
+    s.push_str(&format!(
+        "\nbands    {:<10} {:<10} {:>8} {:>8} {:>8} {:>8} {:>8} {:>8} {:>8}\n",
+        "catalog",
+        "band",
+        "detected",
+        "ulim",
+        "not_det",
+        "not_cov",
+        "blended",
+        "missing",
+        "rejected"
+    ));
+    for point in &record.sed_points {
+        let (catalog, band) = (&point.catalog, &point.band);
+        let c: Vec<u64> = SedStatus::ALL
+            .iter()
+            .map(|st| point.by_status.get(st.as_str()).copied().unwrap_or(0))
+            .collect();
+        s.push_str(&format!(
+            "         {catalog:<10} {band:<10} {:>8} {:>8} {:>8} {:>8} {:>8} {:>8} {:>8}\n",
+            c[0], c[1], c[2], c[3], c[4], c[5], c[6]
+        ));
+    }
+    s.push_str(&format!("\nwrote    {}\n", out_dir.display()));
+    for o in outputs {
+        s.push_str(&format!("         {:<20} {:>8} rows\n", o.file, o.rows));
+    }
+    s.push_str("         run.json\n");
+    s
+}

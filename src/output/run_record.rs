@@ -1,0 +1,167 @@
+//! `run.json`: what a build read, how it matched, what it flagged and wrote.
+//!
+//! The record holds no clock times or machine details, so the same inputs give
+//! the same file; timings go to the terminal summary instead.
+
+use std::collections::BTreeMap;
+
+use serde::Serialize;
+
+use crate::catalog::normalize::NormalizeReport;
+use crate::crossmatch::engine::MatchStats;
+use crate::crossmatch::false_matches::FalseMatchEstimate;
+use crate::crossmatch::systematics::CatalogOffset;
+use crate::crossmatch::{MatchConfig, MatchResult};
+use crate::error::{Error, Result};
+use crate::plan::Plan;
+
+/// One input catalog.
+#[derive(Debug, Clone, Serialize)]
+pub struct InputRecord {
+    /// Catalog name.
+    pub catalog: String,
+    /// The catalog file.
+    pub file: String,
+    /// The survey schema file.
+    pub schema: String,
+    /// SHA-256 of the catalog file's bytes, hex.
+    pub sha256: String,
+    /// Size of the catalog file.
+    pub bytes: u64,
+    /// Rows read, kept and skipped, bands by status.
+    pub normalize: NormalizeReport,
+}
+
+/// One output file.
+#[derive(Debug, Clone, Serialize)]
+pub struct OutputRecord {
+    /// File name inside the output folder.
+    pub file: String,
+    /// Rows written.
+    pub rows: u64,
+}
+
+/// Match counts without timings.
+#[derive(Debug, Clone, Serialize)]
+pub struct MatchRecord {
+    /// Candidate pairs.
+    pub candidates: usize,
+    /// Connected groups.
+    pub groups: usize,
+    /// Largest group, in sources.
+    pub largest_group: usize,
+    /// Groups resolved greedily.
+    pub approximate_groups: usize,
+    /// Objects written.
+    pub objects: usize,
+    /// Objects left out by the primary-catalog rule.
+    pub objects_not_primary: usize,
+    /// Objects per number of members.
+    pub objects_by_members: BTreeMap<usize, usize>,
+    /// Objects per flag.
+    pub flags: BTreeMap<String, usize>,
+    /// Surface density per catalog used by the prior, per square degree.
+    pub density_per_deg2: Vec<f64>,
+}
+
+impl From<&MatchStats> for MatchRecord {
+    fn from(s: &MatchStats) -> MatchRecord {
+        MatchRecord {
+            candidates: s.candidates,
+            groups: s.groups,
+            largest_group: s.largest_group,
+            approximate_groups: s.approximate_groups,
+            objects: s.objects,
+            objects_not_primary: s.objects_not_primary,
+            objects_by_members: s.objects_by_members.clone(),
+            flags: s.flags.clone(),
+            density_per_deg2: s.density_per_deg2.clone(),
+        }
+    }
+}
+
+/// Per band of each catalog: SED points by status.
+#[derive(Debug, Clone, Serialize)]
+pub struct SedRecord {
+    /// Catalog name.
+    pub catalog: String,
+    /// Band id.
+    pub band: String,
+    /// Points per status.
+    pub by_status: BTreeMap<String, u64>,
+}
+
+/// The whole record.
+#[derive(Debug, Clone, Serialize)]
+pub struct RunRecord {
+    /// fluxloom version.
+    pub fluxloom_version: String,
+    /// Field name.
+    pub field: String,
+    /// The plan file as given.
+    pub plan_file: String,
+    /// The plan's text.
+    pub plan: String,
+    /// The match settings in force.
+    pub match_settings: MatchConfig,
+    /// The astrometric reference catalog, if any.
+    pub astrometric_reference: Option<String>,
+    /// Inputs with checksums and read counts.
+    pub inputs: Vec<InputRecord>,
+    /// Match counts.
+    pub matching: MatchRecord,
+    /// Astrometric offsets against the reference.
+    pub offsets: Vec<CatalogOffset>,
+    /// False-match estimates per catalog pair.
+    pub false_matches: Vec<FalseMatchEstimate>,
+    /// SED points per band and status.
+    pub sed_points: Vec<SedRecord>,
+    /// Files written (run.json itself aside).
+    pub outputs: Vec<OutputRecord>,
+}
+
+impl RunRecord {
+    /// Assembles the record of a build.
+    #[allow(clippy::too_many_arguments)]
+    pub fn new(
+        plan: &Plan,
+        inputs: Vec<InputRecord>,
+        result: &MatchResult,
+        offsets: Vec<CatalogOffset>,
+        false_matches: Vec<FalseMatchEstimate>,
+        sed: Vec<(String, String, Vec<(String, u64)>)>,
+        outputs: Vec<OutputRecord>,
+    ) -> RunRecord {
+        RunRecord {
+            fluxloom_version: env!("CARGO_PKG_VERSION").to_string(),
+            field: plan.field.clone(),
+            plan_file: plan.path.display().to_string(),
+            plan: plan.text.clone(),
+            match_settings: plan.matching.clone(),
+            astrometric_reference: plan
+                .astrometric_reference
+                .map(|i| plan.catalogs[i].name.clone()),
+            inputs,
+            matching: MatchRecord::from(&result.stats),
+            offsets,
+            false_matches,
+            sed_points: sed
+                .iter()
+                .map(|(catalog, band, counts)| SedRecord {
+                    catalog: catalog.clone(),
+                    band: band.clone(),
+                    by_status: counts.iter().cloned().collect(),
+                })
+                .collect(),
+            outputs,
+        }
+    }
+
+    /// The record as pretty-printed JSON.
+    ///
+    /// # Errors
+    /// A usage error if serialization fails (it does not for these types).
+    pub fn to_json(&self) -> Result<String> {
+        serde_json::to_string_pretty(self).map_err(|e| Error::Usage(e.to_string()))
+    }
+}
