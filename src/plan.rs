@@ -418,3 +418,116 @@ fn tolerance(
         )),
     }
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// Writes a schema and a plan into a temporary folder; returns the plan path.
+    fn setup(plan: &str) -> (tempfile::TempDir, PathBuf) {
+        let dir = tempfile::tempdir().unwrap();
+        let schema = "survey = \"opt\"\nformat = \"csv\"\nid = \"id\"\n[position]\nra = \"ra\"\ndec = \"dec\"\nerror = { kind = \"fixed\", arcsec = 0.1 }\n[epoch]\nyear = 2010.0\n[[band]]\nband = \"jc_v\"\nvalue = \"v\"\nunit = \"vega_mag\"\n";
+        std::fs::write(dir.path().join("opt.toml"), schema).unwrap();
+        std::fs::write(
+            dir.path().join("nir.toml"),
+            schema.replace("\"opt\"", "\"nir\""),
+        )
+        .unwrap();
+        let path = dir.path().join("plan.toml");
+        std::fs::write(&path, plan).unwrap();
+        (dir, path)
+    }
+
+    const PLAN: &str = r#"[field]
+name = "f"
+reference_epoch = 2016.0
+
+[match]
+tolerance = { kind = "radius", arcsec = 1.5 }
+astrometric_reference = "opt"
+correct_offsets = true
+
+[[match.pair]]
+catalogs = ["opt", "nir"]
+tolerance = { kind = "sigma", k = 3.0, max_arcsec = 4.0 }
+
+[[catalog]]
+file = "opt.csv"
+schema = "opt.toml"
+resolution_arcsec = 1.0
+
+[[catalog]]
+file = "nir.csv"
+schema = "nir.toml"
+
+[output]
+folder = "out"
+exports = ["csv", "votable"]
+"#;
+
+    #[test]
+    fn a_good_plan() {
+        let (dir, path) = setup(PLAN);
+        let plan = Plan::from_file(&path).unwrap();
+        assert_eq!(plan.catalogs.len(), 2);
+        assert_eq!(plan.catalogs[0].file, dir.path().join("opt.csv"));
+        assert_eq!(plan.output, dir.path().join("out"));
+        assert_eq!(plan.matching.tolerance, Tolerance::Radius { arcsec: 1.5 });
+        assert_eq!(
+            plan.matching.tolerance_for(1, 0),
+            Tolerance::Sigma {
+                k: 3.0,
+                max_arcsec: 4.0
+            }
+        );
+        assert_eq!(plan.matching.catalogs[0].resolution_arcsec, Some(1.0));
+        assert_eq!(plan.astrometric_reference, Some(0));
+        assert_eq!(plan.exports, vec![ExportFormat::Csv, ExportFormat::Votable]);
+    }
+
+    #[test]
+    fn errors_name_the_plan_line() {
+        let (_dir, path) = setup(&PLAN.replace(
+            "catalogs = [\"opt\", \"nir\"]",
+            "catalogs = [\"opt\", \"mir\"]",
+        ));
+        let err = Plan::from_file(&path).unwrap_err().to_string();
+        assert!(
+            err.ends_with(
+                "plan.toml:10: [[match.pair]] names \"opt\" and \"mir\"; the catalogs are: opt, nir"
+            ),
+            "{err}"
+        );
+
+        let (_dir, path) = setup(&PLAN.replace("\"votable\"", "\"hdf5\""));
+        let err = Plan::from_file(&path).unwrap_err().to_string();
+        assert!(
+            err.ends_with(
+                "plan.toml:25: export \"hdf5\" is unknown; expected csv, fits or votable"
+            ),
+            "{err}"
+        );
+
+        let (_dir, path) = setup(&PLAN.replace("astrometric_reference = \"opt\"\n", ""));
+        let err = Plan::from_file(&path).unwrap_err().to_string();
+        assert!(
+            err.ends_with("plan.toml:7: correct_offsets needs an astrometric_reference to measure offsets against"),
+            "{err}"
+        );
+
+        let (_dir, path) =
+            setup(&PLAN.replace("kind = \"radius\", arcsec = 1.5", "kind = \"radius\""));
+        let err = Plan::from_file(&path).unwrap_err().to_string();
+        assert!(
+            err.ends_with("plan.toml:6: tolerance of kind \"radius\" needs \"arcsec\""),
+            "{err}"
+        );
+
+        let (_dir, path) = setup(&PLAN.replace("schema = \"nir.toml\"", "schema = \"opt.toml\""));
+        let err = Plan::from_file(&path).unwrap_err().to_string();
+        assert!(
+            err.contains("plan.toml:19: two catalogs use survey name \"opt\""),
+            "{err}"
+        );
+    }
+}

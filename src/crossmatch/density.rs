@@ -10,8 +10,6 @@
 //! Catalogs with fewer than [`MIN_MEAN_OCCUPANCY`] sources fall back to the
 //! order-[`FALLBACK_ORDER`] cells they touch. A plan can set the area instead.
 
-use std::collections::HashSet;
-
 use crate::sky::partition::{cell_area_sr, home_cell};
 
 /// Finest order tried.
@@ -26,40 +24,68 @@ pub fn footprint_area_sr(ra_deg: &[f64], dec_deg: &[f64]) -> f64 {
     if ra_deg.is_empty() {
         return 0.0;
     }
-    let order = footprint_order(ra_deg, dec_deg);
-    occupied(order, ra_deg, dec_deg) as f64 * cell_area_sr(order)
-}
-
-fn occupied(order: u8, ra_deg: &[f64], dec_deg: &[f64]) -> usize {
-    ra_deg
-        .iter()
-        .zip(dec_deg)
-        .map(|(&ra, &dec)| home_cell(order, ra, dec))
-        .collect::<HashSet<u64>>()
-        .len()
+    let cells = Occupancy::new(ra_deg, dec_deg);
+    let order = cells.footprint_order();
+    cells.occupied(order) as f64 * cell_area_sr(order)
 }
 
 /// The HEALPix order at which a catalog's occupied cells trace its footprint:
 /// the finest (at most [`MAX_ORDER`]) whose occupied cells hold at least
 /// [`MIN_MEAN_OCCUPANCY`] sources on average, else [`FALLBACK_ORDER`].
 pub fn footprint_order(ra_deg: &[f64], dec_deg: &[f64]) -> u8 {
-    let n = ra_deg.len();
-    let occupied = |order: u8| occupied(order, ra_deg, dec_deg).max(1);
-    // Occupancy falls as the order rises: binary search for the finest order meeting it.
-    let mut lo = 0u8;
-    let mut hi = MAX_ORDER;
-    if (n as f64) / (occupied(lo) as f64) < MIN_MEAN_OCCUPANCY {
-        return FALLBACK_ORDER;
+    Occupancy::new(ra_deg, dec_deg).footprint_order()
+}
+
+/// The sources' cells at [`MAX_ORDER`], sorted, from which the occupied cells of
+/// every coarser order follow by shifting (NESTED parents are p >> 2).
+struct Occupancy {
+    cells: Vec<u64>,
+}
+
+impl Occupancy {
+    fn new(ra_deg: &[f64], dec_deg: &[f64]) -> Occupancy {
+        let mut cells: Vec<u64> = ra_deg
+            .iter()
+            .zip(dec_deg)
+            .map(|(&ra, &dec)| home_cell(MAX_ORDER, ra, dec))
+            .collect();
+        cells.sort_unstable();
+        Occupancy { cells }
     }
-    while lo < hi {
-        let mid = (lo + hi).div_ceil(2);
-        if (n as f64) / (occupied(mid) as f64) >= MIN_MEAN_OCCUPANCY {
-            lo = mid;
-        } else {
-            hi = mid - 1;
+
+    /// Distinct cells at `order` (at least 1).
+    fn occupied(&self, order: u8) -> usize {
+        let shift = 2 * u32::from(MAX_ORDER - order);
+        let mut count = 0;
+        let mut last = None;
+        for &c in &self.cells {
+            let parent = c >> shift;
+            if last != Some(parent) {
+                count += 1;
+                last = Some(parent);
+            }
         }
+        count.max(1)
     }
-    lo
+
+    fn footprint_order(&self) -> u8 {
+        let n = self.cells.len() as f64;
+        let dense_enough = |order: u8| n / self.occupied(order) as f64 >= MIN_MEAN_OCCUPANCY;
+        if !dense_enough(0) {
+            return FALLBACK_ORDER;
+        }
+        // Occupancy falls as the order rises: binary search for the finest order meeting it.
+        let (mut lo, mut hi) = (0u8, MAX_ORDER);
+        while lo < hi {
+            let mid = (lo + hi).div_ceil(2);
+            if dense_enough(mid) {
+                lo = mid;
+            } else {
+                hi = mid - 1;
+            }
+        }
+        lo
+    }
 }
 
 #[cfg(test)]

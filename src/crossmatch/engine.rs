@@ -311,79 +311,82 @@ fn assemble(
             object_of_rank[m as usize] = k as u32;
         }
     }
-    let mut objects = Vec::with_capacity(all.len());
-    for o in &all {
-        // The object's proper motion is the mean of its members' own; members
-        // without one are carried with it from their epoch to the reference epoch.
-        let moving: Vec<(f64, f64)> = o
-            .members
-            .iter()
-            .filter(|&&m| sources.has_pm(m as usize))
-            .map(|&m| sources.pm_masyr[m as usize])
-            .collect();
-        let pm = if moving.is_empty() {
-            (f64::NAN, f64::NAN)
-        } else {
-            let k = moving.len() as f64;
-            (
-                moving.iter().map(|p| p.0).sum::<f64>() / k,
-                moving.iter().map(|p| p.1).sum::<f64>() / k,
-            )
-        };
-        let at_reference = |m: usize| -> Vec3 {
-            if sources.has_pm(m) || pm.0.is_nan() || !sources.epoch_yr[m].is_finite() {
-                sources.vec[m]
+    let mut objects: Vec<MatchedObject> = all
+        .par_iter()
+        .map(|o| {
+            // The object's proper motion is the mean of its members' own; members
+            // without one are carried with it from their epoch to the reference epoch.
+            let moving: Vec<(f64, f64)> = o
+                .members
+                .iter()
+                .filter(|&&m| sources.has_pm(m as usize))
+                .map(|&m| sources.pm_masyr[m as usize])
+                .collect();
+            let pm = if moving.is_empty() {
+                (f64::NAN, f64::NAN)
             } else {
-                let dt = config.reference_epoch_yr - sources.epoch_yr[m];
-                let (ra, dec) =
-                    propagate_deg(sources.ra_deg[m], sources.dec_deg[m], pm.0, pm.1, dt);
-                radec_deg_to_vec(ra, dec)
+                let k = moving.len() as f64;
+                (
+                    moving.iter().map(|p| p.0).sum::<f64>() / k,
+                    moving.iter().map(|p| p.1).sum::<f64>() / k,
+                )
+            };
+            let at_reference = |m: usize| -> Vec3 {
+                if sources.has_pm(m) || pm.0.is_nan() || !sources.epoch_yr[m].is_finite() {
+                    sources.vec[m]
+                } else {
+                    let dt = config.reference_epoch_yr - sources.epoch_yr[m];
+                    let (ra, dec) =
+                        propagate_deg(sources.ra_deg[m], sources.dec_deg[m], pm.0, pm.1, dt);
+                    radec_deg_to_vec(ra, dec)
+                }
+            };
+            let mut sum = [0.0f64; 3];
+            let mut weight = 0.0;
+            for &m in &o.members {
+                let w = 1.0 / sources.sigma_rad[m as usize].powi(2);
+                let v = at_reference(m as usize);
+                for k in 0..3 {
+                    sum[k] += w * v[k];
+                }
+                weight += w;
             }
-        };
-        let mut sum = [0.0f64; 3];
-        let mut weight = 0.0;
-        for &m in &o.members {
-            let w = 1.0 / sources.sigma_rad[m as usize].powi(2);
-            let v = at_reference(m as usize);
-            for k in 0..3 {
-                sum[k] += w * v[k];
+            let (ra_deg, dec_deg) = vec_to_radec_deg(sum);
+            let centre = radec_deg_to_vec(ra_deg, dec_deg);
+            let members = o
+                .members
+                .iter()
+                .zip(&o.member_probability)
+                .map(|(&m, &p)| Member {
+                    catalog: sources.catalog[m as usize] as usize,
+                    row: sources.row[m as usize] as usize,
+                    sep_arcsec: separation_vec_rad(centre, at_reference(m as usize))
+                        / RAD_PER_ARCSEC,
+                    probability: p,
+                })
+                .collect();
+            let anchor = o.members[0] as usize;
+            MatchedObject {
+                object_id: id_of_rank(o.members[0]),
+                ra_deg,
+                dec_deg,
+                pos_err_arcsec: (1.0 / weight).sqrt() / RAD_PER_ARCSEC,
+                pmra_cosdec_masyr: pm.0,
+                pmdec_masyr: pm.1,
+                members,
+                flags: o.flags,
+                probability: o.probability,
+                related: o.related.iter().map(|&r| id_of_rank(r)).collect(),
+                owner_cell: home_cell(
+                    config.partition_order,
+                    sources.ra_deg[anchor],
+                    sources.dec_deg[anchor],
+                ),
             }
-            weight += w;
-        }
-        let (ra_deg, dec_deg) = vec_to_radec_deg(sum);
-        let centre = radec_deg_to_vec(ra_deg, dec_deg);
-        let members = o
-            .members
-            .iter()
-            .zip(&o.member_probability)
-            .map(|(&m, &p)| Member {
-                catalog: sources.catalog[m as usize] as usize,
-                row: sources.row[m as usize] as usize,
-                sep_arcsec: separation_vec_rad(centre, at_reference(m as usize)) / RAD_PER_ARCSEC,
-                probability: p,
-            })
-            .collect();
-        let anchor = o.members[0] as usize;
-        objects.push(MatchedObject {
-            object_id: id_of_rank(o.members[0]),
-            ra_deg,
-            dec_deg,
-            pos_err_arcsec: (1.0 / weight).sqrt() / RAD_PER_ARCSEC,
-            pmra_cosdec_masyr: pm.0,
-            pmdec_masyr: pm.1,
-            members,
-            flags: o.flags,
-            probability: o.probability,
-            related: o.related.iter().map(|&r| id_of_rank(r)).collect(),
-            owner_cell: home_cell(
-                config.partition_order,
-                sources.ra_deg[anchor],
-                sources.dec_deg[anchor],
-            ),
-        });
-    }
+        })
+        .collect();
     let links = candidates
-        .iter()
+        .par_iter()
         .map(|c| {
             let (a, b) = (c.a as usize, c.b as usize);
             let (ca, cb) = (sources.catalog[a] as usize, sources.catalog[b] as usize);

@@ -72,8 +72,12 @@ impl Sources {
                 tables.len()
             )));
         }
-        if tables.len() > u16::MAX as usize {
-            return Err(Error::Usage("too many catalogs (at most 65535)".into()));
+        if tables.len() > super::resolve::MAX_MEMBERS {
+            return Err(Error::Usage(format!(
+                "too many catalogs: {} (at most {})",
+                tables.len(),
+                super::resolve::MAX_MEMBERS
+            )));
         }
         let total: usize = tables.iter().map(SourceTable::len).sum();
         let mut s = Sources {

@@ -32,6 +32,10 @@ use super::flags;
 use super::prepare::{RAD_PER_ARCSEC, Sources};
 use crate::sky::separation::separation_vec_rad;
 
+/// Most members an object can have here (one per catalog); larger groups of
+/// catalogs are refused by [`super::prepare::Sources::prepare`].
+pub const MAX_MEMBERS: usize = 64;
+
 /// Exact-search node budget per group; past it the greedy merge is used.
 pub const NODE_BUDGET: usize = 200_000;
 
@@ -54,14 +58,10 @@ impl Context<'_> {
     /// P₀ = ρ★ / Π ρ_i / (4π)^(n−1) with ρ★ = `common_fraction` × min ρ_i, capped at [`MAX_PRIOR`].
     pub fn ln_prior(&self, catalogs: &[usize]) -> f64 {
         let n = catalogs.len() as f64;
-        let ln_rho: Vec<f64> = catalogs
-            .iter()
-            .map(|&c| self.ln_density_per_sr[c])
-            .collect();
+        let ln_rho = catalogs.iter().map(|&c| self.ln_density_per_sr[c]);
         let ln_common =
-            self.config.common_fraction.ln() + ln_rho.iter().copied().fold(f64::INFINITY, f64::min);
-        let ln_p0 =
-            ln_common - ln_rho.iter().sum::<f64>() - (n - 1.0) * (4.0 * std::f64::consts::PI).ln();
+            self.config.common_fraction.ln() + ln_rho.clone().fold(f64::INFINITY, f64::min);
+        let ln_p0 = ln_common - ln_rho.sum::<f64>() - (n - 1.0) * (4.0 * std::f64::consts::PI).ln();
         ln_p0.min(MAX_PRIOR.ln())
     }
 }
@@ -108,18 +108,21 @@ impl Group<'_> {
 
     /// Log posterior odds of the sources `locals` being one object.
     fn score(&self, locals: &[usize]) -> f64 {
-        if locals.len() < 2 {
+        let n = locals.len();
+        if n < 2 {
             return 0.0;
         }
-        let sigma: Vec<f64> = locals
-            .iter()
-            .map(|&l| self.ctx.sources.sigma_rad[self.members[l] as usize])
-            .collect();
-        let ln_b = ln_bayes_factor(&sigma, |i, j| {
+        // An object has at most one source per catalog, so at most MAX_MEMBERS.
+        let mut sigma = [0.0f64; MAX_MEMBERS];
+        let mut cats = [0usize; MAX_MEMBERS];
+        for (k, &l) in locals.iter().enumerate() {
+            sigma[k] = self.ctx.sources.sigma_rad[self.members[l] as usize];
+            cats[k] = self.catalog[l];
+        }
+        let ln_b = ln_bayes_factor(&sigma[..n], |i, j| {
             self.sep(locals[i], locals[j]) * RAD_PER_ARCSEC
         });
-        let cats: Vec<usize> = locals.iter().map(|&l| self.catalog[l]).collect();
-        ln_posterior_odds(ln_b, self.ctx.ln_prior(&cats))
+        ln_posterior_odds(ln_b, self.ctx.ln_prior(&cats[..n]))
     }
 
     /// True when `locals` can form one object: distinct catalogs, all pairs candidates.
@@ -313,7 +316,14 @@ pub fn resolve_group(
             .map(|&r| ctx.sources.catalog[r as usize] as usize)
             .collect(),
     };
-    let (split, approximate) = if m <= ctx.config.max_exact_group.min(64) {
+    let (split, approximate) = if m == 2 {
+        // One candidate pair: together when the association is more probable than not.
+        if group.score(&[0, 1]) > 0.0 {
+            (vec![vec![0, 1]], false)
+        } else {
+            (vec![vec![0], vec![1]], false)
+        }
+    } else if m <= ctx.config.max_exact_group.min(64) {
         match exact_split(&group) {
             Some(s) => (s, false),
             None => (greedy_split(&group), true),
