@@ -17,6 +17,7 @@
 pub mod catalog;
 pub mod cli;
 pub mod crossmatch;
+pub mod demo;
 pub mod error;
 pub mod output;
 pub mod photometry;

@@ -22,7 +22,7 @@ use crate::crossmatch::systematics::{CatalogOffset, match_with_offsets};
 use crate::crossmatch::{MatchResult, SourceTable};
 use crate::error::{Error, Result};
 use crate::output::parquet::ParquetOutput;
-use crate::output::run_record::{InputRecord, OutputRecord, RunRecord};
+use crate::output::run_record::{InputRecord, OutputRecord, RunRecord, SedRecord};
 use crate::output::staging::Staging;
 use crate::output::tables::{for_export, links_batch, objects_batch, photometry_batch};
 use crate::output::{csv::write_csv, fits::write_fits, votable::write_votable};
@@ -316,19 +316,20 @@ fn to_json<T: serde::Serialize>(value: &T) -> Result<String> {
 }
 
 /// SED points per band slot and status, for run.json and the summary.
-fn sed_counts(slots: &[BandSlot], seds: &[Sed]) -> Vec<(String, String, Vec<(String, u64)>)> {
+fn sed_counts(slots: &[BandSlot], seds: &[Sed]) -> Vec<SedRecord> {
     slots
         .iter()
         .enumerate()
-        .map(|(k, slot)| {
-            let counts = SedStatus::ALL
+        .map(|(k, slot)| SedRecord {
+            catalog: slot.catalog_name.clone(),
+            band: slot.id().to_string(),
+            by_status: SedStatus::ALL
                 .iter()
                 .map(|st| {
                     let n = seds.iter().filter(|s| s.points[k].status == *st).count() as u64;
                     (st.as_str().to_string(), n)
                 })
-                .collect();
-            (slot.catalog_name.clone(), slot.id().to_string(), counts)
+                .collect(),
         })
         .collect()
 }

@@ -3,6 +3,7 @@
 
 pub mod bands;
 pub mod build;
+pub mod make_demo;
 pub mod progress;
 pub mod vet;
 
@@ -33,6 +34,8 @@ pub enum Command {
     /// nulls and rejections per band, show the first problems, and optionally
     /// write the normalized source table as Parquet.
     Vet(vet::VetArgs),
+    /// Write the invented demo field: six survey catalogs, their schemas, a plan and the truth.
+    MakeDemo(make_demo::MakeDemoArgs),
     /// List the band library: ids, systems, wavelengths, zero points and sources.
     Bands(bands::BandsArgs),
 }
@@ -46,6 +49,7 @@ pub fn run(cli: Cli) -> Result<()> {
         Command::Build(args) => build::run(&args, cli.quiet),
         Command::Vet(args) => vet::run(&args, cli.quiet),
         Command::Bands(args) => bands::run(&args),
+        Command::MakeDemo(args) => make_demo::run(&args),
     }
 }
 

@@ -26,6 +26,7 @@ use rayon::prelude::*;
 use serde::Serialize;
 
 use super::bayes::posterior;
+use super::blends::{Blend, find_blends};
 use super::candidates::{Candidate, find_candidates};
 use super::config::MatchConfig;
 use super::density::footprint_area_sr;
@@ -159,7 +160,8 @@ pub struct MatchStats {
     pub objects_by_members: BTreeMap<usize, usize>,
     /// Objects per flag name.
     pub flags: BTreeMap<String, usize>,
-    /// Seconds per phase.
+    /// Seconds per phase (not serialized, so records of the same inputs are identical).
+    #[serde(skip)]
     pub seconds: PhaseSeconds,
 }
 
@@ -222,9 +224,20 @@ pub fn run_match_with_area(
     let candidates = find_candidates(&sources, config);
     seconds.candidates = t.elapsed().as_secs_f64();
 
+    // Blends take no part in the grouping; their candidates stay in the links.
     let t = Instant::now();
-    let groups = connected_groups(sources.len(), candidates.iter().map(|c| (c.a, c.b)));
-    let per_group = candidates_per_group(&groups, &candidates, sources.len());
+    let blends = find_blends(&sources, config);
+    let mut blended = vec![false; sources.len()];
+    for b in &blends {
+        blended[b.source as usize] = true;
+    }
+    let usable: Vec<Candidate> = candidates
+        .iter()
+        .filter(|c| !blended[c.a as usize] && !blended[c.b as usize])
+        .copied()
+        .collect();
+    let groups = connected_groups(sources.len(), usable.iter().map(|c| (c.a, c.b)));
+    let per_group = candidates_per_group(&groups, &usable, sources.len());
     seconds.groups = t.elapsed().as_secs_f64();
 
     let t = Instant::now();
@@ -237,8 +250,7 @@ pub fn run_match_with_area(
         .par_iter()
         .zip(per_group.par_iter())
         .map(|(members, cands)| {
-            let group_cands: Vec<Candidate> =
-                cands.iter().map(|&k| candidates[k as usize]).collect();
+            let group_cands: Vec<Candidate> = cands.iter().map(|&k| usable[k as usize]).collect();
             resolve_group(&ctx, members, &group_cands)
         })
         .collect();
@@ -247,12 +259,11 @@ pub fn run_match_with_area(
     let t = Instant::now();
     let mut result = assemble(
         tables,
-        &sources,
-        config,
         &ctx,
         &groups,
         resolved,
         &candidates,
+        &blends,
     );
     seconds.assemble = t.elapsed().as_secs_f64();
     result.stats.density_per_deg2 = densities.iter().map(|d| d / DEG2_PER_SR).collect();
@@ -278,13 +289,13 @@ fn candidates_per_group(groups: &[Vec<u32>], candidates: &[Candidate], n: usize)
 
 fn assemble(
     tables: &[SourceTable],
-    sources: &Sources,
-    config: &MatchConfig,
     ctx: &Context,
     groups: &[Vec<u32>],
     resolved: Vec<Vec<ResolvedObject>>,
     candidates: &[Candidate],
+    blends: &[Blend],
 ) -> MatchResult {
+    let (sources, config) = (ctx.sources, ctx.config);
     let mut stats = MatchStats {
         candidates: candidates.len(),
         groups: groups.len(),
@@ -310,6 +321,21 @@ fn assemble(
         for &m in &o.members {
             object_of_rank[m as usize] = k as u32;
         }
+    }
+    for b in blends {
+        let k = object_of_rank[b.source as usize] as usize;
+        all[k].flags |= flags::BLEND;
+        for &u in &b.under {
+            let under = object_of_rank[u as usize] as usize;
+            let (anchor_blend, anchor_under) = (all[k].members[0], all[under].members[0]);
+            all[under].flags |= flags::HAS_BLEND;
+            all[under].related.push(anchor_blend);
+            all[k].related.push(anchor_under);
+        }
+    }
+    for o in &mut all {
+        o.related.sort_unstable();
+        o.related.dedup();
     }
     let mut objects: Vec<MatchedObject> = all
         .par_iter()

@@ -6,7 +6,8 @@
 //! 1. [`prepare`]: sources in rank order at the reference epoch;
 //! 2. [`density`]: each catalog's surface density, for the prior;
 //! 3. [`candidates`]: pairs within tolerance ([`tolerance`]), per HEALPix cell;
-//! 4. [`groups`]: connected groups of the candidate graph;
+//! 4. [`blends`]: coarse sources covering several finer ones, kept apart;
+//!    [`groups`]: connected groups of the remaining candidate graph;
 //! 5. [`resolve`]: each group split into objects by maximum posterior, with
 //!    probabilities ([`bayes`]) and flags ([`flags`]);
 //! 6. [`engine`]: the run, and the objects and links it assembles.
@@ -28,6 +29,7 @@
 //! ```
 
 pub mod bayes;
+pub mod blends;
 pub mod candidates;
 pub mod config;
 pub mod density;

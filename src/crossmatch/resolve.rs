@@ -1,7 +1,7 @@
 //! Resolving one connected group of candidates into objects.
 //!
 //! A group's sources are split into objects, each with at most one source per
-//! catalog and every pair of its sources a candidate pair, by maximizing the sum
+//! catalog and connected through candidate pairs, by maximizing the sum
 //! over objects of the log posterior odds that the object's sources are one
 //! source on the sky:
 //!
@@ -11,17 +11,17 @@
 //! ApJ 679, 301); see [`super::bayes`]. Each term is the log odds of "one object"
 //! against "unrelated sources", so the sum compares any split of the group with
 //! the all-separate split, and the best split is the maximum a posteriori one.
-//! Groups of up to `max_exact_group` sources are searched exhaustively (all
-//! cliques, in rank order, the first best split kept); larger groups, or searches
+//! The Bayes factor of an object uses the separations of all its pairs, candidate
+//! or not, so a member far from the others costs the object its probability.
+//! Groups of up to `max_exact_group` sources are searched exhaustively (every
+//! split, in rank order, the first best kept); larger groups, or searches
 //! over a node budget, are merged greedily by decreasing score and flagged
 //! `approximate`.
 //!
 //! Afterwards each object gets member probabilities p_i = σ(score(O) − score(O∖i))
 //! (σ the logistic function; for two sources this is the pair's posterior), and
-//! flags: see [`super::flags`]. A source of a coarser catalog with candidates in
-//! one finer catalog that resolves them into two or more sources, in different
-//! objects and closer together than the coarse catalog's resolution, is a blend: it is taken out of any object and kept as its own, flagged `blend`,
-//! and the objects under it are flagged `has_blend`.
+//! flags: see [`super::flags`]. Blends are found before resolution, in
+//! [`super::blends`].
 
 use std::collections::HashMap;
 
@@ -30,14 +30,14 @@ use super::candidates::Candidate;
 use super::config::MatchConfig;
 use super::flags;
 use super::prepare::{RAD_PER_ARCSEC, Sources};
-use crate::sky::separation::separation_vec_rad;
+use crate::sky::separation::separation_deg;
 
 /// Most members an object can have here (one per catalog); larger groups of
 /// catalogs are refused by [`super::prepare::Sources::prepare`].
 pub const MAX_MEMBERS: usize = 64;
 
 /// Exact-search node budget per group; past it the greedy merge is used.
-pub const NODE_BUDGET: usize = 200_000;
+pub const NODE_BUDGET: usize = 20_000;
 
 /// Prior probabilities are capped at this value, so that no association is
 /// believed before its positions are seen (common practice).
@@ -88,8 +88,10 @@ pub struct ResolvedObject {
 struct Group<'a> {
     ctx: &'a Context<'a>,
     members: &'a [u32],
-    /// sep_arcsec of candidate pairs, NaN otherwise (m × m).
+    /// Separation of every pair at a common epoch, arcsec (m × m).
     sep: Vec<f64>,
+    /// Whether each pair is a candidate pair (m × m).
+    candidate: Vec<bool>,
     catalog: Vec<usize>,
 }
 
@@ -103,7 +105,7 @@ impl Group<'_> {
     }
 
     fn adjacent(&self, i: usize, j: usize) -> bool {
-        !self.sep(i, j).is_nan()
+        self.candidate[i * self.m() + j]
     }
 
     /// Log posterior odds of the sources `locals` being one object.
@@ -125,12 +127,13 @@ impl Group<'_> {
         ln_posterior_odds(ln_b, self.ctx.ln_prior(&cats[..n]))
     }
 
-    /// True when `locals` can form one object: distinct catalogs, all pairs candidates.
-    fn valid(&self, locals: &[usize]) -> bool {
+    /// True when `locals` are from distinct catalogs (an object has at most one
+    /// source per catalog).
+    fn distinct_catalogs(&self, locals: &[usize]) -> bool {
         locals.iter().enumerate().all(|(k, &i)| {
             locals[k + 1..]
                 .iter()
-                .all(|&j| self.catalog[i] != self.catalog[j] && self.adjacent(i, j))
+                .all(|&j| self.catalog[i] != self.catalog[j])
         })
     }
 }
@@ -143,7 +146,8 @@ fn locals_of(mask: u64) -> Vec<usize> {
     bits(mask).collect()
 }
 
-/// Exhaustive search over splits of a small group.
+/// Exhaustive search over splits of a small group: every object is a set of
+/// sources from distinct catalogs, connected through candidate pairs.
 struct Exact<'g> {
     group: &'g Group<'g>,
     neighbours: Vec<u64>,
@@ -156,13 +160,28 @@ struct Exact<'g> {
 }
 
 impl Exact<'_> {
-    fn clique_score(&mut self, clique: u64) -> f64 {
-        if let Some(s) = self.memo.get(&clique) {
+    fn object_score(&mut self, object: u64) -> f64 {
+        if let Some(s) = self.memo.get(&object) {
             return *s;
         }
-        let s = self.group.score(&locals_of(clique));
-        self.memo.insert(clique, s);
+        let s = self.group.score(&locals_of(object));
+        self.memo.insert(object, s);
         s
+    }
+
+    /// The sources of `within` reachable from those of `from` through candidate pairs.
+    fn reach(&self, from: u64, within: u64) -> u64 {
+        let mut seen = from & within;
+        let mut frontier = seen;
+        while frontier != 0 {
+            let mut next = 0;
+            for b in bits(frontier) {
+                next |= self.neighbours[b];
+            }
+            frontier = next & within & !seen;
+            seen |= frontier;
+        }
+        seen
     }
 
     /// Splits the unassigned sources; false when the node budget ran out.
@@ -178,33 +197,43 @@ impl Exact<'_> {
             }
             return true;
         }
+        // The lowest unassigned source starts the next object; its other members
+        // come from the sources it can reach, at most one per catalog.
         let s = (!assigned & self.full).trailing_zeros() as usize;
-        let allowed = self.neighbours[s] & !assigned & !((1u64 << (s + 1)) - 1);
-        self.grow(1u64 << s, allowed, assigned, score)
-    }
-
-    /// Tries `clique` as an object, then every extension of it by sources of
-    /// `allowed` (higher bits only, so each clique is met once).
-    fn grow(&mut self, clique: u64, allowed: u64, assigned: u64, score: f64) -> bool {
-        let gain = self.clique_score(clique);
-        self.current.push(clique);
-        let ok = self.split(assigned | clique, score + gain);
-        self.current.pop();
-        if !ok {
-            return false;
-        }
-        for t in bits(allowed) {
-            let cat = self.group.catalog[t];
-            if bits(clique).any(|c| self.group.catalog[c] == cat) {
+        let reachable = self.reach(1u64 << s, !assigned & self.full) & !(1u64 << s);
+        let mut options: Vec<Vec<usize>> = Vec::new();
+        for b in bits(reachable) {
+            let cat = self.group.catalog[b];
+            if cat == self.group.catalog[s] {
                 continue;
             }
-            let higher = !((1u64 << (t + 1)) - 1);
-            if !self.grow(
-                clique | (1u64 << t),
-                allowed & self.neighbours[t] & higher,
-                assigned,
-                score,
-            ) {
+            match options.iter_mut().find(|o| self.group.catalog[o[0]] == cat) {
+                Some(o) => o.push(b),
+                None => options.push(vec![b]),
+            }
+        }
+        self.choose(&options, 1u64 << s, assigned, score)
+    }
+
+    /// Chooses none or one source of each catalog in `options`, then tries the
+    /// object if it is connected.
+    fn choose(&mut self, options: &[Vec<usize>], object: u64, assigned: u64, score: f64) -> bool {
+        let Some((first, rest)) = options.split_first() else {
+            if self.reach(object & object.wrapping_neg(), object) != object {
+                return true;
+            }
+            self.nodes += 1;
+            let gain = self.object_score(object);
+            self.current.push(object);
+            let ok = self.split(assigned | object, score + gain);
+            self.current.pop();
+            return ok;
+        };
+        if !self.choose(rest, object, assigned, score) {
+            return false;
+        }
+        for &t in first {
+            if !self.choose(rest, object | (1u64 << t), assigned, score) {
                 return false;
             }
         }
@@ -262,7 +291,7 @@ fn greedy_split(group: &Group) -> Vec<Vec<usize>> {
         let mut merged = objects[oi].clone();
         merged.extend_from_slice(&objects[oj]);
         merged.sort_unstable();
-        if !group.valid(&merged) {
+        if !group.distinct_catalogs(&merged) {
             continue;
         }
         if group.score(&merged) > group.score(&objects[oi]) + group.score(&objects[oj]) {
@@ -302,15 +331,33 @@ pub fn resolve_group(
             .expect("candidate inside its group")
     };
     let mut sep = vec![f64::NAN; m * m];
+    let mut candidate = vec![false; m * m];
     for c in candidates {
         let (i, j) = (local(c.a), local(c.b));
         sep[i * m + j] = c.sep_arcsec;
         sep[j * m + i] = c.sep_arcsec;
+        candidate[i * m + j] = true;
+        candidate[j * m + i] = true;
+    }
+    // Pairs that are not candidates still enter the Bayes factor of an object
+    // holding both: their separation at a common epoch.
+    let epoch = ctx.config.reference_epoch_yr;
+    for i in 0..m {
+        for j in i + 1..m {
+            if sep[i * m + j].is_nan() {
+                let (a, b) = (members[i] as usize, members[j] as usize);
+                let ((ra_a, dec_a), (ra_b, dec_b)) = ctx.sources.position_for_pair(a, b, epoch);
+                let d = separation_deg(ra_a, dec_a, ra_b, dec_b) * 3600.0;
+                sep[i * m + j] = d;
+                sep[j * m + i] = d;
+            }
+        }
     }
     let group = Group {
         ctx,
         members,
         sep,
+        candidate,
         catalog: members
             .iter()
             .map(|&r| ctx.sources.catalog[r as usize] as usize)
@@ -331,37 +378,17 @@ pub fn resolve_group(
     } else {
         (greedy_split(&group), true)
     };
-    let mut objects: Vec<Vec<usize>> = split;
-    let blends = find_blends(&group, &mut objects);
+    let objects: Vec<Vec<usize>> = split;
     let mut object_of = vec![0usize; m];
     for (k, o) in objects.iter().enumerate() {
         for &l in o {
             object_of[l] = k;
         }
     }
-    let mut blended = vec![false; m];
-    for (c, _) in &blends {
-        blended[*c] = true;
-    }
     let mut out: Vec<ResolvedObject> = objects
         .iter()
-        .map(|o| describe(&group, o, &object_of, &blended, approximate))
+        .map(|o| describe(&group, o, &object_of, approximate))
         .collect();
-    for (coarse, under) in blends {
-        let k = object_of[coarse];
-        out[k].flags |= flags::BLEND;
-        for &u in &under {
-            out[u].flags |= flags::HAS_BLEND;
-            let anchor = out[k].members[0];
-            out[u].related.push(anchor);
-            let anchor_u = out[u].members[0];
-            out[k].related.push(anchor_u);
-        }
-    }
-    for o in &mut out {
-        o.related.sort_unstable();
-        o.related.dedup();
-    }
     out.sort_by_key(|o| o.members[0]);
     out
 }
@@ -382,20 +409,16 @@ fn describe(
     group: &Group,
     object: &[usize],
     object_of: &[usize],
-    blended: &[bool],
     approximate: bool,
 ) -> ResolvedObject {
     let extra = if approximate { flags::APPROXIMATE } else { 0 };
     let mut fl = extra;
     // Ambiguity: a member with two candidates in one catalog, or whose candidate
-    // went to another object. Blends are accounted for by their own flags.
+    // went to another object.
     for &i in object {
-        if blended[i] {
-            continue;
-        }
         let mut seen: Vec<usize> = Vec::new();
         for j in 0..group.m() {
-            if j == i || blended[j] || !group.adjacent(i, j) {
+            if j == i || !group.adjacent(i, j) {
                 continue;
             }
             if seen.contains(&group.catalog[j]) || object_of[j] != object_of[i] {
@@ -432,63 +455,4 @@ fn describe(
         flags: fl,
         related: Vec::new(),
     }
-}
-
-/// Finds blends, takes each blended coarse source out of its object into one of
-/// its own, and returns (coarse local index, indices of the objects under it).
-fn find_blends(group: &Group, objects: &mut Vec<Vec<usize>>) -> Vec<(usize, Vec<usize>)> {
-    let settings = &group.ctx.config.catalogs;
-    let resolution = |l: usize| settings[group.catalog[l]].resolution_arcsec;
-    let m = group.m();
-    let mut object_of = vec![0usize; m];
-    for (k, o) in objects.iter().enumerate() {
-        for &l in o {
-            object_of[l] = k;
-        }
-    }
-    let mut blended: Vec<(usize, Vec<usize>)> = Vec::new();
-    for c in 0..m {
-        let Some(res_c) = resolution(c) else { continue };
-        let finer: Vec<usize> = (0..m)
-            .filter(|&t| group.adjacent(c, t) && resolution(t).is_some_and(|r| r < res_c))
-            .collect();
-        let mut under: Vec<usize> = Vec::new();
-        for (x, &t1) in finer.iter().enumerate() {
-            for &t2 in &finer[x + 1..] {
-                // Two sources that one finer catalog resolves, in different objects.
-                if object_of[t1] == object_of[t2] || group.catalog[t1] != group.catalog[t2] {
-                    continue;
-                }
-                let sep_arcsec = separation_vec_rad(
-                    group.ctx.sources.vec[group.members[t1] as usize],
-                    group.ctx.sources.vec[group.members[t2] as usize],
-                ) / RAD_PER_ARCSEC;
-                if sep_arcsec < res_c {
-                    under.push(object_of[t1]);
-                    under.push(object_of[t2]);
-                }
-            }
-        }
-        under.sort_unstable();
-        under.dedup();
-        if under.len() >= 2 {
-            blended.push((c, under));
-        }
-    }
-    // Take each blended source out of its object into an object of its own.
-    let mut result = Vec::with_capacity(blended.len());
-    for (c, under) in blended {
-        let k = object_of[c];
-        let under: Vec<usize> = under
-            .into_iter()
-            .filter(|&u| u != k || objects[k].len() > 1)
-            .collect();
-        if objects[k].len() > 1 {
-            objects[k].retain(|&l| l != c);
-            objects.push(vec![c]);
-            object_of[c] = objects.len() - 1;
-        }
-        result.push((c, under));
-    }
-    result
 }

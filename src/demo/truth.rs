@@ -285,7 +285,8 @@ fn young_star_position(rng: &mut Rng) -> (f64, f64) {
 
 /// Reddened blackbody photosphere: F_ν = π (R/d)² B_ν(T) · 10^(−0.4 A_V A_λ/A_V), Jy.
 fn photosphere(grid: &BandGrid, t_k: f64, radius_rsun: f64, distance_pc: f64, av: f64) -> Vec<f64> {
-    let omega = std::f64::consts::PI * (radius_rsun * SOLAR_RADIUS_M / (distance_pc * PARSEC_M)).powi(2);
+    let omega =
+        std::f64::consts::PI * (radius_rsun * SOLAR_RADIUS_M / (distance_pc * PARSEC_M)).powi(2);
     grid.wavelength_um
         .iter()
         .map(|&l| omega * planck_jy_per_sr(l, t_k) * 10f64.powf(-0.4 * av * extinction_ratio(l)))
@@ -340,11 +341,15 @@ fn make_object(kind: Kind, high_pm: bool, grid: &BandGrid, rng: &mut Rng) -> Tru
                 let pa = rng.range(0.0, std::f64::consts::TAU);
                 pmra = speed * pa.sin();
                 pmdec = speed * pa.cos();
-                (rng.range(3200.0, 5200.0), rng.range(15.0, 80.0), rng.range(0.0, 0.1))
+                (
+                    rng.range(3200.0, 5200.0),
+                    rng.range(15.0, 80.0),
+                    rng.range(0.0, 0.1),
+                )
             } else {
                 // Cool stars dominate: T = 3200 K + 5800 K · u².
                 let u = rng.uniform();
-                let d = (rng.range(100f64.ln(), 8000f64.ln())).exp();
+                let d = (rng.range(250f64.ln(), 15_000f64.ln())).exp();
                 (3200.0 + 5800.0 * u * u, d, rng.range(0.0, 3.0))
             };
             let r = (t / SOLAR_TEFF_K).powf(1.5);
@@ -376,7 +381,7 @@ fn make_object(kind: Kind, high_pm: bool, grid: &BandGrid, rng: &mut Rng) -> Tru
         Kind::Galaxy => {
             let av = rng.range(0.5, 2.5);
             let beta = rng.range(0.0, 0.8);
-            let k = rng.range(0.2, 1.5);
+            let k = rng.range(0.1, 0.8);
             let norm = planck_jy_per_sr(1.6, 3500.0);
             let cut8 = (-(3.0f64 / 8.0).powi(2)).exp();
             let shape: Vec<f64> = grid
@@ -420,9 +425,17 @@ fn place_pairs(objects: &mut [TruthObject], rng: &mut Rng) {
     let free: Vec<usize> = (0..objects.len())
         .filter(|&i| objects[i].pmra_cosdec_masyr == 0.0 && objects[i].pmdec_masyr == 0.0)
         .collect();
-    let mut young: Vec<usize> = free.iter().copied().filter(|&i| is_young(&objects[i])).collect();
-    let mut others: Vec<usize> = free.iter().copied().filter(|&i| !is_young(&objects[i])).collect();
-    let mut take = |pool: &mut Vec<usize>, rng: &mut Rng| pool.swap_remove(rng.below(pool.len()));
+    let mut young: Vec<usize> = free
+        .iter()
+        .copied()
+        .filter(|&i| is_young(&objects[i]))
+        .collect();
+    let mut others: Vec<usize> = free
+        .iter()
+        .copied()
+        .filter(|&i| !is_young(&objects[i]))
+        .collect();
+    let take = |pool: &mut Vec<usize>, rng: &mut Rng| pool.swap_remove(rng.below(pool.len()));
     for p in 0..WIDE_PAIRS + CLOSE_PAIRS {
         let (primary, secondary) = if p < 5 {
             (take(&mut young, rng), take(&mut young, rng))
@@ -476,9 +489,9 @@ mod tests {
 
     #[test]
     fn spectral_index_of_power_laws() {
-        // F_ν ∝ λ² (Rayleigh–Jeans) gives α = −3; F_ν ∝ λ (νF_ν flat) gives α = 0 (FIELD §4.1).
+        // F_ν ∝ ν² ∝ λ⁻² (Rayleigh–Jeans) gives α = −3; F_ν ∝ λ (νF_ν flat) gives α = 0 (FIELD §4.1).
         let l = [2.159, 3.55, 7.872, 23.675];
-        let rj: Vec<f64> = l.iter().map(|x| x * x).collect();
+        let rj: Vec<f64> = l.iter().map(|x| 1.0 / (x * x)).collect();
         let flat: Vec<f64> = l.to_vec();
         assert!((spectral_index(&l, &rj) + 3.0).abs() < 1e-12);
         assert!(spectral_index(&l, &flat).abs() < 1e-12);

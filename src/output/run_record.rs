@@ -41,45 +41,6 @@ pub struct OutputRecord {
     pub rows: u64,
 }
 
-/// Match counts without timings.
-#[derive(Debug, Clone, Serialize)]
-pub struct MatchRecord {
-    /// Candidate pairs.
-    pub candidates: usize,
-    /// Connected groups.
-    pub groups: usize,
-    /// Largest group, in sources.
-    pub largest_group: usize,
-    /// Groups resolved greedily.
-    pub approximate_groups: usize,
-    /// Objects written.
-    pub objects: usize,
-    /// Objects left out by the primary-catalog rule.
-    pub objects_not_primary: usize,
-    /// Objects per number of members.
-    pub objects_by_members: BTreeMap<usize, usize>,
-    /// Objects per flag.
-    pub flags: BTreeMap<String, usize>,
-    /// Surface density per catalog used by the prior, per square degree.
-    pub density_per_deg2: Vec<f64>,
-}
-
-impl From<&MatchStats> for MatchRecord {
-    fn from(s: &MatchStats) -> MatchRecord {
-        MatchRecord {
-            candidates: s.candidates,
-            groups: s.groups,
-            largest_group: s.largest_group,
-            approximate_groups: s.approximate_groups,
-            objects: s.objects,
-            objects_not_primary: s.objects_not_primary,
-            objects_by_members: s.objects_by_members.clone(),
-            flags: s.flags.clone(),
-            density_per_deg2: s.density_per_deg2.clone(),
-        }
-    }
-}
-
 /// Per band of each catalog: SED points by status.
 #[derive(Debug, Clone, Serialize)]
 pub struct SedRecord {
@@ -108,8 +69,8 @@ pub struct RunRecord {
     pub astrometric_reference: Option<String>,
     /// Inputs with checksums and read counts.
     pub inputs: Vec<InputRecord>,
-    /// Match counts.
-    pub matching: MatchRecord,
+    /// Match counts (timings left out).
+    pub matching: MatchStats,
     /// Astrometric offsets against the reference.
     pub offsets: Vec<CatalogOffset>,
     /// False-match estimates per catalog pair.
@@ -129,7 +90,7 @@ impl RunRecord {
         result: &MatchResult,
         offsets: Vec<CatalogOffset>,
         false_matches: Vec<FalseMatchEstimate>,
-        sed: Vec<(String, String, Vec<(String, u64)>)>,
+        sed_points: Vec<SedRecord>,
         outputs: Vec<OutputRecord>,
     ) -> RunRecord {
         RunRecord {
@@ -142,17 +103,10 @@ impl RunRecord {
                 .astrometric_reference
                 .map(|i| plan.catalogs[i].name.clone()),
             inputs,
-            matching: MatchRecord::from(&result.stats),
+            matching: result.stats.clone(),
             offsets,
             false_matches,
-            sed_points: sed
-                .iter()
-                .map(|(catalog, band, counts)| SedRecord {
-                    catalog: catalog.clone(),
-                    band: band.clone(),
-                    by_status: counts.iter().cloned().collect(),
-                })
-                .collect(),
+            sed_points,
             outputs,
         }
     }
