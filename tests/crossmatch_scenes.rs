@@ -166,7 +166,7 @@ fn obj(id: &str, members: &[&str], status: &str, related: &[&str]) -> Summary {
 #[test]
 fn the_scene_resolves_into_the_expected_objects_after_offset_correction() {
     let (tables, config, area) = scene();
-    let (result, offsets) = match_with_offsets(&tables, &config, Some(area), 0, true).unwrap();
+    let (result, offsets, _) = match_with_offsets(&tables, &config, Some(area), 0, true).unwrap();
     let expected = vec![
         obj(
             "opt:A1",

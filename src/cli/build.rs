@@ -83,22 +83,25 @@ pub fn build(plan: &Plan, out_dir: &Path, quiet: bool) -> Result<BuildOutcome> {
     let tables: Vec<SourceTable> = read.iter().map(|r| r.table.clone()).collect();
 
     let bar = spinner("cross-matching", quiet);
-    let (result, offsets): (MatchResult, Vec<CatalogOffset>) = match plan.astrometric_reference {
-        Some(reference) => match_with_offsets(
-            &tables,
-            &plan.matching,
-            plan.area_sr,
-            reference,
-            plan.correct_offsets,
-        )?,
-        None => (
-            crate::crossmatch::run_match_with_area(&tables, &plan.matching, plan.area_sr)?,
-            Vec::new(),
-        ),
-    };
+    // With offset correction, false matches are estimated on the corrected positions.
+    let (result, offsets, matched_tables): (MatchResult, Vec<CatalogOffset>, Vec<SourceTable>) =
+        match plan.astrometric_reference {
+            Some(reference) => match_with_offsets(
+                &tables,
+                &plan.matching,
+                plan.area_sr,
+                reference,
+                plan.correct_offsets,
+            )?,
+            None => (
+                crate::crossmatch::run_match_with_area(&tables, &plan.matching, plan.area_sr)?,
+                Vec::new(),
+                tables.clone(),
+            ),
+        };
     bar.set_message("estimating false matches");
     let false_matches: Vec<FalseMatchEstimate> = if plan.false_matches {
-        estimate_false_matches(&tables, &plan.matching)?
+        estimate_false_matches(&matched_tables, &plan.matching)?
     } else {
         Vec::new()
     };

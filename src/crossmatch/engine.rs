@@ -257,14 +257,7 @@ pub fn run_match_with_area(
     seconds.resolution = t.elapsed().as_secs_f64();
 
     let t = Instant::now();
-    let mut result = assemble(
-        tables,
-        &ctx,
-        &groups,
-        resolved,
-        &candidates,
-        &blends,
-    );
+    let mut result = assemble(tables, &ctx, &groups, resolved, &candidates, &blends);
     seconds.assemble = t.elapsed().as_secs_f64();
     result.stats.density_per_deg2 = densities.iter().map(|d| d / DEG2_PER_SR).collect();
     result.stats.sources = tables.iter().map(SourceTable::len).collect();

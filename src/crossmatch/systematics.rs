@@ -135,7 +135,7 @@ pub fn shift_table(table: &mut SourceTable, east_arcsec: f64, north_arcsec: f64)
 /// Measures offsets against `reference` ([`measure_offsets`]) and, with
 /// `correct`, moves each catalog worth correcting by minus its offset and measures
 /// again, until no offset is worth correcting; then runs the match with `config`
-/// on the (corrected) tables.
+/// on the (corrected) tables, which it returns with the result.
 ///
 /// # Errors
 /// As [`super::engine::run_match`].
@@ -145,7 +145,7 @@ pub fn match_with_offsets(
     area_sr: Option<f64>,
     reference: usize,
     correct: bool,
-) -> Result<(MatchResult, Vec<CatalogOffset>)> {
+) -> Result<(MatchResult, Vec<CatalogOffset>, Vec<SourceTable>)> {
     let mut working: Vec<SourceTable> = tables.to_vec();
     let mut applied = vec![(0.0, 0.0); tables.len()];
     let initial = measure_offsets(&working, config, reference)?;
@@ -175,5 +175,5 @@ pub fn match_with_offsets(
             applied_arcsec: applied[catalog],
         })
         .collect();
-    Ok((result, offsets))
+    Ok((result, offsets, working))
 }
