@@ -54,7 +54,15 @@ fn main() {
         "{:<8} {:>14} {:>14} {:>16} {:>8}",
         "format", "baseline s", "fluxloom s", "fluxloom rows/s", "ratio"
     );
+    // FLUXLOOM_BENCH_FORMATS=parquet (or csv) runs one format only, e.g. for profiling.
+    let only = std::env::var("FLUXLOOM_BENCH_FORMATS").ok();
     for (label, path, format) in [("csv", &csv, "csv"), ("parquet", &parquet, "parquet")] {
+        if only
+            .as_deref()
+            .is_some_and(|o| !o.split(',').any(|f| f == format))
+        {
+            continue;
+        }
         let schema =
             SurveySchema::from_str(&schema_text(format), Path::new("bench.toml"), &library)
                 .unwrap();

@@ -335,20 +335,18 @@ fn assemble(
         .map(|o| {
             // The object's proper motion is the mean of its members' own; members
             // without one are carried with it from their epoch to the reference epoch.
-            let moving: Vec<(f64, f64)> = o
-                .members
-                .iter()
-                .filter(|&&m| sources.has_pm(m as usize))
-                .map(|&m| sources.pm_masyr[m as usize])
-                .collect();
-            let pm = if moving.is_empty() {
+            let (mut pm_sum, mut moving) = ((0.0, 0.0), 0usize);
+            for &m in &o.members {
+                if sources.has_pm(m as usize) {
+                    let p = sources.pm_masyr[m as usize];
+                    pm_sum = (pm_sum.0 + p.0, pm_sum.1 + p.1);
+                    moving += 1;
+                }
+            }
+            let pm = if moving == 0 {
                 (f64::NAN, f64::NAN)
             } else {
-                let k = moving.len() as f64;
-                (
-                    moving.iter().map(|p| p.0).sum::<f64>() / k,
-                    moving.iter().map(|p| p.1).sum::<f64>() / k,
-                )
+                (pm_sum.0 / moving as f64, pm_sum.1 / moving as f64)
             };
             let at_reference = |m: usize| -> Vec3 {
                 if sources.has_pm(m) || pm.0.is_nan() || !sources.epoch_yr[m].is_finite() {
@@ -435,16 +433,26 @@ fn assemble(
         stats.objects_not_primary = before - objects.len();
     }
     stats.objects = objects.len();
+    let mut by_flag = [0usize; flags::ALL.len()];
+    let mut clean = 0;
     for o in &objects {
         *stats.objects_by_members.entry(o.members.len()).or_insert(0) += 1;
-        for (bit, name) in flags::ALL {
+        for (k, (bit, _)) in flags::ALL.iter().enumerate() {
             if o.flags & bit != 0 {
-                *stats.flags.entry(name.to_string()).or_insert(0) += 1;
+                by_flag[k] += 1;
             }
         }
         if o.flags & !flags::SINGLE_CATALOG == 0 && o.members.len() > 1 {
-            *stats.flags.entry("clean".to_string()).or_insert(0) += 1;
+            clean += 1;
         }
+    }
+    for ((_, name), n) in flags::ALL.iter().zip(by_flag) {
+        if n > 0 {
+            stats.flags.insert(name.to_string(), n);
+        }
+    }
+    if clean > 0 {
+        stats.flags.insert("clean".to_string(), clean);
     }
     MatchResult {
         objects,

@@ -24,6 +24,7 @@
 //! [`super::blends`].
 
 use std::collections::HashMap;
+use std::hash::{BuildHasherDefault, Hasher};
 
 use super::bayes::{ln_bayes_factor, ln_posterior_odds};
 use super::candidates::Candidate;
@@ -37,7 +38,7 @@ use crate::sky::separation::separation_deg;
 pub const MAX_MEMBERS: usize = 64;
 
 /// Exact-search node budget per group; past it the greedy merge is used.
-pub const NODE_BUDGET: usize = 20_000;
+pub const NODE_BUDGET: usize = 100_000;
 
 /// Prior probabilities are capped at this value, so that no association is
 /// believed before its positions are seen (common practice).
@@ -138,8 +139,36 @@ impl Group<'_> {
     }
 }
 
-fn bits(mask: u64) -> impl Iterator<Item = usize> {
-    (0..64).filter(move |b| mask & (1u64 << b) != 0)
+/// A hasher for bit-mask keys: one multiplication (Fibonacci hashing, Knuth,
+/// The Art of Computer Programming vol. 3 §6.4), far cheaper than the default.
+#[derive(Default)]
+struct MaskHasher(u64);
+
+impl Hasher for MaskHasher {
+    fn finish(&self) -> u64 {
+        self.0
+    }
+
+    fn write(&mut self, bytes: &[u8]) {
+        for &b in bytes {
+            self.0 = (self.0 ^ u64::from(b)).wrapping_mul(0x9E37_79B9_7F4A_7C15);
+        }
+    }
+
+    fn write_u64(&mut self, n: u64) {
+        self.0 = n.wrapping_mul(0x9E37_79B9_7F4A_7C15);
+    }
+}
+
+/// The set bits of `mask`, lowest first.
+fn bits(mut mask: u64) -> impl Iterator<Item = usize> {
+    std::iter::from_fn(move || {
+        (mask != 0).then(|| {
+            let b = mask.trailing_zeros() as usize;
+            mask &= mask - 1;
+            b
+        })
+    })
 }
 
 fn locals_of(mask: u64) -> Vec<usize> {
@@ -152,7 +181,7 @@ struct Exact<'g> {
     group: &'g Group<'g>,
     neighbours: Vec<u64>,
     full: u64,
-    memo: HashMap<u64, f64>,
+    memo: HashMap<u64, f64, BuildHasherDefault<MaskHasher>>,
     best: f64,
     best_split: Vec<u64>,
     current: Vec<u64>,
@@ -164,7 +193,13 @@ impl Exact<'_> {
         if let Some(s) = self.memo.get(&object) {
             return *s;
         }
-        let s = self.group.score(&locals_of(object));
+        let mut locals = [0usize; MAX_MEMBERS];
+        let mut n = 0;
+        for b in bits(object) {
+            locals[n] = b;
+            n += 1;
+        }
+        let s = self.group.score(&locals[..n]);
         self.memo.insert(object, s);
         s
     }
@@ -201,23 +236,31 @@ impl Exact<'_> {
         // come from the sources it can reach, at most one per catalog.
         let s = (!assigned & self.full).trailing_zeros() as usize;
         let reachable = self.reach(1u64 << s, !assigned & self.full) & !(1u64 << s);
-        let mut options: Vec<Vec<usize>> = Vec::new();
+        // The reachable sources grouped by catalog, as bit masks (catalogs in the
+        // order their first source appears), without the starting source's catalog.
+        let mut options = [0u64; MAX_MEMBERS];
+        let mut option_catalog = [usize::MAX; MAX_MEMBERS];
+        let mut count = 0;
         for b in bits(reachable) {
             let cat = self.group.catalog[b];
             if cat == self.group.catalog[s] {
                 continue;
             }
-            match options.iter_mut().find(|o| self.group.catalog[o[0]] == cat) {
-                Some(o) => o.push(b),
-                None => options.push(vec![b]),
+            match option_catalog[..count].iter().position(|&c| c == cat) {
+                Some(k) => options[k] |= 1u64 << b,
+                None => {
+                    option_catalog[count] = cat;
+                    options[count] = 1u64 << b;
+                    count += 1;
+                }
             }
         }
-        self.choose(&options, 1u64 << s, assigned, score)
+        self.choose(&options[..count], 1u64 << s, assigned, score)
     }
 
     /// Chooses none or one source of each catalog in `options`, then tries the
     /// object if it is connected.
-    fn choose(&mut self, options: &[Vec<usize>], object: u64, assigned: u64, score: f64) -> bool {
+    fn choose(&mut self, options: &[u64], object: u64, assigned: u64, score: f64) -> bool {
         let Some((first, rest)) = options.split_first() else {
             if self.reach(object & object.wrapping_neg(), object) != object {
                 return true;
@@ -232,7 +275,7 @@ impl Exact<'_> {
         if !self.choose(rest, object, assigned, score) {
             return false;
         }
-        for &t in first {
+        for t in bits(*first) {
             if !self.choose(rest, object | (1u64 << t), assigned, score) {
                 return false;
             }
@@ -254,7 +297,7 @@ fn exact_split(group: &Group) -> Option<Vec<Vec<usize>>> {
         group,
         neighbours,
         full: if m == 64 { u64::MAX } else { (1u64 << m) - 1 },
-        memo: HashMap::new(),
+        memo: HashMap::default(),
         best: f64::NEG_INFINITY,
         best_split: Vec::new(),
         current: Vec::new(),

@@ -932,8 +932,8 @@ impl BandOutput {
         let count = if has_flux { 5 } else { 3 };
         BandOutput {
             has_flux,
-            values: vec![vec![0.0; n]; count],
-            valid: vec![vec![false; n]; count],
+            values: (0..count).map(|_| vec![0.0; n]).collect(),
+            valid: (0..count).map(|_| vec![false; n]).collect(),
             status: vec![0; n],
         }
     }
