@@ -23,37 +23,21 @@ use std::time::{Duration, Instant};
 use arrow::array::{ArrayRef, Float64Array, RecordBatch, StringArray};
 use arrow::datatypes::{DataType, Field, Schema};
 use fluxloom::crossmatch::{MatchConfig, MatchResult, SourceTable, Tolerance, run_match};
+use fluxloom::rng::Rng;
 use parquet::arrow::ArrowWriter;
 use parquet::arrow::arrow_reader::ParquetRecordBatchReaderBuilder;
-
-/// Deterministic pseudo-random numbers (SplitMix64).
-struct SplitMix(u64);
-impl SplitMix {
-    fn uniform(&mut self) -> f64 {
-        self.0 = self.0.wrapping_add(0x9E37_79B9_7F4A_7C15);
-        let mut z = self.0;
-        z = (z ^ (z >> 30)).wrapping_mul(0xBF58_476D_1CE4_E5B9);
-        z = (z ^ (z >> 27)).wrapping_mul(0x94D0_49BB_1331_11EB);
-        ((z ^ (z >> 31)) >> 11) as f64 / (1u64 << 53) as f64
-    }
-    /// Standard normal deviate (Box–Muller).
-    fn normal(&mut self) -> f64 {
-        let (u, v) = (self.uniform().max(1e-300), self.uniform());
-        (-2.0 * u.ln()).sqrt() * (2.0 * std::f64::consts::PI * v).cos()
-    }
-}
 
 const FIELD_RA: (f64, f64) = (150.0, 153.2);
 const FIELD_DEC: (f64, f64) = (1.0, 4.125);
 
-fn random_position(rng: &mut SplitMix) -> (f64, f64) {
+fn random_position(rng: &mut Rng) -> (f64, f64) {
     (
         FIELD_RA.0 + (FIELD_RA.1 - FIELD_RA.0) * rng.uniform(),
         FIELD_DEC.0 + (FIELD_DEC.1 - FIELD_DEC.0) * rng.uniform(),
     )
 }
 
-fn scatter(rng: &mut SplitMix, (ra, dec): (f64, f64), sigma_arcsec: f64) -> (f64, f64) {
+fn scatter(rng: &mut Rng, (ra, dec): (f64, f64), sigma_arcsec: f64) -> (f64, f64) {
     let d = sigma_arcsec / 3600.0;
     (
         ra + rng.normal() * d / dec.to_radians().cos(),
@@ -213,7 +197,7 @@ fn main() {
         .unwrap_or(1.0);
     let dir = PathBuf::from(env!("CARGO_TARGET_TMPDIR")).join("bench-crossmatch");
     std::fs::create_dir_all(&dir).unwrap();
-    let mut rng = SplitMix(7);
+    let mut rng = Rng::new(7, "crossmatch");
 
     // Two catalogs of 1,000,000.
     let n = (1_000_000.0 * scale) as usize;

@@ -14,6 +14,7 @@
 
 use std::time::{Duration, Instant};
 
+use fluxloom::rng::Rng;
 use fluxloom::sky::vector::{Vec3, chord_for_angle_rad, radec_deg_to_vec};
 use fluxloom::sky::zones::ZoneIndex;
 use kiddo::{ImmutableKdTree, SquaredEuclidean};
@@ -28,38 +29,17 @@ const CENTRE_DEC_DEG: f64 = 2.0;
 const HALF_SIDE_DEG: f64 = 1.581_138_8;
 const REPEATS: usize = 3;
 
-/// SplitMix64 (Steele, Lea & Flood 2014, OOPSLA (from memory)): deterministic inputs.
-struct SplitMix64(u64);
-
-impl SplitMix64 {
-    fn next_u64(&mut self) -> u64 {
-        self.0 = self.0.wrapping_add(0x9E37_79B9_7F4A_7C15);
-        let mut z = self.0;
-        z = (z ^ (z >> 30)).wrapping_mul(0xBF58_476D_1CE4_E5B9);
-        z = (z ^ (z >> 27)).wrapping_mul(0x94D0_49BB_1331_11EB);
-        z ^ (z >> 31)
-    }
-
-    fn unit(&mut self) -> f64 {
-        (self.next_u64() >> 11) as f64 / (1u64 << 53) as f64
-    }
-
-    fn uniform(&mut self, lo: f64, hi: f64) -> f64 {
-        lo + (hi - lo) * self.unit()
-    }
-}
-
 struct Catalog {
     ra_deg: Vec<f64>,
     dec_deg: Vec<f64>,
 }
 
 fn make_catalogs() -> (Catalog, Catalog) {
-    let mut rng = SplitMix64(0x00F1_0C0A_2024);
+    let mut rng = Rng::new(0x00F1_0C0A_2024, "index");
     let cos_dec0 = CENTRE_DEC_DEG.to_radians().cos();
-    let uniform_point = |rng: &mut SplitMix64| {
-        let dec = CENTRE_DEC_DEG + rng.uniform(-HALF_SIDE_DEG, HALF_SIDE_DEG);
-        let ra = CENTRE_RA_DEG + rng.uniform(-HALF_SIDE_DEG, HALF_SIDE_DEG) / cos_dec0;
+    let uniform_point = |rng: &mut Rng| {
+        let dec = CENTRE_DEC_DEG + rng.range(-HALF_SIDE_DEG, HALF_SIDE_DEG);
+        let ra = CENTRE_RA_DEG + rng.range(-HALF_SIDE_DEG, HALF_SIDE_DEG) / cos_dec0;
         (ra, dec)
     };
     let mut first = Catalog {
@@ -76,11 +56,11 @@ fn make_catalogs() -> (Catalog, Catalog) {
         dec_deg: Vec::with_capacity(N_PER_CATALOG),
     };
     for _ in 0..N_PER_CATALOG {
-        let (ra, dec) = if rng.unit() < MATCHED_FRACTION {
+        let (ra, dec) = if rng.uniform() < MATCHED_FRACTION {
             let k = (rng.next_u64() % N_PER_CATALOG as u64) as usize;
             // uniform in a disc of radius 0.3″ around point k
-            let r_deg = MATCH_SCATTER_ARCSEC / 3600.0 * rng.unit().sqrt();
-            let phi = rng.uniform(0.0, std::f64::consts::TAU);
+            let r_deg = MATCH_SCATTER_ARCSEC / 3600.0 * rng.uniform().sqrt();
+            let phi = rng.range(0.0, std::f64::consts::TAU);
             let dec = first.dec_deg[k] + r_deg * phi.cos();
             let ra = first.ra_deg[k] + r_deg * phi.sin() / dec.to_radians().cos();
             (ra, dec)

@@ -23,6 +23,7 @@ use fluxloom::catalog::normalize::{NormalizeOptions, Normalizer};
 use fluxloom::catalog::schema::SurveySchema;
 use fluxloom::catalog::{DEFAULT_BATCH_ROWS, open, prefetch};
 use fluxloom::photometry::BandLibrary;
+use fluxloom::rng::Rng;
 
 const BANDS: [(&str, &str); 8] = [
     ("jc_v", "vega_mag"),
@@ -114,20 +115,8 @@ fn schema_text(format: &str) -> String {
     s
 }
 
-/// Deterministic pseudo-random numbers (SplitMix64), so the files are the same every run.
-struct SplitMix(u64);
-impl SplitMix {
-    fn next_f64(&mut self) -> f64 {
-        self.0 = self.0.wrapping_add(0x9E37_79B9_7F4A_7C15);
-        let mut z = self.0;
-        z = (z ^ (z >> 30)).wrapping_mul(0xBF58_476D_1CE4_E5B9);
-        z = (z ^ (z >> 27)).wrapping_mul(0x94D0_49BB_1331_11EB);
-        ((z ^ (z >> 31)) >> 11) as f64 / (1u64 << 53) as f64
-    }
-}
-
 fn write_catalogs(rows: usize, csv: &Path, parquet: &Path) {
-    let mut rng = SplitMix(42);
+    let mut rng = Rng::new(42, "read");
     let names = column_names();
     let mut w = BufWriter::new(File::create(csv).unwrap());
     writeln!(w, "{}", names.join(",")).unwrap();
@@ -159,15 +148,15 @@ fn write_catalogs(rows: usize, csv: &Path, parquet: &Path) {
         let mut ids = Vec::with_capacity(n);
         for r in start..start + n {
             ids.push(format!("S{r:08}"));
-            cols[0].push(150.0 + rng.next_f64() * 2.0);
-            cols[1].push(2.0 + rng.next_f64() * 2.0);
+            cols[0].push(150.0 + rng.uniform() * 2.0);
+            cols[1].push(2.0 + rng.uniform() * 2.0);
             for b in 0..BANDS.len() {
-                let (v, e) = if rng.next_f64() < 0.03 {
+                let (v, e) = if rng.uniform() < 0.03 {
                     (99.999, 99.999)
                 } else if BANDS[b].1 == "mJy" {
-                    (rng.next_f64() * 5.0, 0.01 + rng.next_f64() * 0.1)
+                    (rng.uniform() * 5.0, 0.01 + rng.uniform() * 0.1)
                 } else {
-                    (10.0 + rng.next_f64() * 8.0, 0.01 + rng.next_f64() * 0.2)
+                    (10.0 + rng.uniform() * 8.0, 0.01 + rng.uniform() * 0.2)
                 };
                 cols[2 + 2 * b].push(v);
                 cols[3 + 2 * b].push(e);

@@ -22,6 +22,7 @@ pub mod error;
 pub mod output;
 pub mod photometry;
 pub mod plan;
+pub mod rng;
 pub mod sed;
 pub mod sky;
 

@@ -8,6 +8,7 @@ use fluxloom::crossmatch::prepare::Sources;
 use fluxloom::crossmatch::{
     CatalogSettings, MatchConfig, MatchResult, SourceTable, Tolerance, run_match_with_area,
 };
+use fluxloom::rng::Rng;
 use fluxloom::sky::propagation::propagate_deg;
 use proptest::prelude::*;
 
@@ -26,15 +27,8 @@ fn centre() -> impl Strategy<Value = (f64, f64)> {
 fn catalogs() -> impl Strategy<Value = (Vec<SourceTable>, f64)> {
     (centre(), 2usize..4, 10.0..40.0f64, any::<u64>()).prop_map(
         |((ra0, dec0), n_cat, half, seed)| {
-            let mut rng = seed;
-            let mut next = move || {
-                // SplitMix64 (Steele, Lea & Flood 2014), uniform in [0, 1).
-                rng = rng.wrapping_add(0x9E37_79B9_7F4A_7C15);
-                let mut z = rng;
-                z = (z ^ (z >> 30)).wrapping_mul(0xBF58_476D_1CE4_E5B9);
-                z = (z ^ (z >> 27)).wrapping_mul(0x94D0_49BB_1331_11EB);
-                ((z ^ (z >> 31)) >> 11) as f64 / (1u64 << 53) as f64
-            };
+            let mut rng = Rng::new(seed, "properties");
+            let mut next = move || rng.uniform();
             let mut tables = Vec::new();
             // True objects; each catalog sees most of them, with its own scatter.
             let truth: Vec<(f64, f64)> = (0..40)

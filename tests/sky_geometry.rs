@@ -5,6 +5,7 @@
 use std::collections::BTreeSet;
 use std::path::PathBuf;
 
+use fluxloom::rng::Rng;
 use fluxloom::sky::partition::{home_cell, partition};
 use fluxloom::sky::propagation::propagate_deg;
 use fluxloom::sky::separation::{
@@ -209,25 +210,6 @@ fn zone_pairs_match_astropy_brute_force() {
 // ---------------------------------------------------------------------------------------------
 // Property tests against brute force.
 
-/// SplitMix64 (Steele, Lea & Flood 2014, OOPSLA (from memory)): a deterministic generator for
-/// point sets drawn from one proptest seed.
-struct SplitMix64(u64);
-
-impl SplitMix64 {
-    fn next_u64(&mut self) -> u64 {
-        self.0 = self.0.wrapping_add(0x9E37_79B9_7F4A_7C15);
-        let mut z = self.0;
-        z = (z ^ (z >> 30)).wrapping_mul(0xBF58_476D_1CE4_E5B9);
-        z = (z ^ (z >> 27)).wrapping_mul(0x94D0_49BB_1331_11EB);
-        z ^ (z >> 31)
-    }
-
-    /// Uniform in [lo, hi).
-    fn uniform(&mut self, lo: f64, hi: f64) -> f64 {
-        lo + (hi - lo) * (self.next_u64() >> 11) as f64 / (1u64 << 53) as f64
-    }
-}
-
 /// Where a random field lies.
 #[derive(Debug, Clone, Copy)]
 enum Place {
@@ -253,10 +235,10 @@ fn place() -> impl Strategy<Value = Place> {
 /// `n` points in a field of half-size `half_deg` (a box, or a polar cap of that radius), plus
 /// a few exact duplicates; RA given in [0, 360).
 fn field(place: Place, n: usize, half_deg: f64, seed: u64) -> (Vec<f64>, Vec<f64>) {
-    let mut rng = SplitMix64(seed);
+    let mut rng = Rng::new(seed, "sky");
     let (ra0, dec0) = match place {
-        Place::Anywhere => (rng.uniform(0.0, 360.0), rng.uniform(-80.0, 80.0)),
-        Place::Seam => (0.0, rng.uniform(-80.0, 80.0)),
+        Place::Anywhere => (rng.range(0.0, 360.0), rng.range(-80.0, 80.0)),
+        Place::Seam => (0.0, rng.range(-80.0, 80.0)),
         Place::North => (0.0, 90.0),
         Place::South => (0.0, -90.0),
     };
@@ -265,12 +247,12 @@ fn field(place: Place, n: usize, half_deg: f64, seed: u64) -> (Vec<f64>, Vec<f64
         let (a, d) = match place {
             Place::North | Place::South => {
                 // uniform in area within the cap
-                let colat = half_deg * rng.uniform(0.0, 1.0).sqrt();
-                (rng.uniform(0.0, 360.0), dec0.signum() * (90.0 - colat))
+                let colat = half_deg * rng.range(0.0, 1.0).sqrt();
+                (rng.range(0.0, 360.0), dec0.signum() * (90.0 - colat))
             }
             _ => {
-                let d = (dec0 + rng.uniform(-half_deg, half_deg)).clamp(-90.0, 90.0);
-                let a = ra0 + rng.uniform(-half_deg, half_deg) / d.to_radians().cos();
+                let d = (dec0 + rng.range(-half_deg, half_deg)).clamp(-90.0, 90.0);
+                let a = ra0 + rng.range(-half_deg, half_deg) / d.to_radians().cos();
                 (a.rem_euclid(360.0) % 360.0, d)
             }
         };

@@ -125,31 +125,6 @@ pub fn offset_standard_error(est: &OffsetEstimate) -> (f64, f64) {
 mod tests {
     use super::*;
 
-    /// SplitMix64 (Steele, Lea & Flood 2014 constants, from memory); any fixed
-    /// generator serves, since the test only needs reproducible draws.
-    struct SplitMix64(u64);
-
-    impl SplitMix64 {
-        fn next_u64(&mut self) -> u64 {
-            self.0 = self.0.wrapping_add(0x9E37_79B9_7F4A_7C15);
-            let mut z = self.0;
-            z = (z ^ (z >> 30)).wrapping_mul(0xBF58_476D_1CE4_E5B9);
-            z = (z ^ (z >> 27)).wrapping_mul(0x94D0_49BB_1331_11EB);
-            z ^ (z >> 31)
-        }
-
-        /// Uniform in (0, 1]: top 53 bits, shifted away from 0.
-        fn uniform(&mut self) -> f64 {
-            ((self.next_u64() >> 11) + 1) as f64 / (1u64 << 53) as f64
-        }
-
-        /// Standard normal by Box–Muller (standard).
-        fn normal(&mut self) -> f64 {
-            let (u1, u2) = (self.uniform(), self.uniform());
-            (-2.0 * u1.ln()).sqrt() * (std::f64::consts::TAU * u2).cos()
-        }
-    }
-
     #[test]
     fn median_small_arrays() {
         // Sorted by hand: [1,2,3] → 2; [1,2,3,4] → (2+3)/2 = 2.5; [7] → 7;
@@ -220,7 +195,7 @@ mod tests {
         // uniform in ±5″. A mean would be pulled by ≈ 0.1·(0 − 0.3) = −0.03″ in
         // RA, several standard errors (≈ 1.2533 · 0.15/√2000 = 0.0042″).
         let (shift_ra, shift_dec, sigma) = (0.3, -0.2, 0.15);
-        let mut rng = SplitMix64(0x5EED_F1A7);
+        let mut rng = crate::rng::Rng::new(0x5EED_F1A7, "offsets");
         let n = 2000;
         let mut dra = Vec::with_capacity(n);
         let mut ddec = Vec::with_capacity(n);
