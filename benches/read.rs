@@ -115,28 +115,27 @@ fn schema_text(format: &str) -> String {
     s
 }
 
+/// The catalog's Arrow schema: the identifier as text, everything else Float64.
+fn typed_schema(names: &[String]) -> Arc<Schema> {
+    let field = |(i, n): (usize, &String)| {
+        let t = if i == 0 {
+            DataType::Utf8
+        } else {
+            DataType::Float64
+        };
+        Field::new(n, t, true)
+    };
+    Arc::new(Schema::new(
+        names.iter().enumerate().map(field).collect::<Vec<_>>(),
+    ))
+}
+
 fn write_catalogs(rows: usize, csv: &Path, parquet: &Path) {
     let mut rng = Rng::new(42, "read");
     let names = column_names();
     let mut w = BufWriter::new(File::create(csv).unwrap());
     writeln!(w, "{}", names.join(",")).unwrap();
-    let schema = Arc::new(Schema::new(
-        names
-            .iter()
-            .enumerate()
-            .map(|(i, n)| {
-                Field::new(
-                    n,
-                    if i == 0 {
-                        DataType::Utf8
-                    } else {
-                        DataType::Float64
-                    },
-                    true,
-                )
-            })
-            .collect::<Vec<_>>(),
-    ));
+    let schema = typed_schema(&names);
     let mut pw =
         parquet::arrow::ArrowWriter::try_new(File::create(parquet).unwrap(), schema.clone(), None)
             .unwrap();
@@ -182,23 +181,7 @@ fn write_catalogs(rows: usize, csv: &Path, parquet: &Path) {
 
 fn arrow_csv_alone(path: &Path) -> usize {
     let names = column_names();
-    let schema = Arc::new(Schema::new(
-        names
-            .iter()
-            .enumerate()
-            .map(|(i, n)| {
-                Field::new(
-                    n,
-                    if i == 0 {
-                        DataType::Utf8
-                    } else {
-                        DataType::Float64
-                    },
-                    true,
-                )
-            })
-            .collect::<Vec<_>>(),
-    ));
+    let schema = typed_schema(&names);
     let reader = arrow::csv::ReaderBuilder::new(schema)
         .with_header(true)
         .with_batch_size(DEFAULT_BATCH_ROWS)
