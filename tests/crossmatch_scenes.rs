@@ -299,3 +299,18 @@ fn a_link_probability_equals_the_published_formula_worked_by_hand() {
     assert_eq!(object.members.len(), 2);
     assert!((object.probability - 0.99736).abs() < 1e-5);
 }
+
+#[test]
+fn primary_catalogs_restrict_the_objects_kept() {
+    let (tables, mut config, area) = scene();
+    let all = run_match_with_area(&tables, &config, Some(area)).unwrap();
+    config.primary = vec![0];
+    let kept = run_match_with_area(&tables, &config, Some(area)).unwrap();
+    // Every object with an optical member stays; the rest (nir:X, mir:M2, the
+    // shifted singles, nir:R2) are left out and counted.
+    let with_opt = all.objects.iter().filter(|o| o.member(0).is_some()).count();
+    assert_eq!(kept.objects.len(), with_opt);
+    assert!(kept.objects.iter().all(|o| o.member(0).is_some()));
+    assert_eq!(kept.stats.objects_not_primary, all.objects.len() - with_opt);
+    assert!(kept.stats.objects_not_primary >= 3);
+}

@@ -805,14 +805,6 @@ impl<'a> BandInput<'a> {
         })
     }
 
-    /// Converts a value in the band's unit into the output unit (Jy, or magnitude).
-    fn to_output(&self, value: f64) -> f64 {
-        match &self.conversion {
-            Some(c) => c.value_to_flux_jy(value),
-            None => value + self.spec.offset_mag,
-        }
-    }
-
     fn evaluate(&self, i: usize) -> Result<Outcome, RowProblem> {
         let spec = self.spec;
         let unreadable = |column: &str, e: NotANumber| {
@@ -833,14 +825,14 @@ impl<'a> BandInput<'a> {
                     .get(i, &spec.null_text, &spec.nulls)
                     .map_err(|e| unreadable(column, e))?
             {
-                return Ok(Outcome::UpperLimit(self.to_output(limit), None));
+                return Ok(Outcome::UpperLimit(spec.to_output(limit), None));
             }
             return Ok(Outcome::Missing);
         };
         if let Some(LimitMarker::Sentinel { values }) = &spec.limit
             && values.contains(&value)
         {
-            return Ok(Outcome::NotDetected(spec.depth.map(|d| self.to_output(d))));
+            return Ok(Outcome::NotDetected(spec.depth.map(|d| spec.to_output(d))));
         }
         for (rule, input) in spec.quality.iter().zip(&self.quality) {
             let rejects = match (rule, input) {
@@ -881,10 +873,10 @@ impl<'a> BandInput<'a> {
         ) = (&spec.limit, &self.flag)
             && flag.matches(i, values, *char_position)
         {
-            return Ok(Outcome::UpperLimit(self.to_output(value), None));
+            return Ok(Outcome::UpperLimit(spec.to_output(value), None));
         }
         if matches!(spec.limit, Some(LimitMarker::MissingError)) && error.is_none() {
-            return Ok(Outcome::UpperLimit(self.to_output(value), None));
+            return Ok(Outcome::UpperLimit(spec.to_output(value), None));
         }
         let Some(conversion) = &self.conversion else {
             // Magnitude-only band: kept as magnitudes.
