@@ -13,7 +13,7 @@
 //! seen by three catalogs (resolved cleanly); an optical source with two
 //! near-infrared candidates (ambiguous); a mid-infrared source covering two optical and
 //! near-infrared objects 2″ apart (a blend); a star moving (+400, −300) mas/yr
-//! seen 16 years apart; a near-infrared source seen by no other catalog; and two
+//! seen in 2016, 2010 and 2000; a near-infrared source seen by no other catalog; and two
 //! more isolated stars for the astrometric offset.
 
 use fluxloom::crossmatch::systematics::match_with_offsets;
@@ -94,6 +94,9 @@ fn scene() -> (Vec<SourceTable>, MatchConfig, f64) {
         e_nir,
         0.1,
     );
+    // The mid-infrared catalog saw it in 2010.0, between the two.
+    let (ra_mid, dec_mid) = propagate_deg(ra_v, dec_v, 400.0, -300.0, e_mir - e_opt);
+    mir.push_simple("MV", ra_mid, dec_mid + 0.1 / 3600.0, e_mir, 0.5);
     // Seen by one catalog only.
     add(&mut nir, "X", 150.0, 0.0, e_nir, 0.1);
     // Two more isolated stars with shifted counterparts.
@@ -186,7 +189,7 @@ fn the_scene_resolves_into_the_expected_objects_after_offset_correction() {
             "ambiguous",
             &[],
         ),
-        obj("opt:V", &["opt:V", "nir:V'"], "clean", &[]),
+        obj("opt:V", &["opt:V", "nir:V'", "mir:MV"], "clean", &[]),
         obj("nir:R2", &["nir:R2"], "ambiguous+single_catalog", &[]),
         obj("nir:X", &["nir:X"], "single", &[]),
         obj(

@@ -31,6 +31,7 @@ use super::candidates::Candidate;
 use super::config::MatchConfig;
 use super::flags;
 use super::prepare::{RAD_PER_ARCSEC, Sources};
+use crate::sky::propagation::propagate_deg;
 use crate::sky::separation::separation_deg;
 
 /// Most members an object can have here (one per catalog); larger groups of
@@ -116,16 +117,48 @@ impl Group<'_> {
             return 0.0;
         }
         // An object has at most one source per catalog, so at most MAX_MEMBERS.
+        let sources = self.ctx.sources;
         let mut sigma = [0.0f64; MAX_MEMBERS];
         let mut cats = [0usize; MAX_MEMBERS];
+        let (mut pm_sum, mut moving) = ((0.0, 0.0), 0usize);
         for (k, &l) in locals.iter().enumerate() {
-            sigma[k] = self.ctx.sources.sigma_rad[self.members[l] as usize];
+            let r = self.members[l] as usize;
+            sigma[k] = sources.sigma_rad[r];
             cats[k] = self.catalog[l];
+            if sources.has_pm(r) {
+                let p = sources.pm_masyr[r];
+                pm_sum = (pm_sum.0 + p.0, pm_sum.1 + p.1);
+                moving += 1;
+            }
         }
         let ln_b = ln_bayes_factor(&sigma[..n], |i, j| {
-            self.sep(locals[i], locals[j]) * RAD_PER_ARCSEC
+            let (a, b) = (locals[i], locals[j]);
+            if moving > 0 {
+                // Two members without proper motion, seen at different epochs, are
+                // compared after carrying one to the other's epoch with the
+                // object's motion (the mean of its moving members').
+                let pm = (pm_sum.0 / moving as f64, pm_sum.1 / moving as f64);
+                if let Some(sep_arcsec) = self.sep_with_motion(a, b, pm) {
+                    return sep_arcsec * RAD_PER_ARCSEC;
+                }
+            }
+            self.sep(a, b) * RAD_PER_ARCSEC
         });
         ln_posterior_odds(ln_b, self.ctx.ln_prior(&cats[..n]))
+    }
+
+    /// The separation of two members without proper motion after carrying `b` to
+    /// `a`'s epoch with proper motion `pm` (mas/yr); `None` when either moves on its
+    /// own or the epochs are the same.
+    fn sep_with_motion(&self, a: usize, b: usize, pm: (f64, f64)) -> Option<f64> {
+        let s = self.ctx.sources;
+        let (ra, rb) = (self.members[a] as usize, self.members[b] as usize);
+        let dt = s.epoch_yr[ra] - s.epoch_yr[rb];
+        if s.has_pm(ra) || s.has_pm(rb) || !dt.is_finite() || dt == 0.0 {
+            return None;
+        }
+        let (ra_b, dec_b) = propagate_deg(s.ra_deg[rb], s.dec_deg[rb], pm.0, pm.1, dt);
+        Some(separation_deg(s.ra_deg[ra], s.dec_deg[ra], ra_b, dec_b) * 3600.0)
     }
 
     /// True when `locals` are from distinct catalogs (an object has at most one
