@@ -407,4 +407,62 @@ proptest! {
             }
         }
     }
+
+    /// The same with small margins and the points packed around a corner or an edge
+    /// of a cell, where the shortcut for sources deep inside their cell must not
+    /// drop a source that belongs in a neighbour's margin.
+    #[test]
+    fn partition_loses_no_pair_at_cell_borders(
+        seed in any::<u64>(),
+        order in 4u8..=12,
+        vertex in 0usize..4,
+        along_edge in 0.0f64..1.0,
+        margin_fraction in 0.0005f64..0.02,
+        polar in any::<bool>(),
+    ) {
+        let mut rng = Rng::new(seed, "borders");
+        let (lon0, lat0) = if polar {
+            (rng.range(0.0, 360.0), rng.range(75.0, 89.0) * if rng.uniform() < 0.5 { -1.0 } else { 1.0 })
+        } else {
+            (rng.range(0.0, 360.0), rng.range(-60.0, 60.0))
+        };
+        let hash = home_cell(order, lon0, lat0);
+        let corners = cdshealpix::nested::vertices(order, hash);
+        let (a, b) = (corners[vertex], corners[(vertex + 1) % 4]);
+        // A point on the cell's edge between two vertices (a straight mix of their
+        // coordinates is close enough to the edge for this purpose).
+        let mut dlon = b.0 - a.0;
+        if dlon > std::f64::consts::PI { dlon -= 2.0 * std::f64::consts::PI; }
+        if dlon < -std::f64::consts::PI { dlon += 2.0 * std::f64::consts::PI; }
+        let centre = ((a.0 + along_edge * dlon).to_degrees().rem_euclid(360.0), (a.1 + along_edge * (b.1 - a.1)).to_degrees());
+        let cell_deg = 58.63 / f64::from(1u32 << order);
+        let margin_deg = cell_deg * margin_fraction;
+        let mut ra = Vec::new();
+        let mut dec = Vec::new();
+        for _ in 0..200 {
+            let (r, d) = fluxloom::sky::propagation::propagate_deg(
+                centre.0, centre.1.clamp(-89.999, 89.999),
+                rng.range(-3.0, 3.0) * margin_deg * 3.6e6,
+                rng.range(-3.0, 3.0) * margin_deg * 3.6e6,
+                1.0,
+            );
+            ra.push(r);
+            dec.push(d);
+        }
+        let v = vectors(&ra, &dec);
+        let cells = partition(order, &ra, &dec, margin_deg);
+        let members = |id: u64| -> BTreeSet<u32> {
+            let cell = cells.iter().find(|c| c.id == id).expect("home cell present");
+            cell.core.iter().chain(&cell.margin).copied().collect()
+        };
+        let pairs = brute_pairs(&v, margin_deg.to_radians());
+        prop_assert!(!pairs.is_empty());
+        for (i, j) in pairs {
+            for k in [i, j] {
+                let m = members(home_cell(order, ra[k], dec[k]));
+                prop_assert!(m.contains(&(i as u32)) && m.contains(&(j as u32)),
+                    "pair ({}, {}) lost in the home cell of {}", i, j, k);
+            }
+        }
+    }
 }

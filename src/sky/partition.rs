@@ -63,6 +63,53 @@ pub fn cell_area_sr(order: u8) -> f64 {
     4.0 * std::f64::consts::PI / (12.0 * 4f64.powi(i32::from(order)))
 }
 
+/// A cheap, exact shortcut of the cone query for sources deep inside their cell.
+///
+/// Take a finer order whose cells are at least [`INTERIOR_CELLS_PER_RADIUS`] radii
+/// across (by the square root of their area). A source whose fine cell is not on
+/// the edge of its cell at the partition order has all eight fine neighbours in the
+/// same coarse cell (NESTED children share the parent's bits, Górski et al. 2005),
+/// so its disc, narrower than one fine cell, cannot reach another coarse cell. The
+/// factor is generous: HEALPix cells are nowhere narrower than a fraction of the
+/// square root of their area far above 1/8 (common practice; the partition tests,
+/// which pack points around cell corners and edges, check every pair is kept).
+struct InteriorTest {
+    fine: Option<(&'static cdshealpix::nested::Layer, u32)>,
+}
+
+/// How many margin radii a fine cell must span for the interior shortcut.
+const INTERIOR_CELLS_PER_RADIUS: f64 = 8.0;
+
+impl InteriorTest {
+    fn new(order: u8, radius_rad: f64) -> InteriorTest {
+        let fine_order = (order..=29)
+            .rev()
+            .find(|&k| cell_area_sr(k).sqrt() >= INTERIOR_CELLS_PER_RADIUS * radius_rad);
+        InteriorTest {
+            fine: fine_order
+                .filter(|&k| k >= order + 2)
+                .map(|k| (cdshealpix::nested::get(k), u32::from(k - order))),
+        }
+    }
+
+    /// True when the disc around the position cannot leave its coarse cell.
+    fn holds(&self, lon_rad: f64, lat_rad: f64) -> bool {
+        let Some((layer, levels)) = self.fine else {
+            return false;
+        };
+        // The low 2·levels bits of the fine hash interleave the fine cell's (i, j)
+        // inside its coarse parent; interior means neither is 0 or 2^levels − 1.
+        let local = layer.hash(lon_rad, lat_rad) & ((1u64 << (2 * levels)) - 1);
+        let (mut i, mut j) = (0u64, 0u64);
+        for b in 0..levels {
+            i |= ((local >> (2 * b)) & 1) << b;
+            j |= ((local >> (2 * b + 1)) & 1) << b;
+        }
+        let last = (1u64 << levels) - 1;
+        i > 0 && i < last && j > 0 && j < last
+    }
+}
+
 /// Splits sources into the non-empty HEALPix NESTED cells at `order`, each with its core and
 /// margin sources (see [`Cell`]); cells are sorted by id.
 ///
@@ -98,6 +145,7 @@ pub fn partition(order: u8, ra_deg: &[f64], dec_deg: &[f64], margin_deg: f64) ->
     );
     let layer = cdshealpix::nested::get(order);
     let radius_rad = margin_deg.to_radians() * (1.0 + MARGIN_WIDENING) + MARGIN_FLOOR_RAD;
+    let interior = InteriorTest::new(order, radius_rad);
 
     // (cell id, source index, is_margin); a source is listed at most once per cell.
     let mut entries: Vec<(u64, u32, bool)> = (0..ra_deg.len())
@@ -114,6 +162,9 @@ pub fn partition(order: u8, ra_deg: &[f64], dec_deg: &[f64], margin_deg: f64) ->
             let home = layer.hash(lon_rad, lat_rad);
             let idx = i as u32;
             acc.push((home, idx, false));
+            if interior.holds(lon_rad, lat_rad) {
+                return acc;
+            }
             for cell in layer
                 .cone_coverage_approx(lon_rad, lat_rad, radius_rad)
                 .flat_iter()
