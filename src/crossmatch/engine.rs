@@ -237,7 +237,7 @@ pub fn run_match_with_area(
         .copied()
         .collect();
     let groups = connected_groups(sources.len(), usable.iter().map(|c| (c.a, c.b)));
-    let per_group = candidates_per_group(&groups, &usable, sources.len());
+    let (by_group, group_start) = candidates_by_group(&groups, &usable, sources.len());
     seconds.groups = t.elapsed().as_secs_f64();
 
     let t = Instant::now();
@@ -248,10 +248,10 @@ pub fn run_match_with_area(
     };
     let resolved: Vec<Vec<ResolvedObject>> = groups
         .par_iter()
-        .zip(per_group.par_iter())
-        .map(|(members, cands)| {
-            let group_cands: Vec<Candidate> = cands.iter().map(|&k| usable[k as usize]).collect();
-            resolve_group(&ctx, members, &group_cands)
+        .enumerate()
+        .map(|(g, members)| {
+            let cands = &by_group[group_start[g]..group_start[g + 1]];
+            resolve_group(&ctx, members, cands)
         })
         .collect();
     seconds.resolution = t.elapsed().as_secs_f64();
@@ -265,19 +265,34 @@ pub fn run_match_with_area(
     Ok(result)
 }
 
-/// Candidate indices of each group (candidates sorted by (a, b) stay in that order).
-fn candidates_per_group(groups: &[Vec<u32>], candidates: &[Candidate], n: usize) -> Vec<Vec<u32>> {
+/// The candidates ordered by group (keeping their (a, b) order within a group),
+/// and where each group's run starts (plus the total at the end).
+fn candidates_by_group(
+    groups: &[Vec<u32>],
+    candidates: &[Candidate],
+    n: usize,
+) -> (Vec<Candidate>, Vec<usize>) {
     let mut group_of = vec![0u32; n];
     for (g, members) in groups.iter().enumerate() {
         for &m in members {
             group_of[m as usize] = g as u32;
         }
     }
-    let mut per_group: Vec<Vec<u32>> = vec![Vec::new(); groups.len()];
-    for (k, c) in candidates.iter().enumerate() {
-        per_group[group_of[c.a as usize] as usize].push(k as u32);
+    let mut start = vec![0usize; groups.len() + 1];
+    for c in candidates {
+        start[group_of[c.a as usize] as usize + 1] += 1;
     }
-    per_group
+    for g in 0..groups.len() {
+        start[g + 1] += start[g];
+    }
+    let mut next = start.clone();
+    let mut ordered = candidates.to_vec();
+    for c in candidates {
+        let g = group_of[c.a as usize] as usize;
+        ordered[next[g]] = *c;
+        next[g] += 1;
+    }
+    (ordered, start)
 }
 
 fn assemble(
