@@ -323,7 +323,7 @@ fn assemble(
         )
     };
     let mut all: Vec<ResolvedObject> = resolved.into_iter().flatten().collect();
-    all.sort_by_key(|o| o.members[0]);
+    all.par_sort_unstable_by_key(|o| o.members[0]);
     let mut object_of_rank = vec![0u32; sources.len()];
     for (k, o) in all.iter().enumerate() {
         for &m in &o.members {
