@@ -32,7 +32,7 @@ pub fn row_counter(label: &str, quiet: bool) -> ProgressBar {
     } else {
         let bar = ProgressBar::with_draw_target(None, ProgressDrawTarget::stderr());
         bar.set_style(
-            ProgressStyle::with_template("{spinner} {msg}: {human_pos} rows ({per_sec})")
+            ProgressStyle::with_template("{spinner} {msg}: {human_pos} rows ({elapsed})")
                 .unwrap_or_else(|_| ProgressStyle::default_spinner()),
         );
         bar
