@@ -222,7 +222,8 @@ fn class_ii_alpha_lies_in_its_class_and_photospheres_are_near_minus_three() {
                 checked[1] += 1;
             }
             Kind::Star if o.teff_k.unwrap() >= 5000.0 => {
-                // FIELD §4.4: an A0V photosphere has α = −2.89 (Ks → 24 µm); cooler
+                // An A0V photosphere (all Vega colours 0, with the band zero points of Cohen et al. 2003
+                // and Engelbracht et al. 2007) has α = −2.89 from Ks to 24 µm (computed by hand); cooler
                 // photospheres and extinction move it a little.
                 assert!(
                     (-3.1..=-2.5).contains(&alpha),

@@ -47,7 +47,7 @@ fn angle_diff_deg(a: f64, b: f64) -> f64 {
 // ---------------------------------------------------------------------------------------------
 // Separations, position angles, tangent offsets: astropy 6.1.7 SkyCoord.separation,
 // SkyCoord.position_angle and WCS RA---TAN/DEC--TAN (tests/fixtures/sky/separations.csv:
-// FIELD.md §7.4 pairs P1-P7, 25 small pairs S00-S24 of 1 mas to 60″, 25 large pairs L00-L24).
+// worked pairs P1-P7, 25 small pairs S00-S24 of 1 mas to 60″, 25 large pairs L00-L24).
 
 #[test]
 fn separations_match_astropy() {
@@ -77,8 +77,9 @@ fn separations_match_astropy() {
 
 #[test]
 fn separations_of_field_pairs_p1_to_p7() {
-    // The FIELD.md §7.4 rows, through the astropy fixture, with the table's rounded values
-    // as a second check (FIELD.md §7.4, computed there with astropy).
+    // The worked pairs P1-P7, through the astropy fixture, with their rounded published-style
+    // values as a second check (computed with astropy SkyCoord.separation and a 50-digit
+    // mpmath Vincenty evaluation).
     let rows = rows("separations.csv");
     let expect_arcsec = [
         2.098_005_0,
@@ -148,7 +149,7 @@ fn tangent_offsets_match_astropy_wcs() {
 // Propagation: astropy 6.1.7 SkyCoord.apply_space_motion from J2016.0 (TDB) by dt_yr Julian
 // years, distance 10 pc, radial velocity 0 km/s (tests/fixtures/sky/propagation.csv). With zero
 // radial velocity the straight-line space motion is distance-independent, so the linear form
-// must agree closely; the case F58 is FIELD.md §5.8's 1.789″ example.
+// must agree closely; the case F58 is the 1.789″ worked example below.
 
 #[test]
 fn propagation_matches_astropy_space_motion() {
@@ -167,8 +168,8 @@ fn propagation_matches_astropy_space_motion() {
 
 #[test]
 fn propagation_field_example_moves_1_789_arcsec() {
-    // FIELD.md §5.8: μα* = 100, μδ = −50 mas/yr, 2016.0 → 2000.0: 1.789″ (= 16·√12500 mas,
-    // exact arithmetic). δ = 60° from FIELD.md; α = 30° chosen here.
+    // Worked example: μα* = 100, μδ = −50 mas/yr, 2016.0 → 2000.0: 1.789″ (= 16·√12500 mas,
+    // exact arithmetic), at δ = 60°; α = 30° chosen here.
     let (ra, dec) = propagate_deg(30.0, 60.0, 100.0, -50.0, -16.0);
     let moved = separation_deg(30.0, 60.0, ra, dec) * 3600.0;
     assert!(

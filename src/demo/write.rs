@@ -12,8 +12,8 @@
 //! | `cinder` | gzip CSV | IRAC-like µJy, forced | every flux kept with its error; S/N < 3 read as a limit |
 //! | `ember` | FITS | MIPS-like 24 µm mJy | absent below 0.5 mJy |
 //!
-//! A 95 % upper limit is F_lim = max(F, 0) + 1.645σ (one-sided Gaussian, FIELD §1.6).
-//! Magnitude errors are first order, σ_m = (2.5/ln 10) σ_F / F (FIELD §1.4).
+//! A 95 % upper limit is F_lim = max(F, 0) + 1.645σ (one-sided Gaussian quantile 1.645 = Φ⁻¹(0.95), common practice).
+//! Magnitude errors are first order, σ_m = (2.5/ln 10) σ_F / F (Pogson's ratio, common practice).
 
 use std::collections::{BTreeSet, HashMap};
 use std::io::Write;
@@ -35,9 +35,9 @@ use super::surveys::{HarrierCoverage, ObservedSource, SurveyObservation};
 use super::truth::{BandGrid, DEMO_BANDS, Kind, TruthObject};
 use super::{DemoSummary, FIELD_DEC_DEG, FIELD_RA_DEG, SurveySummary};
 
-/// 2.5 / ln 10 = 1.0857362: magnitude error per fractional flux error (FIELD §1.4).
+/// 2.5 / ln 10 = 1.0857362: magnitude error per fractional flux error (Pogson's ratio, common practice).
 const MAG_PER_LN_FLUX: f64 = 2.5 / std::f64::consts::LN_10;
-/// One-sided 95 % Gaussian quantile, 1.645 (FIELD §1.6).
+/// One-sided 95 % Gaussian quantile, 1.645 = Φ⁻¹(0.95) (common practice).
 const Z_95: f64 = 1.645;
 /// First `source_id` of `ask`.
 const ASK_ID_BASE: i64 = 4_102_000_001;
@@ -164,7 +164,7 @@ fn mag_err(flux_jy: f64, sigma_jy: f64) -> f64 {
     round(MAG_PER_LN_FLUX * sigma_jy / flux_jy, 3).max(0.001)
 }
 
-/// A 95 % upper limit, max(F, 0) + 1.645σ (FIELD §1.6).
+/// A 95 % upper limit, max(F, 0) + 1.645σ (common practice).
 fn limit_95(flux_jy: f64, sigma_jy: f64) -> f64 {
     flux_jy.max(0.0) + Z_95 * sigma_jy
 }

@@ -212,7 +212,7 @@ mod tests {
     #[test]
     fn cell_areas_match_the_healpix_table() {
         // Check values: whole sphere 4π sr; sqrt(area) at order 8 = 13.74′ and order 12 =
-        // 51.53″ (FIELD.md §6.1 table, computed with healpy).
+        // 51.53″ (computed with the general-purpose HEALPix library healpy).
         assert!((cell_area_sr(0) * 12.0 - 4.0 * std::f64::consts::PI).abs() < 1e-14);
         let side_arcmin = cell_area_sr(8).sqrt().to_degrees() * 60.0;
         assert!((side_arcmin - 13.74).abs() < 0.005, "{side_arcmin}");

@@ -15,8 +15,8 @@
 //! projects exactly onto this form, whatever the distance: it agrees with astropy 6.1.7
 //! `SkyCoord.apply_space_motion` (distance 10 pc, radial velocity 0) to about 1e-8 mas in
 //! `tests/fixtures/sky/propagation.csv`. Perspective acceleration from a radial velocity is
-//! what it leaves out; FIELD.md §5.8 quotes rigorous-minus-linear differences computed with
-//! astropy: 0.015 mas for μ_α* = 100, μ_δ = −50 mas/yr at δ = 60° over 16 yr, and 0.165″ for
+//! what it leaves out; rigorous-minus-linear differences computed with astropy's space-motion
+//! propagation are 0.015 mas for μ_α* = 100, μ_δ = −50 mas/yr at δ = 60° over 16 yr, and 0.165″ for
 //! a Barnard's-star-like case over the same 16 yr.
 //!
 //! ```

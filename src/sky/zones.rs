@@ -385,7 +385,7 @@ mod tests {
 
     #[test]
     fn ra_half_width_matches_worked_examples() {
-        // Check values: FIELD.md §6.3 (computed there): r = 5″ at δ = 60° gives
+        // Check values (float64 evaluations of the same formula, done by hand): r = 5″ at δ = 60° gives
         // Δα = 10.000000003″; r = 10″ at δ = 89.99° gives 16.13° (naive r/cos δ: 15.92°).
         let w = ra_half_width_deg(60.0, 5.0 / 3600.0).unwrap() * 3600.0;
         assert!((w - 10.000_000_003).abs() < 1e-8, "{w}");
