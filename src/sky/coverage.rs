@@ -279,3 +279,50 @@ mod tests {
         assert!((derived.area_sr() - super::super::partition::cell_area_sr(8)).abs() < 1e-18);
     }
 }
+
+#[cfg(test)]
+mod file_tests {
+    use std::sync::Arc;
+
+    use arrow::array::{Int64Array, RecordBatch};
+    use arrow::datatypes::{DataType, Field, Schema};
+
+    use super::*;
+
+    #[test]
+    fn a_moc_fits_file_with_a_uniq_column_is_read() {
+        // Two cells: order 3 pixel 100 (NUNIQ 4·4³ + 100 = 356) and order 5 pixel 7
+        // (NUNIQ 4·4⁵ + 7 = 4103), written as a FITS binary table the way MOC 1.1
+        // files are (one 64-bit integer column UNIQ).
+        let dir = tempfile::tempdir().unwrap();
+        let path = dir.path().join("moc.fits");
+        let schema = Arc::new(Schema::new(vec![Field::new(
+            "UNIQ",
+            DataType::Int64,
+            false,
+        )]));
+        let batch = RecordBatch::try_new(
+            schema.clone(),
+            vec![Arc::new(Int64Array::from(vec![356, 4103]))],
+        )
+        .unwrap();
+        crate::output::fits::write_fits(&path, &schema, &[batch], "MOC", &[]).unwrap();
+        let c = Coverage::from_moc_file(&path).unwrap();
+        assert_eq!(c.len(), 2);
+        assert_eq!(c.max_order(), Some(5));
+        assert!(c.cells[3].contains(&100));
+        assert!(c.cells[5].contains(&7));
+
+        let ascii = dir.path().join("moc.txt");
+        std::fs::write(&ascii, "3/100 5/7\n").unwrap();
+        assert_eq!(Coverage::from_moc_file(&ascii).unwrap(), c);
+
+        let bad = dir.path().join("bad.txt");
+        std::fs::write(&bad, "3/100 5/x\n").unwrap();
+        let err = Coverage::from_moc_file(&bad).unwrap_err().to_string();
+        assert!(
+            err.ends_with("bad.txt: \"5/x\": expected a pixel number or a range such as 4-7"),
+            "{err}"
+        );
+    }
+}
