@@ -322,32 +322,77 @@ fn assemble(
             tables[c].name, tables[c].source_id[sources.row[r] as usize]
         )
     };
-    let mut all: Vec<ResolvedObject> = resolved.into_iter().flatten().collect();
-    all.par_sort_unstable_by_key(|o| o.members[0]);
+    // Objects in anchor order, addressed as (group, index) so the resolved
+    // objects themselves are not moved.
+    let mut resolved = resolved;
+    let mut order: Vec<(u32, u32, u32)> = resolved
+        .iter()
+        .enumerate()
+        .flat_map(|(g, objs)| {
+            objs.iter()
+                .enumerate()
+                .map(move |(k, o)| (o.members[0], g as u32, k as u32))
+        })
+        .collect();
+    order.par_sort_unstable();
     let mut object_of_rank = vec![0u32; sources.len()];
-    for (k, o) in all.iter().enumerate() {
-        for &m in &o.members {
-            object_of_rank[m as usize] = k as u32;
+    for (pos, &(_, g, k)) in order.iter().enumerate() {
+        for &m in &resolved[g as usize][k as usize].members {
+            object_of_rank[m as usize] = pos as u32;
         }
     }
+    let at = |pos: u32| -> (usize, usize) {
+        let (_, g, k) = order[pos as usize];
+        (g as usize, k as usize)
+    };
     for b in blends {
-        let k = object_of_rank[b.source as usize] as usize;
-        all[k].flags |= flags::BLEND;
+        let (gb, kb) = at(object_of_rank[b.source as usize]);
+        resolved[gb][kb].flags |= flags::BLEND;
         for &u in &b.under {
-            let under = object_of_rank[u as usize] as usize;
-            let (anchor_blend, anchor_under) = (all[k].members[0], all[under].members[0]);
-            all[under].flags |= flags::HAS_BLEND;
-            all[under].related.push(anchor_blend);
-            all[k].related.push(anchor_under);
+            let (gu, ku) = at(object_of_rank[u as usize]);
+            let (anchor_blend, anchor_under) =
+                (resolved[gb][kb].members[0], resolved[gu][ku].members[0]);
+            resolved[gu][ku].flags |= flags::HAS_BLEND;
+            resolved[gu][ku].related.push(anchor_blend);
+            resolved[gb][kb].related.push(anchor_under);
         }
     }
-    for o in &mut all {
+    for o in resolved.iter_mut().flatten() {
         o.related.sort_unstable();
         o.related.dedup();
     }
-    let mut objects: Vec<MatchedObject> = all
+    let mut objects: Vec<MatchedObject> = order
         .par_iter()
-        .map(|o| {
+        .map(|&(_, g, k)| {
+            let o = &resolved[g as usize][k as usize];
+            let anchor = o.members[0] as usize;
+            let owner_cell = home_cell(
+                config.partition_order,
+                sources.ra_deg[anchor],
+                sources.dec_deg[anchor],
+            );
+            if o.members.len() == 1 {
+                // One source: its own position (at the reference epoch when it moves),
+                // error and motion.
+                return MatchedObject {
+                    object_id: id_of_rank(o.members[0]),
+                    ra_deg: sources.ra_deg[anchor],
+                    dec_deg: sources.dec_deg[anchor],
+                    pos_err_arcsec: sources.sigma_rad[anchor] / RAD_PER_ARCSEC,
+                    pmra_cosdec_masyr: sources.pm_masyr[anchor].0,
+                    pmdec_masyr: sources.pm_masyr[anchor].1,
+                    members: vec![Member {
+                        catalog: sources.catalog[anchor] as usize,
+                        row: sources.row[anchor] as usize,
+                        sep_arcsec: 0.0,
+                        probability: o.member_probability[0],
+                    }],
+                    flags: o.flags,
+                    probability: o.probability,
+                    related: o.related.iter().map(|&r| id_of_rank(r)).collect(),
+                    owner_cell,
+                };
+            }
             // The object's proper motion is the mean of its members' own; members
             // without one are carried with it from their epoch to the reference epoch.
             let (mut pm_sum, mut moving) = ((0.0, 0.0), 0usize);
@@ -397,7 +442,6 @@ fn assemble(
                     probability: p,
                 })
                 .collect();
-            let anchor = o.members[0] as usize;
             MatchedObject {
                 object_id: id_of_rank(o.members[0]),
                 ra_deg,
@@ -409,11 +453,7 @@ fn assemble(
                 flags: o.flags,
                 probability: o.probability,
                 related: o.related.iter().map(|&r| id_of_rank(r)).collect(),
-                owner_cell: home_cell(
-                    config.partition_order,
-                    sources.ra_deg[anchor],
-                    sources.dec_deg[anchor],
-                ),
+                owner_cell,
             }
         })
         .collect();
