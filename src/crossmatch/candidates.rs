@@ -20,7 +20,9 @@ use super::prepare::{RAD_PER_ARCSEC, Sources};
 use super::tolerance::accepts;
 use crate::sky::partition::{Cell, partition};
 use crate::sky::propagation::propagate_deg;
-use crate::sky::separation::{separation_deg, tangent_offsets_arcsec};
+use crate::sky::separation::{
+    separation_vec_rad, tangent_offsets_arcsec, tangent_offsets_vec_arcsec,
+};
 use crate::sky::zones::ZoneIndex;
 
 /// A pair of sources from different catalogs within their tolerance.
@@ -45,24 +47,29 @@ pub const EPOCH_COPY_MIN_ARCSEC: f64 = 0.05;
 /// median, arcsec.
 pub const MAX_EPOCH_SLACK_ARCSEC: f64 = 5.0;
 
-/// Tests one pair: positions at a common epoch ([`Sources::position_for_pair`]),
-/// exact separation, normalized distance, tolerance; `Some` for a candidate.
+/// Tests one pair: positions at a common epoch ([`Sources::vectors_for_pair`]),
+/// exact separation (vector form), normalized distance from gnomonic offsets,
+/// tolerance; `Some` for a candidate.
 pub fn test_pair(sources: &Sources, config: &MatchConfig, a: u32, b: u32) -> Option<Candidate> {
     let (ia, ib) = (a as usize, b as usize);
     let (ca, cb) = (sources.catalog[ia] as usize, sources.catalog[ib] as usize);
     if ca == cb {
         return None;
     }
-    let ((ra_a, dec_a), (ra_b, dec_b)) =
-        sources.position_for_pair(ia, ib, config.reference_epoch_yr);
-    let sep_arcsec = separation_deg(ra_a, dec_a, ra_b, dec_b) * 3600.0;
+    let (va, vb) = sources.vectors_for_pair(ia, ib, config.reference_epoch_yr);
+    let sep_arcsec = separation_vec_rad(va, vb) / RAD_PER_ARCSEC;
     let tolerance = config.tolerance_for(ca, cb);
     if sep_arcsec > tolerance.max_arcsec() {
         return None;
     }
     let floor = config.catalogs[ca].systematic_arcsec.powi(2)
         + config.catalogs[cb].systematic_arcsec.powi(2);
-    let (east, north) = tangent_offsets_arcsec(ra_a, dec_a, ra_b, dec_b);
+    let (east, north) = tangent_offsets_vec_arcsec(va, vb).unwrap_or_else(|| {
+        // At a pole east is undefined for a vector; the angle form uses the RA given.
+        let ((ra_a, dec_a), (ra_b, dec_b)) =
+            sources.position_for_pair(ia, ib, config.reference_epoch_yr);
+        tangent_offsets_arcsec(ra_a, dec_a, ra_b, dec_b)
+    });
     let d2 = sources.cov[ia]
         .combine(&sources.cov[ib], floor)
         .normalized_distance2(east, north);

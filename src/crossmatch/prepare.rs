@@ -186,6 +186,16 @@ impl Sources {
         }
     }
 
+    /// Unit vectors of sources `a` and `b` at a common epoch (see
+    /// [`Sources::position_for_pair`]); the stored vectors when no source moves.
+    pub fn vectors_for_pair(&self, a: usize, b: usize, reference_epoch_yr: f64) -> (Vec3, Vec3) {
+        if self.has_pm(a) == self.has_pm(b) {
+            return (self.vec[a], self.vec[b]);
+        }
+        let ((ra_a, dec_a), (ra_b, dec_b)) = self.position_for_pair(a, b, reference_epoch_yr);
+        (radec_deg_to_vec(ra_a, dec_a), radec_deg_to_vec(ra_b, dec_b))
+    }
+
     /// Number of sources of catalog `c`.
     pub fn catalog_len(&self, c: usize) -> usize {
         self.catalog_start[c + 1] - self.catalog_start[c]

@@ -87,10 +87,57 @@ pub fn tangent_offsets_arcsec(
     (xi_rad * ARCSEC_PER_RAD, eta_rad * ARCSEC_PER_RAD)
 }
 
+/// The gnomonic offsets of [`tangent_offsets_arcsec`] from unit vectors, without
+/// trigonometry: with the local east and north unit vectors at `a`,
+/// E = (−sin α, cos α, 0) and N = (−sin δ cos α, −sin δ sin α, cos δ) (read off `a`'s
+/// components), ξ = (b·E)/(b·a) and η = (b·N)/(b·a), in arcsec.
+///
+/// `None` when `a` is within 1e-12 rad of a pole (east is undefined there) or `b` is
+/// 90° or more from `a`.
+pub fn tangent_offsets_vec_arcsec(a: Vec3, b: Vec3) -> Option<(f64, f64)> {
+    let cos_dec = a[0].hypot(a[1]);
+    let along = dot(a, b);
+    if cos_dec < 1e-12 || along.is_nan() || along <= 0.0 {
+        return None;
+    }
+    let (cos_ra, sin_ra, sin_dec) = (a[0] / cos_dec, a[1] / cos_dec, a[2]);
+    let east = -sin_ra * b[0] + cos_ra * b[1];
+    let north = -sin_dec * cos_ra * b[0] - sin_dec * sin_ra * b[1] + cos_dec * b[2];
+    Some((
+        east / along * ARCSEC_PER_RAD,
+        north / along * ARCSEC_PER_RAD,
+    ))
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
     use crate::sky::vector::radec_deg_to_vec;
+
+    #[test]
+    fn vector_and_angle_forms_of_the_gnomonic_offsets_agree() {
+        // Both forms project onto the same tangent plane (Calabretta & Greisen 2002,
+        // from memory); they differ only by rounding.
+        let cases = [
+            (150.0, 2.2, 150.0005, 2.2003),
+            (359.9999, -30.0, 0.0001, -30.0),
+            (10.0, 89.9, 190.0, 89.9005),
+            (200.0, -60.0, 200.01, -59.99),
+            (45.0, 0.0, 45.0, 0.0),
+        ];
+        for (ra0, dec0, ra, dec) in cases {
+            let (xe, xn) = tangent_offsets_arcsec(ra0, dec0, ra, dec);
+            let (ve, vn) =
+                tangent_offsets_vec_arcsec(radec_deg_to_vec(ra0, dec0), radec_deg_to_vec(ra, dec))
+                    .unwrap();
+            assert!(
+                (xe - ve).abs() < 1e-8 && (xn - vn).abs() < 1e-8,
+                "{ra0} {dec0}: {xe} {xn} vs {ve} {vn}"
+            );
+        }
+        assert!(tangent_offsets_vec_arcsec([0.0, 0.0, 1.0], radec_deg_to_vec(0.0, 89.0)).is_none());
+        assert!(tangent_offsets_vec_arcsec([1.0, 0.0, 0.0], [-1.0, 0.0, 0.0]).is_none());
+    }
 
     #[test]
     fn exact_angles_on_great_circles() {
