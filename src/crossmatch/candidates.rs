@@ -16,13 +16,14 @@ use rayon::prelude::*;
 
 use super::bayes::ln_bayes_factor_pair;
 use super::config::MatchConfig;
-use super::prepare::{RAD_PER_ARCSEC, Sources};
+use super::prepare::Sources;
 use super::tolerance::accepts;
 use crate::sky::partition::{Cell, partition};
 use crate::sky::propagation::propagate_deg;
 use crate::sky::separation::{
     separation_vec_rad, tangent_offsets_arcsec, tangent_offsets_vec_arcsec,
 };
+use crate::sky::vector::RAD_PER_ARCSEC;
 use crate::sky::zones::ZoneIndex;
 
 /// A pair of sources from different catalogs within their tolerance.

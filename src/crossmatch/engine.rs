@@ -33,12 +33,13 @@ use super::density::footprint_area_sr;
 use super::flags;
 use super::groups::connected_groups;
 use super::input::SourceTable;
-use super::prepare::{RAD_PER_ARCSEC, Sources};
+use super::prepare::Sources;
 use super::resolve::{Context, ResolvedObject, resolve_group};
 use crate::error::Result;
 use crate::sky::partition::home_cell;
 use crate::sky::propagation::propagate_deg;
 use crate::sky::separation::separation_vec_rad;
+use crate::sky::vector::RAD_PER_ARCSEC;
 use crate::sky::vector::{Vec3, radec_deg_to_vec, vec_to_radec_deg};
 
 /// A source of a catalog, as a member of an object.

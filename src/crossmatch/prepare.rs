@@ -17,10 +17,7 @@ use super::input::SourceTable;
 use super::tolerance::Covariance;
 use crate::error::{Error, Result};
 use crate::sky::propagation::propagate_deg;
-use crate::sky::vector::{Vec3, radec_deg_to_vec};
-
-/// Radians per arcsecond.
-pub const RAD_PER_ARCSEC: f64 = std::f64::consts::PI / 648_000.0;
+use crate::sky::vector::{RAD_PER_ARCSEC, Vec3, radec_deg_to_vec};
 
 /// Every source of every catalog, in rank order, ready for matching.
 #[derive(Debug, Clone, Default)]

@@ -30,9 +30,10 @@ use super::bayes::{ln_bayes_factor, ln_posterior_odds};
 use super::candidates::Candidate;
 use super::config::MatchConfig;
 use super::flags;
-use super::prepare::{RAD_PER_ARCSEC, Sources};
+use super::prepare::Sources;
 use crate::sky::propagation::propagate_deg;
 use crate::sky::separation::separation_deg;
+use crate::sky::vector::RAD_PER_ARCSEC;
 
 /// Most members an object can have here (one per catalog); larger groups of
 /// catalogs are refused by [`super::prepare::Sources::prepare`].
