@@ -447,6 +447,19 @@ impl SurveySchema {
         cols
     }
 
+    /// The first line, at or after line `from`, of the schema that names `column`
+    /// (e.g. `ra = "RAJ2000"`), or `from` when none does.
+    pub fn line_of_column(&self, column: &str, from: usize) -> usize {
+        let quoted = format!("\"{column}\"");
+        self.text
+            .lines()
+            .enumerate()
+            .skip(from.saturating_sub(1))
+            .find(|(_, l)| l.contains(&quoted))
+            .map(|(i, _)| i + 1)
+            .unwrap_or(from)
+    }
+
     /// The schema line where `key` is first set at the top of a line, or 0.
     pub fn line_of_key(&self, key: &str) -> usize {
         line_of_key(&self.text, key)

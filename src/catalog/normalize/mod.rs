@@ -333,21 +333,6 @@ impl Normalizer {
     }
 }
 
-impl SurveySchema {
-    /// The first line, at or after line `from`, of the schema that names `column`
-    /// (e.g. `ra = "RAJ2000"`), or `from` when none does.
-    pub fn line_of_column(&self, column: &str, from: usize) -> usize {
-        let quoted = format!("\"{column}\"");
-        self.text
-            .lines()
-            .enumerate()
-            .skip(from.saturating_sub(1))
-            .find(|(_, l)| l.contains(&quoted))
-            .map(|(i, _)| i + 1)
-            .unwrap_or(from)
-    }
-}
-
 /// The Arrow schema of normalized tables for `schema`, with units in field metadata.
 pub fn output_schema(schema: &SurveySchema) -> SchemaRef {
     let mut fields = vec![
