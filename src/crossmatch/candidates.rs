@@ -105,19 +105,30 @@ pub struct IndexPoints {
     pub slack_arcsec: f64,
 }
 
-impl IndexPoints {
-    /// Builds the points of `sources`.
-    pub fn new(sources: &Sources, config: &MatchConfig) -> IndexPoints {
-        let n = sources.len();
-        let mut p = IndexPoints {
-            ra_deg: sources.ra_deg.clone(),
-            dec_deg: sources.dec_deg.clone(),
-            source: (0..n as u32).collect(),
-            slack_arcsec: 0.0,
+/// Epoch statistics of all sources, which decide where moving sources are also
+/// indexed and how far apart the stored positions of a candidate pair can be.
+///
+/// They must describe the whole input, not one cell of it, so that a cell
+/// indexes its sources exactly as a run over the whole sky would.
+#[derive(Debug, Clone, Default, PartialEq)]
+pub struct EpochStats {
+    /// Per catalog with sources without proper motion: (median epoch, largest
+    /// distance of an epoch from the median), Julian years.
+    pub no_motion_epochs: Vec<Option<(f64, f64)>>,
+    /// Largest |epoch − reference epoch| of any source without proper motion, years.
+    pub max_abs_dt_yr: f64,
+    /// Fastest proper motion of any source, arcsec per year.
+    pub fastest_arcsec_per_yr: f64,
+}
+
+impl EpochStats {
+    /// The statistics of `sources` at `reference_epoch_yr`.
+    pub fn of(sources: &Sources, reference_epoch_yr: f64) -> EpochStats {
+        let ncat = sources.catalog_start.len().saturating_sub(1);
+        let mut stats = EpochStats {
+            no_motion_epochs: vec![None; ncat],
+            ..EpochStats::default()
         };
-        // Median epoch and spread of each catalog's sources without proper motion.
-        let ncat = sources.catalog_start.len() - 1;
-        let mut epochs: Vec<(usize, f64, f64)> = Vec::new();
         for c in 0..ncat {
             let mut e: Vec<f64> = (sources.catalog_start[c]..sources.catalog_start[c + 1])
                 .filter(|&i| !sources.has_pm(i) && sources.epoch_yr[i].is_finite())
@@ -129,17 +140,73 @@ impl IndexPoints {
             e.sort_by(f64::total_cmp);
             let median = e[e.len() / 2];
             let spread = (e[e.len() - 1] - median).max(median - e[0]);
-            epochs.push((c, median, spread));
+            let far = (e[e.len() - 1] - reference_epoch_yr)
+                .abs()
+                .max((e[0] - reference_epoch_yr).abs());
+            stats.max_abs_dt_yr = stats.max_abs_dt_yr.max(far);
+            stats.no_motion_epochs[c] = Some((median, spread));
         }
-        let mut fastest_arcsec_per_yr: f64 = 0.0;
+        for i in 0..sources.len() {
+            if sources.has_pm(i) {
+                let (pmra, pmdec) = sources.pm_masyr[i];
+                stats.fastest_arcsec_per_yr =
+                    stats.fastest_arcsec_per_yr.max(pmra.hypot(pmdec) / 1000.0);
+            }
+        }
+        stats
+    }
+
+    /// Extra search radius for catalogs whose epochs spread around their median, arcsec.
+    pub fn slack_arcsec(&self) -> f64 {
+        let widest_spread = self
+            .no_motion_epochs
+            .iter()
+            .flatten()
+            .map(|e| e.1)
+            .fold(0.0, f64::max);
+        (self.fastest_arcsec_per_yr * widest_spread).min(MAX_EPOCH_SLACK_ARCSEC)
+    }
+
+    /// Largest separation of the stored positions of two sources that can be a
+    /// candidate pair, arcsec: the largest tolerance plus the farthest a moving
+    /// source travels between the reference epoch and an epoch of observation.
+    pub fn max_stored_separation_arcsec(&self, config: &MatchConfig) -> f64 {
+        config.max_radius_arcsec() + self.fastest_arcsec_per_yr * self.max_abs_dt_yr
+    }
+}
+
+impl IndexPoints {
+    /// Builds the points of `sources`, with epoch statistics taken from them.
+    pub fn new(sources: &Sources, config: &MatchConfig) -> IndexPoints {
+        IndexPoints::with_stats(
+            sources,
+            config,
+            &EpochStats::of(sources, config.reference_epoch_yr),
+        )
+    }
+
+    /// Builds the points of `sources` with epoch statistics of the whole input.
+    pub fn with_stats(sources: &Sources, config: &MatchConfig, stats: &EpochStats) -> IndexPoints {
+        let n = sources.len();
+        let mut p = IndexPoints {
+            ra_deg: sources.ra_deg.clone(),
+            dec_deg: sources.dec_deg.clone(),
+            source: (0..n as u32).collect(),
+            slack_arcsec: stats.slack_arcsec(),
+        };
+        let epochs: Vec<(usize, f64)> = stats
+            .no_motion_epochs
+            .iter()
+            .enumerate()
+            .filter_map(|(c, e)| e.map(|(median, _)| (c, median)))
+            .collect();
         for i in 0..n {
             if !sources.has_pm(i) {
                 continue;
             }
             let (pmra, pmdec) = sources.pm_masyr[i];
             let speed = pmra.hypot(pmdec) / 1000.0;
-            fastest_arcsec_per_yr = fastest_arcsec_per_yr.max(speed);
-            for &(c, median, _) in &epochs {
+            for &(c, median) in &epochs {
                 let dt = median - config.reference_epoch_yr;
                 if c == sources.catalog[i] as usize || speed * dt.abs() <= EPOCH_COPY_MIN_ARCSEC {
                     continue;
@@ -151,8 +218,6 @@ impl IndexPoints {
                 p.source.push(i as u32);
             }
         }
-        let widest_spread = epochs.iter().map(|e| e.2).fold(0.0, f64::max);
-        p.slack_arcsec = (fastest_arcsec_per_yr * widest_spread).min(MAX_EPOCH_SLACK_ARCSEC);
         p
     }
 }
@@ -198,10 +263,24 @@ pub fn find_candidates_in_cell(
 
 /// All candidate pairs, sorted by (a, b) without repeats; cells are searched in parallel.
 pub fn find_candidates(sources: &Sources, config: &MatchConfig) -> Vec<Candidate> {
+    find_candidates_with(
+        sources,
+        config,
+        &EpochStats::of(sources, config.reference_epoch_yr),
+    )
+}
+
+/// As [`find_candidates`], with the epoch statistics of the whole input (for a
+/// subset of it, such as one cell with its margin).
+pub fn find_candidates_with(
+    sources: &Sources,
+    config: &MatchConfig,
+    stats: &EpochStats,
+) -> Vec<Candidate> {
     if sources.is_empty() {
         return Vec::new();
     }
-    let points = IndexPoints::new(sources, config);
+    let points = IndexPoints::with_stats(sources, config, stats);
     let radius_deg = (config.max_radius_arcsec() + points.slack_arcsec) / 3600.0;
     let cells = partition(
         config.partition_order,

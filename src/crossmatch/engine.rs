@@ -26,15 +26,14 @@ use rayon::prelude::*;
 use serde::Serialize;
 
 use super::bayes::posterior;
-use super::blends::{Blend, find_blends};
-use super::candidates::{Candidate, find_candidates};
+use super::candidates::EpochStats;
+use super::cells::{CellOutput, CellStats, match_by_cells};
 use super::config::MatchConfig;
 use super::density::footprint_area_sr;
 use super::flags;
-use super::groups::connected_groups;
 use super::input::SourceTable;
 use super::prepare::Sources;
-use super::resolve::{Context, ResolvedObject, resolve_group};
+use super::resolve::Context;
 use crate::error::Result;
 use crate::sky::partition::home_cell;
 use crate::sky::propagation::propagate_deg;
@@ -161,6 +160,8 @@ pub struct MatchStats {
     pub objects_by_members: BTreeMap<usize, usize>,
     /// Objects per flag name.
     pub flags: BTreeMap<String, usize>,
+    /// How the match was split into sky cells.
+    pub cells: CellStats,
     /// Seconds per phase (not serialized, so records of the same inputs are identical).
     #[serde(skip)]
     pub seconds: PhaseSeconds,
@@ -222,43 +223,19 @@ pub fn run_match_with_area(
     seconds.densities = t.elapsed().as_secs_f64();
 
     let t = Instant::now();
-    let candidates = find_candidates(&sources, config);
+    let epochs = EpochStats::of(&sources, config.reference_epoch_yr);
+    let ln_density_per_sr: Vec<f64> = densities.iter().map(|d| d.ln()).collect();
+    let (cells, cell_stats) = match_by_cells(&sources, config, &ln_density_per_sr, &epochs);
     seconds.candidates = t.elapsed().as_secs_f64();
-
-    // Blends take no part in the grouping; their candidates stay in the links.
-    let t = Instant::now();
-    let blends = find_blends(&sources, config);
-    let mut blended = vec![false; sources.len()];
-    for b in &blends {
-        blended[b.source as usize] = true;
-    }
-    let usable: Vec<Candidate> = candidates
-        .iter()
-        .filter(|c| !blended[c.a as usize] && !blended[c.b as usize])
-        .copied()
-        .collect();
-    let groups = connected_groups(sources.len(), usable.iter().map(|c| (c.a, c.b)));
-    let (by_group, group_start) = candidates_by_group(&groups, &usable, sources.len());
-    seconds.groups = t.elapsed().as_secs_f64();
-
-    let t = Instant::now();
     let ctx = Context {
         sources: &sources,
         config,
-        ln_density_per_sr: densities.iter().map(|d| d.ln()).collect(),
+        ln_density_per_sr,
     };
-    let resolved: Vec<Vec<ResolvedObject>> = groups
-        .par_iter()
-        .enumerate()
-        .map(|(g, members)| {
-            let cands = &by_group[group_start[g]..group_start[g + 1]];
-            resolve_group(&ctx, members, cands)
-        })
-        .collect();
-    seconds.resolution = t.elapsed().as_secs_f64();
 
     let t = Instant::now();
-    let mut result = assemble(tables, &ctx, &groups, resolved, &candidates, &blends);
+    let mut result = assemble(tables, &ctx, cells);
+    result.stats.cells = cell_stats;
     seconds.assemble = t.elapsed().as_secs_f64();
     result.stats.density_per_deg2 = densities.iter().map(|d| d / DEG2_PER_SR).collect();
     result.stats.sources = tables.iter().map(SourceTable::len).collect();
@@ -266,53 +243,22 @@ pub fn run_match_with_area(
     Ok(result)
 }
 
-/// The candidates ordered by group (keeping their (a, b) order within a group),
-/// and where each group's run starts (plus the total at the end).
-fn candidates_by_group(
-    groups: &[Vec<u32>],
-    candidates: &[Candidate],
-    n: usize,
-) -> (Vec<Candidate>, Vec<usize>) {
-    let mut group_of = vec![0u32; n];
-    for (g, members) in groups.iter().enumerate() {
-        for &m in members {
-            group_of[m as usize] = g as u32;
-        }
-    }
-    let mut start = vec![0usize; groups.len() + 1];
-    for c in candidates {
-        start[group_of[c.a as usize] as usize + 1] += 1;
-    }
-    for g in 0..groups.len() {
-        start[g + 1] += start[g];
-    }
-    let mut next = start.clone();
-    let mut ordered = candidates.to_vec();
-    for c in candidates {
-        let g = group_of[c.a as usize] as usize;
-        ordered[next[g]] = *c;
-        next[g] += 1;
-    }
-    (ordered, start)
-}
-
-fn assemble(
-    tables: &[SourceTable],
-    ctx: &Context,
-    groups: &[Vec<u32>],
-    resolved: Vec<Vec<ResolvedObject>>,
-    candidates: &[Candidate],
-    blends: &[Blend],
-) -> MatchResult {
+fn assemble(tables: &[SourceTable], ctx: &Context, cells: CellOutput) -> MatchResult {
     let (sources, config) = (ctx.sources, ctx.config);
+    let CellOutput {
+        objects: mut resolved,
+        candidates,
+        blends,
+        groups,
+        largest_group,
+        approximate_groups,
+    } = cells;
+    let candidates = &candidates[..];
     let mut stats = MatchStats {
         candidates: candidates.len(),
-        groups: groups.len(),
-        largest_group: groups.iter().map(Vec::len).max().unwrap_or(0),
-        approximate_groups: resolved
-            .iter()
-            .filter(|g| g.iter().any(|o| o.flags & flags::APPROXIMATE != 0))
-            .count(),
+        groups,
+        largest_group,
+        approximate_groups,
         ..MatchStats::default()
     };
     let id_of_rank = |rank: u32| -> String {
@@ -323,49 +269,31 @@ fn assemble(
             tables[c].name, tables[c].source_id[sources.row[r] as usize]
         )
     };
-    // Objects in anchor order, addressed as (group, index) so the resolved
-    // objects themselves are not moved.
-    let mut resolved = resolved;
-    let mut order: Vec<(u32, u32, u32)> = resolved
-        .iter()
-        .enumerate()
-        .flat_map(|(g, objs)| {
-            objs.iter()
-                .enumerate()
-                .map(move |(k, o)| (o.members[0], g as u32, k as u32))
-        })
-        .collect();
-    order.par_sort_unstable();
+    // Objects come in anchor order.
     let mut object_of_rank = vec![0u32; sources.len()];
-    for (pos, &(_, g, k)) in order.iter().enumerate() {
-        for &m in &resolved[g as usize][k as usize].members {
+    for (pos, o) in resolved.iter().enumerate() {
+        for &m in &o.members {
             object_of_rank[m as usize] = pos as u32;
         }
     }
-    let at = |pos: u32| -> (usize, usize) {
-        let (_, g, k) = order[pos as usize];
-        (g as usize, k as usize)
-    };
-    for b in blends {
-        let (gb, kb) = at(object_of_rank[b.source as usize]);
-        resolved[gb][kb].flags |= flags::BLEND;
+    for b in &blends {
+        let kb = object_of_rank[b.source as usize] as usize;
+        resolved[kb].flags |= flags::BLEND;
         for &u in &b.under {
-            let (gu, ku) = at(object_of_rank[u as usize]);
-            let (anchor_blend, anchor_under) =
-                (resolved[gb][kb].members[0], resolved[gu][ku].members[0]);
-            resolved[gu][ku].flags |= flags::HAS_BLEND;
-            resolved[gu][ku].related.push(anchor_blend);
-            resolved[gb][kb].related.push(anchor_under);
+            let ku = object_of_rank[u as usize] as usize;
+            let (anchor_blend, anchor_under) = (resolved[kb].members[0], resolved[ku].members[0]);
+            resolved[ku].flags |= flags::HAS_BLEND;
+            resolved[ku].related.push(anchor_blend);
+            resolved[kb].related.push(anchor_under);
         }
     }
-    for o in resolved.iter_mut().flatten() {
+    for o in resolved.iter_mut() {
         o.related.sort_unstable();
         o.related.dedup();
     }
-    let mut objects: Vec<MatchedObject> = order
+    let mut objects: Vec<MatchedObject> = resolved
         .par_iter()
-        .map(|&(_, g, k)| {
-            let o = &resolved[g as usize][k as usize];
+        .map(|o| {
             let anchor = o.members[0] as usize;
             let owner_cell = home_cell(
                 config.partition_order,

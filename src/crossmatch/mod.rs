@@ -31,6 +31,7 @@
 pub mod bayes;
 pub mod blends;
 pub mod candidates;
+pub mod cells;
 pub mod config;
 pub mod density;
 pub mod engine;

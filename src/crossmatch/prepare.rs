@@ -147,6 +147,39 @@ impl Sources {
         Ok(s)
     }
 
+    /// The sources of ranks `ranks` (ascending), as a table of their own: local
+    /// rank k is `ranks[k]`, so the rank order, and every tie broken by it, is
+    /// the same as in `self`.
+    ///
+    /// # Panics
+    /// If `ranks` is not ascending or names a rank outside `self`.
+    pub fn subset(&self, ranks: &[u32]) -> Sources {
+        assert!(
+            ranks.windows(2).all(|w| w[0] < w[1]),
+            "subset ranks must be ascending"
+        );
+        let pick = |i: &u32| *i as usize;
+        let ncat = self.catalog_start.len().saturating_sub(1);
+        let mut s = Sources {
+            catalog: ranks.iter().map(|i| self.catalog[pick(i)]).collect(),
+            row: ranks.iter().map(|i| self.row[pick(i)]).collect(),
+            ra_deg: ranks.iter().map(|i| self.ra_deg[pick(i)]).collect(),
+            dec_deg: ranks.iter().map(|i| self.dec_deg[pick(i)]).collect(),
+            epoch_yr: ranks.iter().map(|i| self.epoch_yr[pick(i)]).collect(),
+            pm_masyr: ranks.iter().map(|i| self.pm_masyr[pick(i)]).collect(),
+            vec: ranks.iter().map(|i| self.vec[pick(i)]).collect(),
+            cov: ranks.iter().map(|i| self.cov[pick(i)]).collect(),
+            sigma_rad: ranks.iter().map(|i| self.sigma_rad[pick(i)]).collect(),
+            catalog_start: Vec::with_capacity(ncat + 1),
+        };
+        for c in 0..ncat {
+            s.catalog_start
+                .push(s.catalog.partition_point(|&k| (k as usize) < c));
+        }
+        s.catalog_start.push(s.len());
+        s
+    }
+
     /// True when source `i` has a proper motion.
     pub fn has_pm(&self, i: usize) -> bool {
         !self.pm_masyr[i].0.is_nan()
