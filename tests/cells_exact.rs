@@ -145,11 +145,7 @@ fn a_chain_across_tiny_cells_is_matched_again_with_wider_margins() {
     let expected = run_match_with_area(&tables, &whole, area).unwrap();
     let got = run_match_with_area(&tables, &tiny, area).unwrap();
     assert!(expected.stats.cells.widened.is_empty());
-    assert!(
-        !got.stats.cells.widened.is_empty(),
-        "{:?}",
-        got.stats.cells
-    );
+    assert!(!got.stats.cells.widened.is_empty(), "{:?}", got.stats.cells);
     assert!(got.stats.cells.cells > 5, "{:?}", got.stats.cells);
     assert_eq!(expected.stats.largest_group, 41);
     assert_eq!(fingerprint(&tables, &got), fingerprint(&tables, &expected));

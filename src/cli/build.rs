@@ -38,6 +38,22 @@ pub struct BuildArgs {
     /// Write into this folder instead of the plan's output folder.
     #[arg(long, short, value_name = "FOLDER")]
     pub out: Option<PathBuf>,
+    /// HEALPix order of the sky cells matched one at a time (default: the plan's
+    /// `partition_order`). The outputs do not depend on it.
+    #[arg(long, value_name = "ORDER", value_parser = clap::value_parser!(u8).range(0..=29))]
+    pub cell_order: Option<u8>,
+    /// Worker threads (default: one per core). The outputs do not depend on it.
+    #[arg(long, value_name = "N", value_parser = clap::value_parser!(u16).range(1..))]
+    pub threads: Option<u16>,
+}
+
+/// How a build runs, without changing what it writes.
+#[derive(Debug, Clone, Copy, Default)]
+pub struct RunOptions {
+    /// Hide progress bars.
+    pub quiet: bool,
+    /// Sky-cell order to use instead of the plan's.
+    pub cell_order: Option<u8>,
 }
 
 /// Everything read from one catalog.
@@ -56,7 +72,18 @@ struct ReadCatalog {
 pub fn run(args: &BuildArgs, quiet: bool) -> Result<()> {
     let plan = Plan::from_file(&args.plan)?;
     let out_dir = args.out.clone().unwrap_or_else(|| plan.output.clone());
-    let outcome = build(&plan, &out_dir, quiet)?;
+    let options = RunOptions {
+        quiet,
+        cell_order: args.cell_order,
+    };
+    let outcome = match args.threads {
+        Some(n) => rayon::ThreadPoolBuilder::new()
+            .num_threads(usize::from(n))
+            .build()
+            .map_err(|e| Error::Usage(format!("cannot start {n} threads: {e}")))?
+            .install(|| build_with(&plan, &out_dir, options))?,
+        None => build_with(&plan, &out_dir, options)?,
+    };
     super::write_stdout(&outcome.summary)
 }
 
@@ -73,6 +100,26 @@ pub struct BuildOutcome {
 /// # Errors
 /// As [`run`].
 pub fn build(plan: &Plan, out_dir: &Path, quiet: bool) -> Result<BuildOutcome> {
+    build_with(
+        plan,
+        out_dir,
+        RunOptions {
+            quiet,
+            ..RunOptions::default()
+        },
+    )
+}
+
+/// As [`build`], with run options.
+///
+/// # Errors
+/// As [`run`].
+pub fn build_with(plan: &Plan, out_dir: &Path, run: RunOptions) -> Result<BuildOutcome> {
+    let quiet = run.quiet;
+    let mut matching = plan.matching.clone();
+    if let Some(order) = run.cell_order {
+        matching.partition_order = order;
+    }
     let options = NormalizeOptions {
         skip_bad_rows: plan.skip_bad_rows,
     };
@@ -88,20 +135,20 @@ pub fn build(plan: &Plan, out_dir: &Path, quiet: bool) -> Result<BuildOutcome> {
         match plan.astrometric_reference {
             Some(reference) => match_with_offsets(
                 &tables,
-                &plan.matching,
+                &matching,
                 plan.area_sr,
                 reference,
                 plan.correct_offsets,
             )?,
             None => (
-                crate::crossmatch::run_match_with_area(&tables, &plan.matching, plan.area_sr)?,
+                crate::crossmatch::run_match_with_area(&tables, &matching, plan.area_sr)?,
                 Vec::new(),
                 tables.clone(),
             ),
         };
     bar.set_message("estimating false matches");
     let false_matches: Vec<FalseMatchEstimate> = if plan.false_matches {
-        estimate_false_matches(&matched_tables, &plan.matching)?
+        estimate_false_matches(&matched_tables, &matching)?
     } else {
         Vec::new()
     };
@@ -371,6 +418,12 @@ fn summary(
         .map(|(k, v)| format!("{v} with {k}"))
         .collect();
     s.push_str(&format!("         members: {}\n", by_members.join(", ")));
+    let cells = &m.cells;
+    let widened: usize = cells.widened.iter().sum();
+    s.push_str(&format!(
+        "         cells:   {} at order {} (margin {:.1}\"), {} matched again with wider margins\n",
+        cells.cells, cells.order, cells.margin_arcsec, widened
+    ));
     let flags: Vec<String> = m.flags.iter().map(|(k, v)| format!("{k} {v}")).collect();
     s.push_str(&format!("         flags:   {}\n", flags.join(", ")));
     for o in &record.offsets {

@@ -254,7 +254,7 @@ pub fn find_candidates_in_cell(
         if a == b || sources.catalog[a as usize] == sources.catalog[b as usize] {
             return;
         }
-        if let Some(c) = test_pair(sources, config, a, b) {
+        if let Some(c) = test_pair(sources, config, a.min(b), a.max(b)) {
             out.push(c);
         }
     });

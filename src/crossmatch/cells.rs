@@ -261,6 +261,8 @@ pub const WIDEST_MARGIN_DEG: f64 = 30.0;
 pub struct CellStats {
     /// Cells with at least one core source.
     pub cells: usize,
+    /// Their HEALPix order.
+    pub order: u8,
     /// Margin width of the first pass, arcsec.
     pub margin_arcsec: f64,
     /// Cells matched again with a wider margin, per doubling.
@@ -285,6 +287,7 @@ pub fn match_by_cells(
     };
     let base_margin_arcsec = 2.0 * influence_arcsec.max(1e-3);
     let mut stats = CellStats {
+        order: config.partition_order,
         margin_arcsec: base_margin_arcsec,
         ..CellStats::default()
     };
@@ -299,17 +302,22 @@ pub fn match_by_cells(
         let everything = margin_arcsec > WIDEST_MARGIN_DEG * 3600.0;
         let cells = if everything {
             let all: Vec<u32> = (0..sources.len() as u32).collect();
-            partition(config.partition_order, &sources.ra_deg, &sources.dec_deg, 0.0)
-                .into_iter()
-                .map(|c| {
-                    let margin = all
-                        .iter()
-                        .copied()
-                        .filter(|r| c.core.binary_search(r).is_err())
-                        .collect();
-                    crate::sky::partition::Cell { margin, ..c }
-                })
-                .collect()
+            partition(
+                config.partition_order,
+                &sources.ra_deg,
+                &sources.dec_deg,
+                0.0,
+            )
+            .into_iter()
+            .map(|c| {
+                let margin = all
+                    .iter()
+                    .copied()
+                    .filter(|r| c.core.binary_search(r).is_err())
+                    .collect();
+                crate::sky::partition::Cell { margin, ..c }
+            })
+            .collect()
         } else {
             partition(
                 config.partition_order,
@@ -318,11 +326,19 @@ pub fn match_by_cells(
                 margin_arcsec / 3600.0,
             )
         };
-        let held_arcsec = if everything { f64::INFINITY } else { margin_arcsec };
+        let held_arcsec = if everything {
+            f64::INFINITY
+        } else {
+            margin_arcsec
+        };
         let todo: Vec<&crate::sky::partition::Cell> = cells
             .iter()
             .filter(|c| !c.core.is_empty())
-            .filter(|c| pending.as_ref().is_none_or(|p| p.binary_search(&c.id).is_ok()))
+            .filter(|c| {
+                pending
+                    .as_ref()
+                    .is_none_or(|p| p.binary_search(&c.id).is_ok())
+            })
             .collect();
         if pending.is_none() {
             stats.cells = todo.len();
@@ -339,7 +355,10 @@ pub fn match_by_cells(
                     .map(|r| cell.core.binary_search(r).is_ok())
                     .collect();
                 let local = sources.subset(&ranks);
-                (cell.id, match_cell(&ctx, &local, &core, &ranks, held_arcsec))
+                (
+                    cell.id,
+                    match_cell(&ctx, &local, &core, &ranks, held_arcsec),
+                )
             })
             .collect();
         let mut again: Vec<u64> = Vec::new();
@@ -359,7 +378,10 @@ pub fn match_by_cells(
         if again.is_empty() {
             break;
         }
-        assert!(!everything, "a cell holding every source is always complete");
+        assert!(
+            !everything,
+            "a cell holding every source is always complete"
+        );
         stats.widened.push(again.len());
         again.sort_unstable();
         pending = Some(again);

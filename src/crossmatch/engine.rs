@@ -16,8 +16,9 @@
 //! from its own epoch with the object's proper motion (the mean of its moving
 //! members'), when it has one.
 //!
-//! Ownership for partitioned runs: an object belongs to the HEALPix cell (at the
-//! partition order) of its anchor's position at the reference epoch (`owner_cell`).
+//! Ownership for partitioned runs: an object belongs to the HEALPix cell of its
+//! anchor's position at the reference epoch; `healpix29` is that cell at order 29,
+//! from which the cell at any coarser order follows by a shift.
 
 use std::collections::BTreeMap;
 use std::time::Instant;
@@ -77,8 +78,10 @@ pub struct MatchedObject {
     pub probability: f64,
     /// Related objects (blend relations), by identifier.
     pub related: Vec<String>,
-    /// HEALPix NESTED cell (partition order) that owns the object.
-    pub owner_cell: u64,
+    /// NESTED HEALPix index at order 29 of the anchor's position: the same
+    /// whatever the partition; objects of the cell of order k are those with
+    /// `healpix29 >> 2(29 − k)` equal to its index.
+    pub healpix29: u64,
 }
 
 impl MatchedObject {
@@ -160,7 +163,9 @@ pub struct MatchStats {
     pub objects_by_members: BTreeMap<usize, usize>,
     /// Objects per flag name.
     pub flags: BTreeMap<String, usize>,
-    /// How the match was split into sky cells.
+    /// How the match was split into sky cells (not serialized: it depends on the
+    /// partition, the result does not).
+    #[serde(skip)]
     pub cells: CellStats,
     /// Seconds per phase (not serialized, so records of the same inputs are identical).
     #[serde(skip)]
@@ -295,11 +300,7 @@ fn assemble(tables: &[SourceTable], ctx: &Context, cells: CellOutput) -> MatchRe
         .par_iter()
         .map(|o| {
             let anchor = o.members[0] as usize;
-            let owner_cell = home_cell(
-                config.partition_order,
-                sources.ra_deg[anchor],
-                sources.dec_deg[anchor],
-            );
+            let healpix29 = home_cell(29, sources.ra_deg[anchor], sources.dec_deg[anchor]);
             if o.members.len() == 1 {
                 // One source: its own position (at the reference epoch when it moves),
                 // error and motion.
@@ -319,7 +320,7 @@ fn assemble(tables: &[SourceTable], ctx: &Context, cells: CellOutput) -> MatchRe
                     flags: o.flags,
                     probability: o.probability,
                     related: o.related.iter().map(|&r| id_of_rank(r)).collect(),
-                    owner_cell,
+                    healpix29,
                 };
             }
             // The object's proper motion is the mean of its members' own; members
@@ -382,7 +383,7 @@ fn assemble(tables: &[SourceTable], ctx: &Context, cells: CellOutput) -> MatchRe
                 flags: o.flags,
                 probability: o.probability,
                 related: o.related.iter().map(|&r| id_of_rank(r)).collect(),
-                owner_cell,
+                healpix29,
             }
         })
         .collect();

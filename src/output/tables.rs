@@ -94,7 +94,7 @@ pub fn objects_batch(
         field("status", DataType::Utf8, false, None),
         field("probability", DataType::Float64, false, None),
         field("related", DataType::Utf8, true, None),
-        field("owner_cell", DataType::UInt64, false, None),
+        field("healpix29", DataType::UInt64, false, None),
     ];
     let opt = |v: f64| (!v.is_nan()).then_some(v);
     let mut columns: Vec<ArrayRef> = vec![
@@ -140,7 +140,7 @@ pub fn objects_batch(
                 .collect::<Vec<_>>(),
         )),
         Arc::new(UInt64Array::from_iter_values(
-            objects.iter().map(|o| o.owner_cell),
+            objects.iter().map(|o| o.healpix29),
         )),
     ];
     for (c, table) in tables.iter().enumerate() {

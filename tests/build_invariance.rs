@@ -1,0 +1,68 @@
+//! The files a build writes do not depend on how the sky was cut into cells nor
+//! on the number of threads: byte for byte.
+
+use std::path::Path;
+use std::process::Command;
+
+fn build(out: &Path, extra: &[&str]) {
+    let status = Command::new(env!("CARGO_BIN_EXE_fluxloom"))
+        .args(["--quiet", "build", "demo_catalogs/fl1/plan.toml", "--out"])
+        .arg(out)
+        .args(extra)
+        .output()
+        .expect("fluxloom runs");
+    assert!(
+        status.status.success(),
+        "{}",
+        String::from_utf8_lossy(&status.stderr)
+    );
+}
+
+fn files(dir: &Path) -> Vec<(String, Vec<u8>)> {
+    let mut v: Vec<(String, Vec<u8>)> = std::fs::read_dir(dir)
+        .unwrap()
+        .map(|e| e.unwrap().path())
+        .map(|p| {
+            (
+                p.file_name().unwrap().to_string_lossy().into_owned(),
+                std::fs::read(&p).unwrap(),
+            )
+        })
+        .collect();
+    v.sort();
+    v
+}
+
+#[test]
+fn outputs_are_identical_for_any_cell_order_and_thread_count() {
+    let dir = tempfile::tempdir().unwrap();
+    let reference = dir.path().join("reference");
+    build(&reference, &[]);
+    let expected = files(&reference);
+    assert!(
+        expected.len() >= 4,
+        "{:?}",
+        expected.iter().map(|f| &f.0).collect::<Vec<_>>()
+    );
+    for (name, extra) in [
+        ("one_cell", vec!["--cell-order", "0"]),
+        ("small_cells", vec!["--cell-order", "11"]),
+        ("one_thread", vec!["--threads", "1"]),
+        (
+            "three_threads_small_cells",
+            vec!["--threads", "3", "--cell-order", "9"],
+        ),
+    ] {
+        let out = dir.path().join(name);
+        build(&out, &extra);
+        let got = files(&out);
+        assert_eq!(
+            got.iter().map(|f| &f.0).collect::<Vec<_>>(),
+            expected.iter().map(|f| &f.0).collect::<Vec<_>>(),
+            "{name}"
+        );
+        for ((file, a), (_, b)) in got.iter().zip(&expected) {
+            assert!(a == b, "{name}: {file} differs from the reference build");
+        }
+    }
+}
