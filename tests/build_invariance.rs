@@ -1,5 +1,6 @@
 //! The files a build writes do not depend on how the sky was cut into cells nor
-//! on the number of threads: byte for byte.
+//! on the number of threads, nor on how many objects are written at a time:
+//! byte for byte.
 
 use std::path::Path;
 use std::process::Command;

@@ -27,8 +27,12 @@ use crate::output::staging::Staging;
 use crate::output::tables::{for_export, links_batch, objects_batch, photometry_batch};
 use crate::output::{csv::write_csv, fits::write_fits, votable::write_votable};
 use crate::plan::{ExportFormat, Plan};
-use crate::sed::{BandSlot, Sed, SedStatus, assemble};
+use crate::sed::{BandSlot, SedAssembler, SedStatus};
 use crate::sky::coverage::Coverage;
+
+/// Objects assembled and written per chunk (also the Parquet row-group size of
+/// the objects table).
+pub const WRITE_CHUNK_OBJECTS: usize = 65_536;
 
 /// Arguments of `fluxloom build`.
 #[derive(Debug, Args)]
@@ -45,6 +49,9 @@ pub struct BuildArgs {
     /// Worker threads (default: one per core). The outputs do not depend on it.
     #[arg(long, value_name = "N", value_parser = clap::value_parser!(u16).range(1..))]
     pub threads: Option<u16>,
+    /// Objects assembled and written at a time (for tests; the outputs do not depend on it).
+    #[arg(long, value_name = "N", hide = true, value_parser = clap::value_parser!(u32).range(1..))]
+    pub write_chunk: Option<u32>,
 }
 
 /// How a build runs, without changing what it writes.
@@ -54,6 +61,8 @@ pub struct RunOptions {
     pub quiet: bool,
     /// Sky-cell order to use instead of the plan's.
     pub cell_order: Option<u8>,
+    /// Objects per write chunk instead of [`WRITE_CHUNK_OBJECTS`].
+    pub write_chunk: Option<usize>,
 }
 
 /// Everything read from one catalog.
@@ -75,6 +84,7 @@ pub fn run(args: &BuildArgs, quiet: bool) -> Result<()> {
     let options = RunOptions {
         quiet,
         cell_order: args.cell_order,
+        write_chunk: args.write_chunk.map(|n| n as usize),
     };
     let outcome = match args.threads {
         Some(n) => rayon::ThreadPoolBuilder::new()
@@ -181,37 +191,84 @@ pub fn build_with(plan: &Plan, out_dir: &Path, run: RunOptions) -> Result<BuildO
         })
         .collect();
     let normalized: Vec<RecordBatch> = read.iter().map(|r| r.normalized.clone()).collect();
-    let seds = assemble(&slots, &result.objects, &normalized, &coverage)?;
+    let assembler = SedAssembler::new(&slots, &result.objects, &normalized, &coverage)?;
 
     let bar = spinner("writing", quiet);
     let mut staging = Staging::new(out_dir)?;
     let metadata = table_metadata(plan, &slots)?;
-    let objects = objects_batch(
-        &result.objects,
-        &seds,
-        &slots,
-        &tables,
-        plan.matching.reference_epoch_yr,
+    let epoch = plan.matching.reference_epoch_yr;
+    // The tables are assembled and written a chunk of objects at a time, so only
+    // one chunk of output columns is in memory (plus the exports' copy, if any).
+    let schema_of = |b: Result<RecordBatch>| b.map(|b| b.schema());
+    let mut objects_out = ParquetOutput::create(
+        &staging.path("objects.parquet"),
+        schema_of(objects_batch(&[], &[], &slots, &tables, epoch))?,
+        metadata.clone(),
     )?;
-    let photometry = photometry_batch(&result.objects, &seds, &slots, &tables)?;
-    let links = links_batch(&result.links, &tables)?;
+    let mut photometry_out = ParquetOutput::create(
+        &staging.path("photometry.parquet"),
+        schema_of(photometry_batch(&[], &[], &slots, &tables))?,
+        metadata.clone(),
+    )?;
+    let mut links_out = ParquetOutput::create(
+        &staging.path("links.parquet"),
+        schema_of(links_batch(&[], &tables))?,
+        metadata.clone(),
+    )?;
+    let mut status_counts = vec![[0u64; SedStatus::ALL.len()]; slots.len()];
+    let (mut objects, mut photometry) = (Vec::new(), Vec::new());
+    let n_objects = result.objects.len();
+    let chunk_objects = run.write_chunk.unwrap_or(WRITE_CHUNK_OBJECTS);
+    for start in (0..n_objects).step_by(chunk_objects) {
+        let range = start..(start + chunk_objects).min(n_objects);
+        let seds = assembler.seds(range.clone())?;
+        for sed in &seds {
+            for (k, p) in sed.points.iter().enumerate() {
+                status_counts[k][p.status as usize] += 1;
+            }
+        }
+        let chunk = &result.objects[range];
+        let ob = objects_batch(chunk, &seds, &slots, &tables, epoch)?;
+        let pb = photometry_batch(chunk, &seds, &slots, &tables)?;
+        objects_out.write(&ob)?;
+        photometry_out.write(&pb)?;
+        if !plan.exports.is_empty() {
+            objects.push(for_export(&ob)?);
+            photometry.push(for_export(&pb)?);
+        }
+    }
+    if n_objects == 0 && !plan.exports.is_empty() {
+        objects.push(for_export(&objects_batch(
+            &[],
+            &[],
+            &slots,
+            &tables,
+            epoch,
+        )?)?);
+        photometry.push(for_export(&photometry_batch(&[], &[], &slots, &tables)?)?);
+    }
+    for chunk in result.links.chunks(chunk_objects) {
+        links_out.write(&links_batch(chunk, &tables)?)?;
+    }
     let mut outputs: Vec<OutputRecord> = Vec::new();
-    for (name, batch) in [
-        ("objects", &objects),
-        ("photometry", &photometry),
-        ("links", &links),
+    for (file, w) in [
+        ("objects.parquet", objects_out),
+        ("photometry.parquet", photometry_out),
+        ("links.parquet", links_out),
     ] {
-        let file = format!("{name}.parquet");
-        let mut w = ParquetOutput::create(&staging.path(&file), batch.schema(), metadata.clone())?;
-        w.write(batch)?;
         let rows = w.finish()?;
-        outputs.push(OutputRecord { file, rows });
+        outputs.push(OutputRecord {
+            file: file.to_string(),
+            rows,
+        });
     }
     for format in &plan.exports {
-        for (name, batch) in [("objects", &objects), ("photometry", &photometry)] {
-            let batch = for_export(batch)?;
-            let schema = batch.schema();
-            let batches = std::slice::from_ref(&batch);
+        for (name, batches) in [("objects", &objects), ("photometry", &photometry)] {
+            let schema = batches
+                .first()
+                .map(|b| b.schema())
+                .ok_or_else(|| Error::Usage(format!("no {name} batch to export")))?;
+            let batches = &batches[..];
             let (file, rows) = match format {
                 ExportFormat::Csv => {
                     let file = format!("{name}.csv");
@@ -270,7 +327,7 @@ pub fn build_with(plan: &Plan, out_dir: &Path, run: RunOptions) -> Result<BuildO
         &result,
         offsets,
         false_matches,
-        sed_counts(&slots, &seds),
+        sed_counts(&slots, &status_counts),
         outputs.clone(),
     );
     let run_json = staging.path("run.json");
@@ -366,19 +423,16 @@ fn to_json<T: serde::Serialize>(value: &T) -> Result<String> {
 }
 
 /// SED points per band slot and status, for run.json and the summary.
-fn sed_counts(slots: &[BandSlot], seds: &[Sed]) -> Vec<SedRecord> {
+fn sed_counts(slots: &[BandSlot], counts: &[[u64; SedStatus::ALL.len()]]) -> Vec<SedRecord> {
     slots
         .iter()
-        .enumerate()
-        .map(|(k, slot)| SedRecord {
+        .zip(counts)
+        .map(|(slot, by)| SedRecord {
             catalog: slot.catalog_name.clone(),
             band: slot.id().to_string(),
             by_status: SedStatus::ALL
                 .iter()
-                .map(|st| {
-                    let n = seds.iter().filter(|s| s.points[k].status == *st).count() as u64;
-                    (st.as_str().to_string(), n)
-                })
+                .map(|st| (st.as_str().to_string(), by[*st as usize]))
                 .collect(),
         })
         .collect()

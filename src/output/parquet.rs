@@ -22,7 +22,11 @@ use crate::error::{Error, Result};
 /// Metadata key holding the fluxloom version that wrote a file.
 pub const META_VERSION: &str = "fluxloom.version";
 
-/// A Parquet file being written.
+/// Rows per Parquet row group: a writer holds at most one row group of encoded
+/// columns in memory, and the groups fall at the same rows whatever produced them.
+pub const ROW_GROUP_ROWS: usize = 65_536;
+
+/// A Parquet file being written (see the module documentation).
 pub struct ParquetOutput {
     guard: AtomicFile,
     writer: ArrowWriter<BufWriter<File>>,
@@ -48,6 +52,7 @@ impl ParquetOutput {
         kv.extend(metadata.into_iter().map(|(k, v)| KeyValue::new(k, v)));
         let props = WriterProperties::builder()
             .set_compression(Compression::SNAPPY)
+            .set_max_row_group_row_count(Some(ROW_GROUP_ROWS))
             .set_key_value_metadata(Some(kv))
             .build();
         let writer = ArrowWriter::try_new(file, schema, Some(props))

@@ -207,54 +207,96 @@ pub fn assemble(
     tables: &[RecordBatch],
     coverage: &[Coverage],
 ) -> Result<Vec<Sed>> {
-    let data: Vec<BandColumnsData> = slots
-        .iter()
-        .map(|s| band_data(&tables[s.catalog], s))
-        .collect::<Result<_>>()?;
-    let index: HashMap<&str, usize> = objects
-        .iter()
-        .enumerate()
-        .map(|(i, o)| (o.object_id.as_str(), i))
-        .collect();
-    let depths: Vec<Option<f64>> = slots.iter().map(BandSlot::depth).collect();
-    Ok(objects
-        .iter()
-        .map(|o| {
-            let points = slots
-                .iter()
-                .zip(&data)
-                .zip(&depths)
-                .map(|((slot, d), depth)| {
-                    if let Some(m) = o.member(slot.catalog) {
-                        let mut p = d.point(m.row);
-                        if p.status == SedStatus::NotDetected && p.ulim.is_none() {
-                            p.ulim = *depth;
-                        }
-                        return p;
-                    }
-                    if o.flags & flags::HAS_BLEND != 0 {
-                        let blend = o
-                            .related
-                            .iter()
-                            .filter_map(|id| index.get(id.as_str()).map(|&i| &objects[i]))
-                            .find_map(|b| b.member(slot.catalog));
-                        if let Some(m) = blend {
-                            let source = d.point(m.row);
-                            let mut p = SedPoint::bare(SedStatus::Blended);
-                            p.ulim = source.value.or(source.ulim);
+    SedAssembler::new(slots, objects, tables, coverage)?.seds(0..objects.len())
+}
+
+/// Builds SEDs for any run of objects, so a build can assemble and write them a
+/// chunk at a time.
+pub struct SedAssembler<'a> {
+    slots: &'a [BandSlot],
+    objects: &'a [MatchedObject],
+    coverage: &'a [Coverage],
+    data: Vec<BandColumnsData<'a>>,
+    index: HashMap<&'a str, usize>,
+    depths: Vec<Option<f64>>,
+}
+
+impl<'a> SedAssembler<'a> {
+    /// Prepares the band columns of every slot; see [`assemble`] for the arguments.
+    ///
+    /// # Errors
+    /// A usage error when a normalized table lacks a band's columns.
+    pub fn new(
+        slots: &'a [BandSlot],
+        objects: &'a [MatchedObject],
+        tables: &'a [RecordBatch],
+        coverage: &'a [Coverage],
+    ) -> Result<SedAssembler<'a>> {
+        let data: Vec<BandColumnsData> = slots
+            .iter()
+            .map(|s| band_data(&tables[s.catalog], s))
+            .collect::<Result<_>>()?;
+        let index: HashMap<&str, usize> = objects
+            .iter()
+            .enumerate()
+            .map(|(i, o)| (o.object_id.as_str(), i))
+            .collect();
+        Ok(SedAssembler {
+            slots,
+            objects,
+            coverage,
+            data,
+            index,
+            depths: slots.iter().map(BandSlot::depth).collect(),
+        })
+    }
+
+    /// The SEDs of objects `range` (indices into the objects given to [`SedAssembler::new`]).
+    ///
+    /// # Errors
+    /// None at present; kept fallible for callers that stream.
+    pub fn seds(&self, range: std::ops::Range<usize>) -> Result<Vec<Sed>> {
+        let (slots, objects, coverage) = (self.slots, self.objects, self.coverage);
+        let (data, index, depths) = (&self.data, &self.index, &self.depths);
+        Ok(objects[range]
+            .iter()
+            .map(|o| {
+                let points = slots
+                    .iter()
+                    .zip(data)
+                    .zip(depths)
+                    .map(|((slot, d), depth)| {
+                        if let Some(m) = o.member(slot.catalog) {
+                            let mut p = d.point(m.row);
+                            if p.status == SedStatus::NotDetected && p.ulim.is_none() {
+                                p.ulim = *depth;
+                            }
                             return p;
                         }
-                    }
-                    if coverage[slot.catalog].contains(o.ra_deg, o.dec_deg) {
-                        let mut p = SedPoint::bare(SedStatus::NotDetected);
-                        p.ulim = *depth;
-                        p
-                    } else {
-                        SedPoint::bare(SedStatus::NotCovered)
-                    }
-                })
-                .collect();
-            Sed { points }
-        })
-        .collect())
+                        if o.flags & flags::HAS_BLEND != 0 {
+                            let blend = o
+                                .related
+                                .iter()
+                                .filter_map(|id| index.get(id.as_str()).map(|&i| &objects[i]))
+                                .find_map(|b| b.member(slot.catalog));
+                            if let Some(m) = blend {
+                                let source = d.point(m.row);
+                                let mut p = SedPoint::bare(SedStatus::Blended);
+                                p.ulim = source.value.or(source.ulim);
+                                return p;
+                            }
+                        }
+                        if coverage[slot.catalog].contains(o.ra_deg, o.dec_deg) {
+                            let mut p = SedPoint::bare(SedStatus::NotDetected);
+                            p.ulim = *depth;
+                            p
+                        } else {
+                            SedPoint::bare(SedStatus::NotCovered)
+                        }
+                    })
+                    .collect();
+                Sed { points }
+            })
+            .collect())
+    }
 }

@@ -17,4 +17,4 @@
 
 pub mod assemble;
 
-pub use assemble::{BandSlot, Sed, SedPoint, SedStatus, assemble};
+pub use assemble::{BandSlot, Sed, SedAssembler, SedPoint, SedStatus, assemble};
