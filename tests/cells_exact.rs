@@ -47,8 +47,8 @@ fn fingerprint(tables: &[SourceTable], r: &MatchResult) -> Vec<String> {
             l.sep_arcsec,
             l.probability,
             l.chosen,
-            l.object_a,
-            l.object_b
+            l.object_a.object_id(tables),
+            l.object_b.object_id(tables)
         )
     }));
     lines.push(format!(

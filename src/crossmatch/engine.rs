@@ -117,10 +117,28 @@ pub struct Link {
     pub probability: f64,
     /// True when both sources ended in the same object.
     pub chosen: bool,
-    /// Object of the first source.
-    pub object_a: String,
-    /// Object of the second source.
-    pub object_b: String,
+    /// Anchor of the object of the first source (its identifier is
+    /// `<catalog>:<source id>` of this source, built when the link is written).
+    pub object_a: SourceRef,
+    /// Anchor of the object of the second source.
+    pub object_b: SourceRef,
+}
+
+/// A source of one catalog: its catalog index and row in its [`SourceTable`].
+#[derive(Debug, Clone, Copy, PartialEq, Eq, PartialOrd, Ord, Hash, Serialize)]
+pub struct SourceRef {
+    /// Catalog index (input order).
+    pub catalog: u32,
+    /// Row of the source in its table.
+    pub row: u32,
+}
+
+impl SourceRef {
+    /// The identifier `<catalog>:<source id>` of the object anchored on this source.
+    pub fn object_id(&self, tables: &[SourceTable]) -> String {
+        let t = &tables[self.catalog as usize];
+        format!("{}:{}", t.name, t.source_id[self.row as usize])
+    }
 }
 
 /// Wall-clock seconds of each phase.
@@ -387,6 +405,13 @@ fn assemble(tables: &[SourceTable], ctx: &Context, cells: CellOutput) -> MatchRe
             }
         })
         .collect();
+    let anchor_of = |object: u32| -> SourceRef {
+        let r = resolved[object as usize].members[0] as usize;
+        SourceRef {
+            catalog: u32::from(sources.catalog[r]),
+            row: sources.row[r],
+        }
+    };
     let links = candidates
         .par_iter()
         .map(|c| {
@@ -403,8 +428,8 @@ fn assemble(tables: &[SourceTable], ctx: &Context, cells: CellOutput) -> MatchRe
                 ln_bayes: c.ln_bayes,
                 probability: posterior(c.ln_bayes, ctx.ln_prior(&[ca, cb])),
                 chosen: oa == ob,
-                object_a: objects[oa as usize].object_id.clone(),
-                object_b: objects[ob as usize].object_id.clone(),
+                object_a: anchor_of(oa),
+                object_b: anchor_of(ob),
             }
         })
         .collect();

@@ -46,5 +46,7 @@ pub mod systematics;
 pub mod tolerance;
 
 pub use config::{CatalogSettings, MatchConfig, Tolerance};
-pub use engine::{Link, MatchResult, MatchedObject, Member, run_match, run_match_with_area};
+pub use engine::{
+    Link, MatchResult, MatchedObject, Member, SourceRef, run_match, run_match_with_area,
+};
 pub use input::SourceTable;

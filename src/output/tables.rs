@@ -12,10 +12,11 @@ use arrow::array::{
 use arrow::datatypes::{DataType, Field, Schema, SchemaRef};
 
 use crate::catalog::normalize::{status_column, status_type};
-use crate::crossmatch::{Link, MatchedObject, SourceTable};
+use crate::crossmatch::{Link, MatchedObject, SourceRef, SourceTable};
 use crate::error::{Error, Result};
 use crate::photometry::flux::nu_fnu_cgs;
 use crate::sed::{BandSlot, Sed, SedStatus};
+use std::fmt::Write as _;
 
 fn field(name: &str, data_type: DataType, nullable: bool, unit: Option<&str>) -> Field {
     let f = Field::new(name, data_type, nullable);
@@ -328,6 +329,21 @@ pub fn photometry_batch(
         .map_err(|e| Error::Usage(format!("photometry table: {e}")))
 }
 
+/// Object identifiers `<catalog>:<source id>` of anchors, written straight into
+/// one Arrow string array.
+fn object_ids(anchors: impl Iterator<Item = SourceRef>, tables: &[SourceTable]) -> ArrayRef {
+    let mut b = arrow::array::StringBuilder::new();
+    for a in anchors {
+        let t = &tables[a.catalog as usize];
+        b.write_str(&t.name).expect("writing to a string builder");
+        b.write_char(':').expect("writing to a string builder");
+        b.write_str(&t.source_id[a.row as usize])
+            .expect("writing to a string builder");
+        b.append_value("");
+    }
+    Arc::new(b.finish())
+}
+
 /// The links table: every candidate pair, chosen or not.
 ///
 /// # Errors
@@ -347,12 +363,8 @@ pub fn links_batch(links: &[Link], tables: &[SourceTable]) -> Result<RecordBatch
         field("chosen", DataType::Boolean, false, None),
     ];
     let columns: Vec<ArrayRef> = vec![
-        Arc::new(StringArray::from_iter_values(
-            links.iter().map(|l| l.object_a.as_str()),
-        )),
-        Arc::new(StringArray::from_iter_values(
-            links.iter().map(|l| l.object_b.as_str()),
-        )),
+        object_ids(links.iter().map(|l| l.object_a), tables),
+        object_ids(links.iter().map(|l| l.object_b), tables),
         Arc::new(StringArray::from_iter_values(
             links.iter().map(|l| tables[l.catalog_a].name.as_str()),
         )),
