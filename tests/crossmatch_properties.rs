@@ -110,12 +110,12 @@ fn fingerprint(tables: &[SourceTable], r: &MatchResult) -> Vec<String> {
                 .collect();
             format!(
                 "{} {:.12} {:.12} {} {:.12} {:?} [{}]",
-                o.object_id,
+                o.object_id(tables),
                 o.ra_deg,
                 o.dec_deg,
                 o.flags,
                 o.probability,
-                o.related,
+                o.related_ids(tables),
                 members.join(" ")
             )
         })

@@ -148,9 +148,9 @@ fn summarize(tables: &[SourceTable], result: &MatchResult) -> Vec<Summary> {
                 })
                 .collect();
             members.sort();
-            let mut related = o.related.clone();
+            let mut related = o.related_ids(tables);
             related.sort();
-            (o.object_id.clone(), members, o.status(), related)
+            (o.object_id(tables), members, o.status(), related)
         })
         .collect()
 }
@@ -221,7 +221,7 @@ fn the_scene_resolves_into_the_expected_objects_after_offset_correction() {
     let v = result
         .objects
         .iter()
-        .find(|o| o.object_id == "opt:V")
+        .find(|o| o.object_id(&tables) == "opt:V")
         .unwrap();
     let (ra_v, dec_v) = at(120.0, 0.0);
     assert!((v.dec_deg - dec_v).abs() * 3600.0 < 0.05);

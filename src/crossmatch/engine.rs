@@ -58,8 +58,9 @@ pub struct Member {
 /// One merged object.
 #[derive(Debug, Clone, PartialEq, Serialize)]
 pub struct MatchedObject {
-    /// Stable identifier: `<catalog>:<source_id>` of the anchor member.
-    pub object_id: String,
+    /// The anchor member: its `<catalog>:<source_id>` is the object's stable
+    /// identifier ([`MatchedObject::object_id`]).
+    pub anchor: SourceRef,
     /// Position at the reference epoch: inverse-variance weighted mean of the members.
     pub ra_deg: f64,
     /// Declination at the reference epoch, degrees.
@@ -76,8 +77,8 @@ pub struct MatchedObject {
     pub flags: u32,
     /// Posterior probability of the association (1 for one member).
     pub probability: f64,
-    /// Related objects (blend relations), by identifier.
-    pub related: Vec<String>,
+    /// Related objects (blend relations), by anchor.
+    pub related: Vec<SourceRef>,
     /// NESTED HEALPix index at order 29 of the anchor's position: the same
     /// whatever the partition; objects of the cell of order k are those with
     /// `healpix29 >> 2(29 − k)` equal to its index.
@@ -85,6 +86,16 @@ pub struct MatchedObject {
 }
 
 impl MatchedObject {
+    /// The object's identifier, `<catalog>:<source_id>` of its anchor.
+    pub fn object_id(&self, tables: &[SourceTable]) -> String {
+        self.anchor.object_id(tables)
+    }
+
+    /// The identifiers of the related objects.
+    pub fn related_ids(&self, tables: &[SourceTable]) -> Vec<String> {
+        self.related.iter().map(|r| r.object_id(tables)).collect()
+    }
+
     /// The readable status of the flags.
     pub fn status(&self) -> String {
         flags::status(self.flags)
@@ -257,7 +268,7 @@ pub fn run_match_with_area(
     };
 
     let t = Instant::now();
-    let mut result = assemble(tables, &ctx, cells);
+    let mut result = assemble(&ctx, cells);
     result.stats.cells = cell_stats;
     seconds.assemble = t.elapsed().as_secs_f64();
     result.stats.density_per_deg2 = densities.iter().map(|d| d / DEG2_PER_SR).collect();
@@ -266,7 +277,7 @@ pub fn run_match_with_area(
     Ok(result)
 }
 
-fn assemble(tables: &[SourceTable], ctx: &Context, cells: CellOutput) -> MatchResult {
+fn assemble(ctx: &Context, cells: CellOutput) -> MatchResult {
     let (sources, config) = (ctx.sources, ctx.config);
     let CellOutput {
         objects: mut resolved,
@@ -284,13 +295,12 @@ fn assemble(tables: &[SourceTable], ctx: &Context, cells: CellOutput) -> MatchRe
         approximate_groups,
         ..MatchStats::default()
     };
-    let id_of_rank = |rank: u32| -> String {
+    let anchor_of_rank = |rank: u32| -> SourceRef {
         let r = rank as usize;
-        let c = sources.catalog[r] as usize;
-        format!(
-            "{}:{}",
-            tables[c].name, tables[c].source_id[sources.row[r] as usize]
-        )
+        SourceRef {
+            catalog: u32::from(sources.catalog[r]),
+            row: sources.row[r],
+        }
     };
     // Objects come in anchor order.
     let mut object_of_rank = vec![0u32; sources.len()];
@@ -323,7 +333,7 @@ fn assemble(tables: &[SourceTable], ctx: &Context, cells: CellOutput) -> MatchRe
                 // One source: its own position (at the reference epoch when it moves),
                 // error and motion.
                 return MatchedObject {
-                    object_id: id_of_rank(o.members[0]),
+                    anchor: anchor_of_rank(o.members[0]),
                     ra_deg: sources.ra_deg[anchor],
                     dec_deg: sources.dec_deg[anchor],
                     pos_err_arcsec: sources.sigma_rad[anchor] / RAD_PER_ARCSEC,
@@ -337,7 +347,7 @@ fn assemble(tables: &[SourceTable], ctx: &Context, cells: CellOutput) -> MatchRe
                     }],
                     flags: o.flags,
                     probability: o.probability,
-                    related: o.related.iter().map(|&r| id_of_rank(r)).collect(),
+                    related: o.related.iter().map(|&r| anchor_of_rank(r)).collect(),
                     healpix29,
                 };
             }
@@ -391,7 +401,7 @@ fn assemble(tables: &[SourceTable], ctx: &Context, cells: CellOutput) -> MatchRe
                 })
                 .collect();
             MatchedObject {
-                object_id: id_of_rank(o.members[0]),
+                anchor: anchor_of_rank(o.members[0]),
                 ra_deg,
                 dec_deg,
                 pos_err_arcsec: (1.0 / weight).sqrt() / RAD_PER_ARCSEC,
@@ -400,18 +410,12 @@ fn assemble(tables: &[SourceTable], ctx: &Context, cells: CellOutput) -> MatchRe
                 members,
                 flags: o.flags,
                 probability: o.probability,
-                related: o.related.iter().map(|&r| id_of_rank(r)).collect(),
+                related: o.related.iter().map(|&r| anchor_of_rank(r)).collect(),
                 healpix29,
             }
         })
         .collect();
-    let anchor_of = |object: u32| -> SourceRef {
-        let r = resolved[object as usize].members[0] as usize;
-        SourceRef {
-            catalog: u32::from(sources.catalog[r]),
-            row: sources.row[r],
-        }
-    };
+    let anchor_of = |object: u32| anchor_of_rank(resolved[object as usize].members[0]);
     let links = candidates
         .par_iter()
         .map(|c| {

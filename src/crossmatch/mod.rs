@@ -22,9 +22,10 @@
 //! optical.push_simple("a", 150.0, 2.2, 2016.0, 0.05);
 //! let mut infrared = SourceTable { name: "nir".into(), ..Default::default() };
 //! infrared.push_simple("x", 150.0 + 0.1 / 3600.0, 2.2, 2016.0, 0.1);
-//! let result = run_match(&[optical, infrared], &MatchConfig::new(2, 2016.0)).unwrap();
+//! let tables = [optical, infrared];
+//! let result = run_match(&tables, &MatchConfig::new(2, 2016.0)).unwrap();
 //! assert_eq!(result.objects.len(), 1);
-//! assert_eq!(result.objects[0].object_id, "opt:a");
+//! assert_eq!(result.objects[0].object_id(&tables), "opt:a");
 //! assert_eq!(result.objects[0].members.len(), 2);
 //! ```
 

@@ -99,9 +99,7 @@ pub fn objects_batch(
     ];
     let opt = |v: f64| (!v.is_nan()).then_some(v);
     let mut columns: Vec<ArrayRef> = vec![
-        Arc::new(StringArray::from_iter_values(
-            objects.iter().map(|o| o.object_id.as_str()),
-        )),
+        object_ids(objects.iter().map(|o| o.anchor), tables),
         Arc::new(Float64Array::from_iter_values(
             objects.iter().map(|o| o.ra_deg),
         )),
@@ -134,12 +132,7 @@ pub fn objects_batch(
         Arc::new(Float64Array::from_iter_values(
             objects.iter().map(|o| o.probability),
         )),
-        Arc::new(StringArray::from(
-            objects
-                .iter()
-                .map(|o| (!o.related.is_empty()).then(|| o.related.join(",")))
-                .collect::<Vec<_>>(),
-        )),
+        related_ids(objects, tables),
         Arc::new(UInt64Array::from_iter_values(
             objects.iter().map(|o| o.healpix29),
         )),
@@ -254,7 +247,6 @@ pub fn photometry_batch(
     tables: &[SourceTable],
 ) -> Result<RecordBatch> {
     let n = objects.len() * slots.len();
-    let mut object_id = Vec::with_capacity(n);
     let mut catalog = Vec::with_capacity(n);
     let mut source_id: Vec<Option<&str>> = Vec::with_capacity(n);
     let mut band = Vec::with_capacity(n);
@@ -265,7 +257,6 @@ pub fn photometry_batch(
     let mut status = Vec::with_capacity(n);
     for (o, sed) in objects.iter().zip(seds) {
         for (slot, p) in slots.iter().zip(&sed.points) {
-            object_id.push(o.object_id.as_str());
             catalog.push(slot.catalog_name.as_str());
             source_id.push(
                 o.member(slot.catalog)
@@ -315,7 +306,12 @@ pub fn photometry_batch(
     }
     fields.push(field("status", status_type(), false, None));
     let mut columns: Vec<ArrayRef> = vec![
-        Arc::new(StringArray::from(object_id)),
+        object_ids(
+            objects
+                .iter()
+                .flat_map(|o| std::iter::repeat_n(o.anchor, slots.len())),
+            tables,
+        ),
         Arc::new(StringArray::from(catalog)),
         Arc::new(StringArray::from(source_id)),
         Arc::new(StringArray::from(band)),
@@ -339,6 +335,30 @@ fn object_ids(anchors: impl Iterator<Item = SourceRef>, tables: &[SourceTable]) 
         b.write_char(':').expect("writing to a string builder");
         b.write_str(&t.source_id[a.row as usize])
             .expect("writing to a string builder");
+        b.append_value("");
+    }
+    Arc::new(b.finish())
+}
+
+/// The `related` column: the related objects' identifiers joined by commas,
+/// null for an object without relations.
+fn related_ids(objects: &[MatchedObject], tables: &[SourceTable]) -> ArrayRef {
+    let mut b = arrow::array::StringBuilder::new();
+    for o in objects {
+        if o.related.is_empty() {
+            b.append_null();
+            continue;
+        }
+        for (k, r) in o.related.iter().enumerate() {
+            if k > 0 {
+                b.write_char(',').expect("writing to a string builder");
+            }
+            let t = &tables[r.catalog as usize];
+            b.write_str(&t.name).expect("writing to a string builder");
+            b.write_char(':').expect("writing to a string builder");
+            b.write_str(&t.source_id[r.row as usize])
+                .expect("writing to a string builder");
+        }
         b.append_value("");
     }
     Arc::new(b.finish())

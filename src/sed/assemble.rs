@@ -8,7 +8,7 @@ use arrow::datatypes::Float64Type;
 use serde::Serialize;
 
 use crate::catalog::schema::BandColumns;
-use crate::crossmatch::{MatchedObject, flags};
+use crate::crossmatch::{MatchedObject, SourceRef, flags};
 use crate::error::{Error, Result};
 use crate::sky::coverage::Coverage;
 
@@ -217,7 +217,7 @@ pub struct SedAssembler<'a> {
     objects: &'a [MatchedObject],
     coverage: &'a [Coverage],
     data: Vec<BandColumnsData<'a>>,
-    index: HashMap<&'a str, usize>,
+    index: HashMap<SourceRef, usize>,
     depths: Vec<Option<f64>>,
 }
 
@@ -236,10 +236,10 @@ impl<'a> SedAssembler<'a> {
             .iter()
             .map(|s| band_data(&tables[s.catalog], s))
             .collect::<Result<_>>()?;
-        let index: HashMap<&str, usize> = objects
+        let index: HashMap<SourceRef, usize> = objects
             .iter()
             .enumerate()
-            .map(|(i, o)| (o.object_id.as_str(), i))
+            .map(|(i, o)| (o.anchor, i))
             .collect();
         Ok(SedAssembler {
             slots,
@@ -277,7 +277,7 @@ impl<'a> SedAssembler<'a> {
                             let blend = o
                                 .related
                                 .iter()
-                                .filter_map(|id| index.get(id.as_str()).map(|&i| &objects[i]))
+                                .filter_map(|a| index.get(a).map(|&i| &objects[i]))
                                 .find_map(|b| b.member(slot.catalog));
                             if let Some(m) = blend {
                                 let source = d.point(m.row);
