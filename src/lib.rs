@@ -19,6 +19,7 @@ pub mod cli;
 pub mod crossmatch;
 pub mod demo;
 pub mod error;
+pub mod memory;
 pub mod output;
 pub mod photometry;
 pub mod plan;

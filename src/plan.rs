@@ -61,6 +61,28 @@ pub enum ExportFormat {
     Votable,
 }
 
+/// Which of the three Parquet tables a build writes (all by default); a
+/// pairs-only job writes only `links` and skips assembling SEDs.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub struct OutputTables {
+    /// `objects.parquet`.
+    pub objects: bool,
+    /// `photometry.parquet`.
+    pub photometry: bool,
+    /// `links.parquet`.
+    pub links: bool,
+}
+
+impl Default for OutputTables {
+    fn default() -> Self {
+        OutputTables {
+            objects: true,
+            photometry: true,
+            links: true,
+        }
+    }
+}
+
 /// A validated plan.
 #[derive(Debug, Clone)]
 pub struct Plan {
@@ -80,8 +102,10 @@ pub struct Plan {
     pub false_matches: bool,
     /// Output folder.
     pub output: PathBuf,
-    /// Exports besides Parquet.
+    /// Exports besides Parquet (of the objects and photometry tables that are written).
     pub exports: Vec<ExportFormat>,
+    /// Which Parquet tables to write.
+    pub tables: OutputTables,
     /// Skip unreadable rows (counted) instead of stopping.
     pub skip_bad_rows: bool,
     /// The plan file.
@@ -157,6 +181,7 @@ struct RawOutput {
     folder: String,
     #[serde(default)]
     exports: Vec<Spanned<String>>,
+    tables: Option<Vec<Spanned<String>>>,
     skip_bad_rows: Option<bool>,
 }
 
@@ -369,6 +394,42 @@ impl Plan {
                 }
             });
         }
+        let tables = match &raw.output.tables {
+            None => OutputTables::default(),
+            Some(list) => {
+                let mut t = OutputTables {
+                    objects: false,
+                    photometry: false,
+                    links: false,
+                };
+                for name in list {
+                    match name.get_ref().as_str() {
+                        "objects" => t.objects = true,
+                        "photometry" => t.photometry = true,
+                        "links" => t.links = true,
+                        other => {
+                            return Err(err(
+                                name.span(),
+                                format!(
+                                    "table \"{other}\" is unknown; expected objects, photometry or links"
+                                ),
+                            ));
+                        }
+                    }
+                }
+                if !(t.objects || t.photometry || t.links) {
+                    return Err(err(
+                        raw.output
+                            .tables
+                            .as_ref()
+                            .and_then(|l| l.first())
+                            .map_or(0..0, |n| n.span()),
+                        "tables must name at least one of objects, photometry, links".into(),
+                    ));
+                }
+                t
+            }
+        };
         Ok(Plan {
             field: raw.field.name,
             catalogs,
@@ -379,6 +440,7 @@ impl Plan {
             false_matches: m.false_matches.unwrap_or(true),
             output: resolve(&raw.output.folder),
             exports,
+            tables,
             skip_bad_rows: raw.output.skip_bad_rows.unwrap_or(false),
             path: path.to_path_buf(),
             text,

@@ -199,56 +199,83 @@ pub fn build_with(plan: &Plan, out_dir: &Path, run: RunOptions) -> Result<BuildO
     let epoch = plan.matching.reference_epoch_yr;
     // The tables are assembled and written a chunk of objects at a time, so only
     // one chunk of output columns is in memory (plus the exports' copy, if any).
-    let schema_of = |b: Result<RecordBatch>| b.map(|b| b.schema());
-    let mut objects_out = ParquetOutput::create(
-        &staging.path("objects.parquet"),
-        schema_of(objects_batch(&[], &[], &slots, &tables, epoch))?,
-        metadata.clone(),
-    )?;
-    let mut photometry_out = ParquetOutput::create(
-        &staging.path("photometry.parquet"),
-        schema_of(photometry_batch(&[], &[], &slots, &tables))?,
-        metadata.clone(),
-    )?;
-    let mut links_out = ParquetOutput::create(
-        &staging.path("links.parquet"),
-        schema_of(links_batch(&[], &tables))?,
-        metadata.clone(),
-    )?;
+    let which = plan.tables;
+    let create = |staging: &mut Staging, name: &str, batch: Result<RecordBatch>| {
+        ParquetOutput::create(&staging.path(name), batch?.schema(), metadata.clone())
+    };
+    let mut objects_out = match which.objects {
+        true => Some(create(
+            &mut staging,
+            "objects.parquet",
+            objects_batch(&[], &[], &slots, &tables, epoch),
+        )?),
+        false => None,
+    };
+    let mut photometry_out = match which.photometry {
+        true => Some(create(
+            &mut staging,
+            "photometry.parquet",
+            photometry_batch(&[], &[], &slots, &tables),
+        )?),
+        false => None,
+    };
+    let mut links_out = match which.links {
+        true => Some(create(
+            &mut staging,
+            "links.parquet",
+            links_batch(&[], &tables),
+        )?),
+        false => None,
+    };
+    let exporting = !plan.exports.is_empty();
     let mut status_counts = vec![[0u64; SedStatus::ALL.len()]; slots.len()];
     let (mut objects, mut photometry) = (Vec::new(), Vec::new());
     let n_objects = result.objects.len();
     let chunk_objects = run.write_chunk.unwrap_or(WRITE_CHUNK_OBJECTS);
-    for start in (0..n_objects).step_by(chunk_objects) {
-        let range = start..(start + chunk_objects).min(n_objects);
-        let seds = assembler.seds(range.clone())?;
-        for sed in &seds {
-            for (k, p) in sed.points.iter().enumerate() {
-                status_counts[k][p.status as usize] += 1;
+    if which.objects || which.photometry {
+        for start in (0..n_objects).step_by(chunk_objects) {
+            let range = start..(start + chunk_objects).min(n_objects);
+            let seds = assembler.seds(range.clone())?;
+            for sed in &seds {
+                for (k, p) in sed.points.iter().enumerate() {
+                    status_counts[k][p.status as usize] += 1;
+                }
+            }
+            let chunk = &result.objects[range];
+            if let Some(w) = objects_out.as_mut() {
+                let ob = objects_batch(chunk, &seds, &slots, &tables, epoch)?;
+                w.write(&ob)?;
+                if exporting {
+                    objects.push(for_export(&ob)?);
+                }
+            }
+            if let Some(w) = photometry_out.as_mut() {
+                let pb = photometry_batch(chunk, &seds, &slots, &tables)?;
+                w.write(&pb)?;
+                if exporting {
+                    photometry.push(for_export(&pb)?);
+                }
             }
         }
-        let chunk = &result.objects[range];
-        let ob = objects_batch(chunk, &seds, &slots, &tables, epoch)?;
-        let pb = photometry_batch(chunk, &seds, &slots, &tables)?;
-        objects_out.write(&ob)?;
-        photometry_out.write(&pb)?;
-        if !plan.exports.is_empty() {
-            objects.push(for_export(&ob)?);
-            photometry.push(for_export(&pb)?);
+    }
+    if n_objects == 0 && exporting {
+        if which.objects {
+            objects.push(for_export(&objects_batch(
+                &[],
+                &[],
+                &slots,
+                &tables,
+                epoch,
+            )?)?);
+        }
+        if which.photometry {
+            photometry.push(for_export(&photometry_batch(&[], &[], &slots, &tables)?)?);
         }
     }
-    if n_objects == 0 && !plan.exports.is_empty() {
-        objects.push(for_export(&objects_batch(
-            &[],
-            &[],
-            &slots,
-            &tables,
-            epoch,
-        )?)?);
-        photometry.push(for_export(&photometry_batch(&[], &[], &slots, &tables)?)?);
-    }
-    for chunk in result.links.chunks(chunk_objects) {
-        links_out.write(&links_batch(chunk, &tables)?)?;
+    if let Some(w) = links_out.as_mut() {
+        for chunk in result.links.chunks(chunk_objects) {
+            w.write(&links_batch(chunk, &tables)?)?;
+        }
     }
     let mut outputs: Vec<OutputRecord> = Vec::new();
     for (file, w) in [
@@ -256,6 +283,7 @@ pub fn build_with(plan: &Plan, out_dir: &Path, run: RunOptions) -> Result<BuildO
         ("photometry.parquet", photometry_out),
         ("links.parquet", links_out),
     ] {
+        let Some(w) = w else { continue };
         let rows = w.finish()?;
         outputs.push(OutputRecord {
             file: file.to_string(),
@@ -264,10 +292,10 @@ pub fn build_with(plan: &Plan, out_dir: &Path, run: RunOptions) -> Result<BuildO
     }
     for format in &plan.exports {
         for (name, batches) in [("objects", &objects), ("photometry", &photometry)] {
-            let schema = batches
-                .first()
-                .map(|b| b.schema())
-                .ok_or_else(|| Error::Usage(format!("no {name} batch to export")))?;
+            // A table that is not written is not exported either.
+            let Some(schema) = batches.first().map(|b| b.schema()) else {
+                continue;
+            };
             let batches = &batches[..];
             let (file, rows) = match format {
                 ExportFormat::Csv => {
@@ -532,5 +560,11 @@ fn summary(
         s.push_str(&format!("         {:<20} {:>8} rows\n", o.file, o.rows));
     }
     s.push_str("         run.json\n");
+    if let Some(bytes) = crate::memory::peak_resident_bytes() {
+        s.push_str(&format!(
+            "\nmemory   peak {:.0} MB resident\n",
+            bytes as f64 / 1e6
+        ));
+    }
     s
 }
