@@ -30,7 +30,11 @@
 //! - 6.1 null values: `VALUES/@null` marks nulls in integer (and float and
 //!   string) columns in every serialization; NaN floats are null.
 //!
-//! The FITS serialization and remote streams (`STREAM/@href`) are refused.
+//! The FITS and PARQUET serializations, remote streams (`STREAM/@href`) and
+//! tables that borrow another table's FIELDs (`TABLE/@ref`) are refused by name,
+//! and so are gzip-compressed and UTF-16 documents. Array sizes are capped at
+//! [`limits::MAX_CELL_ELEMENTS`] elements per cell, and batches hold fewer rows
+//! when rows hold many values ([`limits::MAX_BATCH_VALUES`]).
 //!
 //! ```no_run
 //! use fluxloom::catalog::votable::{VotableOptions, read_votable};
@@ -43,7 +47,7 @@
 //! ```
 
 use std::fs::File;
-use std::io::BufReader;
+use std::io::{BufRead, BufReader};
 use std::path::{Path, PathBuf};
 use std::sync::Arc;
 
@@ -58,7 +62,7 @@ use base64::engine::general_purpose::STANDARD as BASE64;
 use quick_xml::Reader;
 use quick_xml::events::{BytesStart, Event};
 
-use super::CatalogBatches;
+use super::{CatalogBatches, gzip, limits};
 use crate::error::{Error, Result};
 
 /// Which TABLE of a VOTable document to read and how many rows go in one record batch.
@@ -80,9 +84,12 @@ pub struct VotableOptions {
 /// [`Error::BadValue`] (while iterating) for a TABLEDATA cell that does not
 /// parse as its FIELD's datatype.
 pub fn read_votable(path: &Path, options: &VotableOptions) -> Result<CatalogBatches> {
+    super::check_regular_file(path)?;
     let file = File::open(path).map_err(|e| Error::io(path, e))?;
+    let mut input = BufReader::new(file);
+    check_encoding(path, input.fill_buf().map_err(|e| Error::io(path, e))?)?;
     let mut xml = Xml {
-        reader: Reader::from_reader(BufReader::new(file)),
+        reader: Reader::from_reader(input),
         buf: Vec::new(),
         path: path.to_path_buf(),
     };
@@ -97,21 +104,43 @@ pub fn read_votable(path: &Path, options: &VotableOptions) -> Result<CatalogBatc
             .filter_map(Column::arrow_field)
             .collect::<Vec<_>>(),
     ));
+    let values_per_row: usize = columns.iter().map(Column::values_per_row).sum();
+    let batch_rows = options
+        .batch_rows
+        .min(limits::MAX_BATCH_VALUES / values_per_row.max(1))
+        .max(1);
     let batches = TableBatches {
         xml,
         schema: schema.clone(),
         columns,
         table: options.table_index,
         data,
-        batch_rows: options.batch_rows.max(1),
+        batch_rows,
         rows_read: 0,
         done: false,
         cell: String::new(),
     };
     Ok(CatalogBatches {
+        path: path.to_path_buf(),
         schema,
         batches: Box::new(batches),
     })
+}
+
+/// Refuses a document that is gzip-compressed or UTF-16 encoded, from its first bytes.
+fn check_encoding(path: &Path, head: &[u8]) -> Result<()> {
+    let what = if gzip::is_gzip(head) {
+        "is gzip-compressed, expected an uncompressed VOTable (decompress it first)"
+    } else if head.starts_with(&[0xFF, 0xFE])
+        || head.starts_with(&[0xFE, 0xFF])
+        || head.starts_with(&[b'<', 0])
+        || head.starts_with(&[0, b'<'])
+    {
+        "is UTF-16 encoded, expected a UTF-8 VOTable (re-encode it as UTF-8)"
+    } else {
+        return Ok(());
+    };
+    Err(Error::format(path, what))
 }
 
 /// The XML reader over the file, with its event buffer and path.
@@ -197,6 +226,7 @@ fn find_table(xml: &mut Xml, index: usize) -> Result<(Vec<FieldSpec>, Serializat
     let mut root_seen = false;
     let mut in_table = false;
     let mut in_field = false;
+    let mut in_data = false;
     let mut fields: Vec<FieldSpec> = Vec::new();
     loop {
         let event = read_event(&mut xml.reader, &mut xml.buf, &path)?;
@@ -207,6 +237,7 @@ fn find_table(xml: &mut Xml, index: usize) -> Result<(Vec<FieldSpec>, Serializat
                 match e.local_name().as_ref() {
                     b"TABLE" if in_table => return Ok((fields, Serialization::Empty)),
                     b"FIELD" => in_field = false,
+                    b"DATA" => in_data = false,
                     _ => {}
                 }
                 continue;
@@ -247,6 +278,17 @@ fn find_table(xml: &mut Xml, index: usize) -> Result<(Vec<FieldSpec>, Serializat
         match name.as_slice() {
             b"TABLE" => {
                 if tables_seen == index {
+                    let reference = attributes(&start, &xml.reader, &path)?
+                        .into_iter()
+                        .find(|(k, _)| k == "ref");
+                    if let Some((_, target)) = reference {
+                        return Err(Error::format(
+                            &path,
+                            format!(
+                                "TABLE {index} refers to another table (ref=\"{target}\") for its FIELDs, which is not supported; expected a TABLE with its own FIELDs"
+                            ),
+                        ));
+                    }
                     if empty {
                         return Ok((fields, Serialization::Empty));
                     }
@@ -303,11 +345,14 @@ fn find_table(xml: &mut Xml, index: usize) -> Result<(Vec<FieldSpec>, Serializat
                 let data = open_stream(xml, index, mask)?;
                 return Ok((fields, data));
             }
-            b"FITS" if in_table => {
+            b"DATA" if in_table => in_data = !empty,
+            b"INFO" => {}
+            other if in_data => {
                 return Err(Error::format(
                     &path,
                     format!(
-                        "DATA of TABLE {index} is in the FITS serialization, expected TABLEDATA, BINARY or BINARY2"
+                        "DATA of TABLE {index} is in the {} serialization, expected TABLEDATA, BINARY or BINARY2",
+                        String::from_utf8_lossy(other)
                     ),
                 ));
             }
@@ -565,6 +610,15 @@ impl Column {
                 spec.arraysize.clone().unwrap_or_default()
             ))
         })?;
+        if let Size::Fixed(n) = size
+            && n > limits::MAX_CELL_ELEMENTS
+        {
+            return Err(field_error(format!(
+                "has arraysize \"{}\" ({n} elements), expected at most {} elements per cell",
+                spec.arraysize.clone().unwrap_or_default(),
+                limits::MAX_CELL_ELEMENTS
+            )));
+        }
         let prim = match spec.datatype.as_str() {
             "boolean" => Some(Prim::Bool),
             "unsignedByte" => Some(Prim::U8),
@@ -666,6 +720,14 @@ impl Column {
             .filter_map(|(k, v)| v.clone().map(|v| (k, v)))
             .collect::<Metadata>();
         Some(Field::new(&self.name, data_type, true).with_metadata(metadata))
+    }
+
+    /// Values one row adds to the batch (1 for strings and skipped fields).
+    fn values_per_row(&self) -> usize {
+        match self.kind {
+            Kind::Prim { count, .. } => count,
+            _ => 1,
+        }
     }
 
     /// Appends a null row.
