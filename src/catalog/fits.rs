@@ -1071,7 +1071,7 @@ fn decode_text(cells: &Cells<'_>, path: &Path, first_row: u64) -> Result<ArrayRe
             row: first_row + row as u64 + 1,
             column: c.name.clone(),
             expected: "UTF-8 text".to_string(),
-            found: String::from_utf8_lossy(&bytes[..end]).into_owned(),
+            found: limits::one_line(&String::from_utf8_lossy(&bytes[..end])),
         })?;
         out.push(text.trim_end_matches(' '));
     }

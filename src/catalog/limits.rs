@@ -61,9 +61,28 @@ pub fn zeroed(path: &Path, n: usize) -> Result<Vec<u8>> {
     Ok(buf)
 }
 
+/// `text` on one line: control characters (newlines included) written as escapes,
+/// so that a message quoting a file's bytes stays one line.
+pub fn one_line(text: &str) -> String {
+    text.chars()
+        .map(|c| {
+            if c.is_control() {
+                c.escape_default().to_string()
+            } else {
+                c.to_string()
+            }
+        })
+        .collect()
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn control_characters_are_escaped() {
+        assert_eq!(one_line("a\nb\tc\u{0}d é"), "a\\nb\\tc\\u{0}d é");
+    }
 
     #[test]
     fn batches_shrink_for_wide_rows() {

@@ -92,6 +92,7 @@ pub fn read_votable(path: &Path, options: &VotableOptions) -> Result<CatalogBatc
         reader: Reader::from_reader(input),
         buf: Vec::new(),
         path: path.to_path_buf(),
+        depth: 0,
     };
     let (specs, data) = find_table(&mut xml, options.table_index)?;
     let mut columns = Vec::with_capacity(specs.len());
@@ -118,6 +119,7 @@ pub fn read_votable(path: &Path, options: &VotableOptions) -> Result<CatalogBatc
         batch_rows,
         rows_read: 0,
         done: false,
+        checked_end: false,
         cell: String::new(),
     };
     Ok(CatalogBatches {
@@ -148,21 +150,56 @@ struct Xml {
     reader: Reader<BufReader<File>>,
     buf: Vec<u8>,
     path: PathBuf,
+    /// Elements open at the current position.
+    depth: usize,
 }
 
 /// Reads the next XML event, turning a parse error into [`Error::Format`] with its byte position.
 fn read_event<'b>(
     reader: &mut Reader<BufReader<File>>,
     buf: &'b mut Vec<u8>,
+    depth: &mut usize,
     path: &Path,
 ) -> Result<Event<'b>> {
     buf.clear();
-    reader.read_event_into(buf).map_err(|e| {
+    let event = reader.read_event_into(buf).map_err(|e| {
         Error::format(
             path,
-            format!("malformed XML at byte {}: {e}", reader.error_position()),
+            format!(
+                "malformed XML at byte {}: {}",
+                reader.error_position(),
+                limits::one_line(&e.to_string())
+            ),
         )
-    })
+    })?;
+    match event {
+        Event::Start(_) => *depth += 1,
+        Event::End(_) => *depth = depth.saturating_sub(1),
+        _ => {}
+    }
+    Ok(event)
+}
+
+/// Reads the rest of the document after the rows, so that a truncated or
+/// malformed end is an error rather than a silent stop.
+fn read_to_end(xml: &mut Xml) -> Result<()> {
+    loop {
+        let event = read_event(&mut xml.reader, &mut xml.buf, &mut xml.depth, &xml.path)?;
+        if let Event::Eof = event {
+            break;
+        }
+    }
+    if xml.depth > 0 {
+        return Err(Error::format(
+            &xml.path,
+            format!(
+                "truncated VOTable: the document ends at byte {} with {} element(s) still open",
+                xml.reader.buffer_position(),
+                xml.depth
+            ),
+        ));
+    }
+    Ok(())
 }
 
 /// The error for text that cannot be decoded as UTF-8, ending at byte `pos`.
@@ -205,14 +242,28 @@ fn attributes(
     let mut out = Vec::new();
     for attr in e.attributes() {
         let attr = attr.map_err(|err| {
-            Error::format(path, format!("malformed XML before byte {pos}: {err}"))
+            Error::format(
+                path,
+                format!(
+                    "malformed XML before byte {pos}: {}",
+                    limits::one_line(&err.to_string())
+                ),
+            )
         })?;
         let key = std::str::from_utf8(attr.key.local_name().as_ref())
             .map_err(|_| not_utf8(path, pos))?
             .to_string();
         let value = attr
             .decode_and_unescape_value(reader.decoder())
-            .map_err(|err| Error::format(path, format!("malformed XML before byte {pos}: {err}")))?
+            .map_err(|err| {
+                Error::format(
+                    path,
+                    format!(
+                        "malformed XML before byte {pos}: {}",
+                        limits::one_line(&err.to_string())
+                    ),
+                )
+            })?
             .into_owned();
         out.push((key, value));
     }
@@ -229,7 +280,7 @@ fn find_table(xml: &mut Xml, index: usize) -> Result<(Vec<FieldSpec>, Serializat
     let mut in_data = false;
     let mut fields: Vec<FieldSpec> = Vec::new();
     loop {
-        let event = read_event(&mut xml.reader, &mut xml.buf, &path)?;
+        let event = read_event(&mut xml.reader, &mut xml.buf, &mut xml.depth, &path)?;
         let (start, empty) = match event {
             Event::Start(e) => (e, false),
             Event::Empty(e) => (e, true),
@@ -365,7 +416,7 @@ fn find_table(xml: &mut Xml, index: usize) -> Result<(Vec<FieldSpec>, Serializat
 fn open_stream(xml: &mut Xml, table: usize, mask: bool) -> Result<Serialization> {
     let path = xml.path.clone();
     loop {
-        let event = read_event(&mut xml.reader, &mut xml.buf, &path)?;
+        let event = read_event(&mut xml.reader, &mut xml.buf, &mut xml.depth, &path)?;
         let (start, empty) = match event {
             Event::Start(e) => (e, false),
             Event::Empty(e) => (e, true),
@@ -423,7 +474,7 @@ impl Base64Stream {
     /// Makes `n` bytes available; `false` if the stream ends first.
     fn fill(&mut self, n: usize, xml: &mut Xml, table: usize) -> Result<bool> {
         while self.bytes.len() - self.pos < n && !self.ended {
-            let event = read_event(&mut xml.reader, &mut xml.buf, &xml.path)?;
+            let event = read_event(&mut xml.reader, &mut xml.buf, &mut xml.depth, &xml.path)?;
             match event {
                 Event::Text(t) => self
                     .pending
@@ -879,7 +930,7 @@ impl Column {
             row,
             column: self.name.clone(),
             expected: expected.to_string(),
-            found,
+            found: limits::one_line(&found),
         })
     }
 
@@ -1047,6 +1098,8 @@ struct TableBatches {
     /// Rows read so far, over all batches.
     rows_read: u64,
     done: bool,
+    /// The rest of the document has been read (or reading stopped at an error).
+    checked_end: bool,
     /// The text of the TD being read.
     cell: String,
 }
@@ -1056,7 +1109,11 @@ impl Iterator for TableBatches {
 
     fn next(&mut self) -> Option<Self::Item> {
         if self.done {
-            return None;
+            if self.checked_end {
+                return None;
+            }
+            self.checked_end = true;
+            return read_to_end(&mut self.xml).err().map(Err);
         }
         let rows = match &self.data {
             Serialization::Empty => Ok(0),
@@ -1067,6 +1124,7 @@ impl Iterator for TableBatches {
             Ok(rows) => rows,
             Err(e) => {
                 self.done = true;
+                self.checked_end = true;
                 return Some(Err(e));
             }
         };
@@ -1074,7 +1132,7 @@ impl Iterator for TableBatches {
             self.done = true;
         }
         if rows == 0 {
-            return None;
+            return self.next();
         }
         Some(self.finish_batch(rows))
     }
@@ -1114,7 +1172,7 @@ impl TableBatches {
         let mut in_td = false;
         while rows < self.batch_rows {
             let xml = &mut self.xml;
-            let event = read_event(&mut xml.reader, &mut xml.buf, &xml.path)?;
+            let event = read_event(&mut xml.reader, &mut xml.buf, &mut xml.depth, &xml.path)?;
             let pos = xml.reader.buffer_position();
             match event {
                 Event::Start(e) => match e.local_name().as_ref() {
@@ -1170,7 +1228,7 @@ impl TableBatches {
                                 row: self.rows_read + 1,
                                 column: column.name.clone(),
                                 expected: column.expected(),
-                                found: self.cell.clone(),
+                                found: limits::one_line(&self.cell),
                             });
                         }
                         cells += 1;
