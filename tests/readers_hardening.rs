@@ -187,6 +187,54 @@ fn a_parquet_footer_declaring_more_rows_than_its_row_groups_is_an_error() {
     );
 }
 
+/// The small Parquet file of `tests/reader_mutations.rs`: 24 rows in row groups of 8.
+fn mutation_parquet() -> Vec<u8> {
+    let schema = Arc::new(Schema::new(vec![
+        Field::new("id", DataType::Int32, false),
+        Field::new("flux", DataType::Float64, true),
+        Field::new("name", DataType::Utf8, true),
+    ]));
+    let ids: Vec<i32> = (0..24).collect();
+    let flux: Vec<Option<f64>> = (0..24)
+        .map(|i| (i % 5 != 0).then_some(f64::from(i) * 1.5))
+        .collect();
+    let names: Vec<Option<String>> = (0..24)
+        .map(|i| (i % 3 != 0).then(|| format!("obj{i}")))
+        .collect();
+    let columns: Vec<ArrayRef> = vec![
+        Arc::new(Int32Array::from(ids)),
+        Arc::new(arrow::array::Float64Array::from(flux)),
+        Arc::new(arrow::array::StringArray::from(names)),
+    ];
+    let batch = RecordBatch::try_new(schema.clone(), columns).unwrap();
+    let props = parquet::file::properties::WriterProperties::builder()
+        .set_max_row_group_row_count(Some(8))
+        .build();
+    let mut out = Vec::new();
+    let mut w = parquet::arrow::ArrowWriter::try_new(&mut out, schema, Some(props)).unwrap();
+    w.write(&batch).unwrap();
+    w.close().unwrap();
+    out
+}
+
+#[test]
+fn a_parquet_file_that_makes_the_library_panic_is_an_error_naming_it() {
+    // Byte 1495 ^ 0x59 (found by the mutation suite) makes a column chunk's
+    // start negative, on which the Parquet library panics.
+    let dir = tempfile::tempdir().unwrap();
+    let mut bytes = mutation_parquet();
+    bytes[1495] ^= 0x59;
+    let path = write(dir.path(), "panics.parquet", &bytes);
+    let result = read_parquet(&path, 4).map(|s| prefetch(s, 2));
+    assert_eq!(
+        drain(result).unwrap_err(),
+        format!(
+            "{}: the reader failed on the file's contents (column start and length should not be negative); the file is corrupt or not in the format its schema names",
+            path.display()
+        )
+    );
+}
+
 // 2. Header sizes are checked before anything is allocated.
 
 #[test]
