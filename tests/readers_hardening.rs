@@ -506,6 +506,47 @@ fn a_named_pipe_is_refused_for_every_format() {
     assert_error(&run, &format!("fluxloom: error: {expected}"));
 }
 
+#[test]
+fn build_refuses_a_named_pipe_before_reading_it() {
+    let dir = tempfile::tempdir().unwrap();
+    for entry in std::fs::read_dir(repo().join("demo_catalogs/fl1")).unwrap() {
+        let entry = entry.unwrap();
+        std::fs::copy(entry.path(), dir.path().join(entry.file_name())).unwrap();
+    }
+    let fifo = dir.path().join("kos.csv");
+    std::fs::remove_file(&fifo).unwrap();
+    assert!(
+        Command::new("mkfifo")
+            .arg(&fifo)
+            .status()
+            .unwrap()
+            .success()
+    );
+    let mut child = Command::new(env!("CARGO_BIN_EXE_fluxloom"))
+        .args(["build", "plan.toml", "--out", "out", "--quiet"])
+        .current_dir(dir.path())
+        .stderr(std::process::Stdio::piped())
+        .spawn()
+        .unwrap();
+    let deadline = std::time::Instant::now() + std::time::Duration::from_secs(60);
+    while child.try_wait().unwrap().is_none() {
+        if std::time::Instant::now() > deadline {
+            child.kill().unwrap();
+            panic!("build waited on the named pipe");
+        }
+        std::thread::sleep(std::time::Duration::from_millis(50));
+    }
+    let out = child.wait_with_output().unwrap();
+    let run = Run {
+        code: out.status.code().unwrap_or(-1),
+        stderr: String::from_utf8_lossy(&out.stderr).into_owned(),
+    };
+    assert_error(
+        &run,
+        "fluxloom: error: kos.csv: is a named pipe (FIFO), expected a regular file (catalogs are read more than once; save the stream to a file first)",
+    );
+}
+
 // 6. VOTable features that are refused by name.
 
 fn votable_with(table: &str, data: &str) -> String {
