@@ -11,7 +11,7 @@
 
 use std::collections::VecDeque;
 use std::fs::File;
-use std::io::{BufRead, BufReader, Read};
+use std::io::{BufReader, Read};
 use std::path::{Path, PathBuf};
 use std::sync::{Arc, Mutex};
 
@@ -112,19 +112,14 @@ pub fn read_csv(path: &Path, options: &CsvOptions, batch_rows: usize) -> Result<
     })
 }
 
-/// Opens the file, decompressing gzip when asked to, when the name ends in `.gz`,
-/// or (unless told otherwise) when the file starts with the gzip magic bytes.
+/// Opens the file, decompressing gzip when asked to or when the name ends in `.gz`.
 fn open_text(path: &Path, options: &CsvOptions) -> Result<Box<dyn Read + Send>> {
     let file = File::open(path).map_err(|e| Error::io(path, e))?;
-    let mut reader = BufReader::with_capacity(1 << 20, file);
-    let gzip = match options.gzip {
-        Some(g) => g,
-        None => {
-            path.extension()
-                .is_some_and(|e| e.eq_ignore_ascii_case("gz"))
-                || gzip::is_gzip(reader.fill_buf().map_err(|e| Error::io(path, e))?)
-        }
-    };
+    let reader = BufReader::with_capacity(1 << 20, file);
+    let gzip = options.gzip.unwrap_or_else(|| {
+        path.extension()
+            .is_some_and(|e| e.eq_ignore_ascii_case("gz"))
+    });
     if gzip {
         Ok(Box::new(BufReader::with_capacity(
             1 << 20,
