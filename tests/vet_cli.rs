@@ -373,13 +373,13 @@ fn non_utf8_text_names_row_and_column() {
     bytes[at + 3] = 0xE9;
     let csv = write(dir.path(), "latin1.csv", &bytes);
     let run = fluxloom(&["vet", s(&csv), "--schema", DEMO_SCHEMA]);
-    assert_eq!(run.code, 1);
-    assert_eq!(run.stderr.lines().count(), 1, "{}", run.stderr);
-    assert!(
-        run.stderr
-            .contains("column \"src\": expected UTF-8 text, found bytes that are not UTF-8"),
-        "{}",
-        run.stderr
+    // LNS-0005 is data row 5, on line 8 (two comment lines and the header first).
+    assert_error(
+        &run,
+        &format!(
+            "fluxloom: error: {}: row 5 (line 8), column \"src\": expected UTF-8 text, found bytes that are not UTF-8 (re-encode the file as UTF-8)",
+            csv.display()
+        ),
     );
 }
 

@@ -3,7 +3,15 @@
 //! It walks the header-data units (HDUs) of a file, skipping each by its data
 //! size, and decodes the chosen BINTABLE into Arrow record batches of
 //! [`FitsOptions::batch_rows`] rows, reading one batch of rows at a time.
-//! Files starting with the gzip magic bytes are decompressed on the fly.
+//! Files starting with the gzip magic bytes are decompressed on the fly (every
+//! member of a multi-member file; the gzip stream is read to its end so that
+//! its CRC-32 and length trailers are checked).
+//!
+//! Header sizes are checked before anything is allocated: the data an HDU
+//! declares must fit in the file (for gzip, in the most its compressed bytes can
+//! expand to, [`limits::DEFLATE_MAX_RATIO`]), row widths are summed with checked
+//! arithmetic, a header must start with `SIMPLE` or `XTENSION` and end within
+//! [`limits::MAX_HEADER_BLOCKS`] blocks, and the rows read must match `NAXIS2`.
 //!
 //! What is implemented, by section of the FITS Standard 4.0:
 //!
@@ -52,6 +60,9 @@ use std::io::{self, BufReader, Read, Seek};
 use std::path::{Path, PathBuf};
 use std::sync::Arc;
 
+use super::gzip::{self, MultiGzDecoder};
+use super::{CatalogBatches, DeclaredRows, limits};
+use crate::error::{Error, Result};
 use arrow::array::{
     ArrayRef, BooleanArray, FixedSizeListArray, PrimitiveArray, RecordBatch, RecordBatchOptions,
     StringArray,
@@ -60,10 +71,6 @@ use arrow::datatypes::{
     ArrowPrimitiveType, DataType, Field, Float32Type, Float64Type, Int8Type, Int16Type, Int32Type,
     Int64Type, Schema, SchemaRef, UInt8Type, UInt16Type, UInt32Type, UInt64Type,
 };
-use flate2::read::GzDecoder;
-
-use super::CatalogBatches;
-use crate::error::{Error, Result};
 
 /// Size in bytes of a FITS block (FITS Standard 4.0, section 3.1).
 const BLOCK_BYTES: usize = 2880;
@@ -88,6 +95,7 @@ pub struct FitsOptions {
 /// column; [`Error::BadValue`] (while iterating) for a logical byte other than
 /// `T`, `F` or 0 and for text that is not UTF-8.
 pub fn read_fits(path: &Path, options: &FitsOptions) -> Result<CatalogBatches> {
+    super::check_regular_file(path)?;
     let mut source = Source::open(path).map_err(|e| Error::io(path, e))?;
     let mut kinds: Vec<String> = Vec::new();
     loop {
@@ -111,7 +119,9 @@ pub fn read_fits(path: &Path, options: &FitsOptions) -> Result<CatalogBatches> {
         }
         let data_bytes = data_size(&header, path, index)?;
         let padded = data_bytes.div_ceil(BLOCK_BYTES as u64) * BLOCK_BYTES as u64;
-        let skipped = source.skip(padded).map_err(|e| Error::io(path, e))?;
+        let skipped = source
+            .skip(padded)
+            .map_err(|e| source.read_error(path, e))?;
         if skipped < data_bytes {
             return Err(Error::format(
                 path,
@@ -150,14 +160,16 @@ struct Source {
     input: Input,
     /// Bytes consumed from the (decompressed) stream.
     pos: u64,
-    /// Length of a plain file; unknown for gzip.
-    len: Option<u64>,
+    /// Length of the file as stored (compressed, for gzip).
+    file_len: u64,
+    /// The most bytes the stream can yield (see [`limits::stream_bound`]).
+    bound: u64,
 }
 
 /// The underlying reader.
 enum Input {
     Plain(BufReader<File>),
-    Gzip(Box<GzDecoder<BufReader<File>>>),
+    Gzip(Box<MultiGzDecoder<BufReader<File>>>),
 }
 
 impl Source {
@@ -172,19 +184,39 @@ impl Source {
             magic == [0x1f, 0x8b]
         };
         let reader = BufReader::new(file);
-        Ok(if is_gzip {
-            Source {
-                input: Input::Gzip(Box::new(GzDecoder::new(reader))),
-                pos: 0,
-                len: None,
-            }
+        let input = if is_gzip {
+            Input::Gzip(Box::new(gzip::decoder(reader)))
         } else {
-            Source {
-                input: Input::Plain(reader),
-                pos: 0,
-                len: Some(len),
-            }
+            Input::Plain(reader)
+        };
+        Ok(Source {
+            input,
+            pos: 0,
+            file_len: len,
+            bound: limits::stream_bound(len, is_gzip),
         })
+    }
+
+    /// A read error: a broken gzip stream is a format error, anything else an I/O error.
+    fn read_error(&self, path: &Path, e: io::Error) -> Error {
+        if self.is_gzip() && e.kind() != io::ErrorKind::PermissionDenied {
+            Error::format(path, gzip::describe(&e))
+        } else {
+            Error::io(path, e)
+        }
+    }
+
+    /// Whether the file is gzip-compressed.
+    fn is_gzip(&self) -> bool {
+        matches!(self.input, Input::Gzip(_))
+    }
+
+    /// Reads a gzip stream to its end, so that every member's trailer is checked.
+    fn finish(&mut self) -> io::Result<()> {
+        if let Input::Gzip(r) = &mut self.input {
+            gzip::drain(r)?;
+        }
+        Ok(())
     }
 
     /// Fills `buf` as far as the stream allows; returns the number of bytes read.
@@ -208,22 +240,37 @@ impl Source {
 
     /// Skips up to `n` bytes; returns how many were there to skip.
     fn skip(&mut self, n: u64) -> io::Result<u64> {
-        let skipped = match (&mut self.input, self.len) {
-            (Input::Plain(r), Some(len)) => {
-                let k = n.min(len.saturating_sub(self.pos));
+        let skipped = match &mut self.input {
+            Input::Plain(r) => {
+                let k = n.min(self.file_len.saturating_sub(self.pos));
                 r.seek_relative(k as i64)?;
                 k
             }
-            (Input::Plain(r), None) => io::copy(&mut r.take(n), &mut io::sink())?,
-            (Input::Gzip(r), _) => io::copy(&mut r.take(n), &mut io::sink())?,
+            Input::Gzip(r) => io::copy(&mut r.take(n), &mut io::sink())?,
         };
         self.pos += skipped;
         Ok(skipped)
     }
 
-    /// Bytes left in a plain file, `None` for a gzip stream.
-    fn remaining(&self) -> Option<u64> {
-        self.len.map(|len| len.saturating_sub(self.pos))
+    /// The most bytes left: exact for a plain file, a bound for a gzip stream.
+    fn remaining(&self) -> u64 {
+        self.bound.saturating_sub(self.pos)
+    }
+
+    /// The error for an HDU whose declared data cannot be in the file.
+    fn too_large(&self, path: &Path, index: usize, expected: u64, dims: &str) -> Error {
+        let left = self.remaining();
+        let message = if self.is_gzip() {
+            format!(
+                "data of HDU {index} declares {expected} bytes ({dims}), more than a gzip file of {} bytes can hold (at most {left} more bytes)",
+                self.file_len
+            )
+        } else {
+            format!(
+                "truncated FITS file: data of HDU {index} has {left} bytes, expected {expected} ({dims})"
+            )
+        };
+        Error::format(path, message)
     }
 }
 
@@ -272,12 +319,14 @@ impl Value {
 /// Cards without the value indicator `"= "` in bytes 9-10 (COMMENT, HISTORY, END,
 /// blank) give `Value::Undefined`. An unterminated string gives `Err`.
 fn parse_card(card: &[u8]) -> std::result::Result<(String, Value), String> {
-    let text = String::from_utf8_lossy(card);
-    let keyword = text.get(..8).unwrap_or(&text).trim_end().to_string();
+    let keyword = String::from_utf8_lossy(&card[..card.len().min(8)])
+        .trim_end()
+        .to_string();
     if card.len() < 10 || &card[8..10] != b"= " {
         return Ok((keyword, Value::Undefined));
     }
-    let field = text[10..].trim_start();
+    let text = String::from_utf8_lossy(&card[10..]);
+    let field = text.trim_start();
     if let Some(rest) = field.strip_prefix('\'') {
         let mut value = String::new();
         let mut chars = rest.chars().peekable();
@@ -378,7 +427,7 @@ fn read_header(source: &mut Source, path: &Path, index: usize) -> Result<Option<
     loop {
         let n = source
             .read_full(&mut block)
-            .map_err(|e| Error::io(path, e))?;
+            .map_err(|e| source.read_error(path, e))?;
         if n == 0 && header_bytes == 0 {
             if index > 0 {
                 return Ok(None);
@@ -394,7 +443,19 @@ fn read_header(source: &mut Source, path: &Path, index: usize) -> Result<Option<
                 ),
             ));
         }
+        if header_bytes == 0 {
+            check_first_card(&block[..CARD_BYTES], path, index)?;
+        }
         header_bytes += n;
+        if header_bytes > limits::MAX_HEADER_BLOCKS * BLOCK_BYTES {
+            return Err(Error::format(
+                path,
+                format!(
+                    "header of HDU {index} has no END card in its first {} blocks of 2880 bytes",
+                    limits::MAX_HEADER_BLOCKS
+                ),
+            ));
+        }
         for card in block.chunks_exact(CARD_BYTES) {
             if card.starts_with(b"END") && card[3..].iter().all(|&b| b == b' ') {
                 return Ok(Some(Header { cards }));
@@ -406,6 +467,29 @@ fn read_header(source: &mut Source, path: &Path, index: usize) -> Result<Option<
             }
         }
     }
+}
+
+/// Stops at the first card of a header unless it is `SIMPLE` (HDU 0) or
+/// `XTENSION` (later HDUs), before any more of the header is read.
+fn check_first_card(card: &[u8], path: &Path, index: usize) -> Result<()> {
+    let keyword = if index == 0 { "SIMPLE" } else { "XTENSION" };
+    if card.starts_with(keyword.as_bytes()) && card[keyword.len()..8].iter().all(|&b| b == b' ') {
+        return Ok(());
+    }
+    let found = String::from_utf8_lossy(&card[..8]);
+    let found = if found.trim().is_empty()
+        || !card[..8].iter().all(|b| b.is_ascii_graphic() || *b == b' ')
+    {
+        "no keyword".to_string()
+    } else {
+        format!("keyword {}", found.trim_end())
+    };
+    let message = if index == 0 {
+        format!("not a FITS file: the first card has {found}, expected SIMPLE = T")
+    } else {
+        format!("header of HDU {index} starts with {found}, expected XTENSION")
+    };
+    Err(Error::format(path, message))
 }
 
 /// `PRIMARY` for HDU 0 (checked to start with `SIMPLE = T`), else the `XTENSION` value.
@@ -575,7 +659,13 @@ fn parse_tform(tform: &str) -> Option<(usize, char)> {
 
 /// Builds the columns of a BINTABLE from its header (FITS Standard 4.0, section 7.3.1-7.3.2).
 fn table_columns(header: &Header, path: &Path, index: usize, naxis1: usize) -> Result<Vec<Column>> {
-    let tfields = header.count("TFIELDS", path, index)? as usize;
+    let tfields = header.count("TFIELDS", path, index)?;
+    if tfields > 999 {
+        return Err(Error::format(
+            path,
+            format!("header of HDU {index}: TFIELDS is {tfields}, expected 0 to 999"),
+        ));
+    }
     let mut columns = Vec::new();
     let mut offset = 0usize;
     for n in 1..=tfields {
@@ -620,6 +710,18 @@ fn table_columns(header: &Header, path: &Path, index: usize, naxis1: usize) -> R
         } else {
             repeat
         };
+        let too_wide = || {
+            Error::format(
+                path,
+                format!(
+                    "HDU {index}, column {n} \"{name}\": TFORM{n} = '{tform}' is wider than a row (NAXIS1 = {naxis1} bytes)"
+                ),
+            )
+        };
+        let width = repeat.checked_mul(stored.size()).ok_or_else(too_wide)?;
+        if width > naxis1 || repeat > i32::MAX as usize {
+            return Err(too_wide());
+        }
         let scale = header
             .get(&format!("TSCAL{n}"))
             .and_then(Value::as_f64)
@@ -650,6 +752,7 @@ fn table_columns(header: &Header, path: &Path, index: usize, naxis1: usize) -> R
             _ => None,
         };
         let unit = header.text(&format!("TUNIT{n}"));
+        let end = offset.checked_add(width).ok_or_else(too_wide)?;
         let column = Column {
             name,
             stored,
@@ -659,7 +762,7 @@ fn table_columns(header: &Header, path: &Path, index: usize, naxis1: usize) -> R
             tnull,
             unit: (!unit.is_empty()).then_some(unit),
         };
-        offset += column.width();
+        offset = end;
         if repeat > 0 {
             columns.push(column);
         }
@@ -702,15 +805,8 @@ fn open_table(
         )
     })?;
     let dims = format!("NAXIS1 {naxis1} x NAXIS2 {naxis2}");
-    if let Some(left) = source.remaining()
-        && left < expected
-    {
-        return Err(Error::format(
-            path,
-            format!(
-                "truncated FITS file: data of HDU {index} has {left} bytes, expected {expected} ({dims})"
-            ),
-        ));
+    if source.remaining() < expected {
+        return Err(source.too_large(path, index, expected, &dims));
     }
     let naxis1 = usize::try_from(naxis1).map_err(|_| {
         Error::format(
@@ -739,13 +835,14 @@ fn open_table(
         naxis1,
         rows_total: naxis2,
         rows_done: 0,
-        batch_rows,
+        batch_rows: limits::batch_rows_for(batch_rows, naxis1),
         dims,
         failed: false,
     };
     Ok(CatalogBatches {
+        path: path.to_path_buf(),
         schema,
-        batches: Box::new(batches),
+        batches: Box::new(DeclaredRows::new(batches, path, naxis2, "NAXIS2")),
     })
 }
 
@@ -769,8 +866,15 @@ impl Iterator for TableBatches {
     type Item = Result<RecordBatch>;
 
     fn next(&mut self) -> Option<Self::Item> {
-        if self.failed || self.rows_done >= self.rows_total {
+        if self.failed {
             return None;
+        }
+        if self.rows_done >= self.rows_total {
+            self.failed = true;
+            return match self.source.finish() {
+                Ok(()) => None,
+                Err(e) => Some(Err(Error::format(&self.path, gzip::describe(&e)))),
+            };
         }
         let rows = (self.rows_total - self.rows_done).min(self.batch_rows as u64) as usize;
         let result = self.read_batch(rows);
@@ -783,11 +887,11 @@ impl Iterator for TableBatches {
 impl TableBatches {
     /// Reads and decodes the next `rows` rows.
     fn read_batch(&mut self, rows: usize) -> Result<RecordBatch> {
-        let mut buf = vec![0u8; rows * self.naxis1];
+        let mut buf = limits::zeroed(&self.path, rows.saturating_mul(self.naxis1))?;
         let got = self
             .source
             .read_full(&mut buf)
-            .map_err(|e| Error::io(&self.path, e))?;
+            .map_err(|e| self.source.read_error(&self.path, e))?;
         if got < buf.len() {
             let has = self.rows_done * self.naxis1 as u64 + got as u64;
             let expected = self.rows_total * self.naxis1 as u64;
@@ -967,7 +1071,7 @@ fn decode_text(cells: &Cells<'_>, path: &Path, first_row: u64) -> Result<ArrayRe
             row: first_row + row as u64 + 1,
             column: c.name.clone(),
             expected: "UTF-8 text".to_string(),
-            found: String::from_utf8_lossy(&bytes[..end]).into_owned(),
+            found: limits::one_line(&String::from_utf8_lossy(&bytes[..end])),
         })?;
         out.push(text.trim_end_matches(' '));
     }

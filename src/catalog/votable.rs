@@ -30,7 +30,11 @@
 //! - 6.1 null values: `VALUES/@null` marks nulls in integer (and float and
 //!   string) columns in every serialization; NaN floats are null.
 //!
-//! The FITS serialization and remote streams (`STREAM/@href`) are refused.
+//! The FITS and PARQUET serializations, remote streams (`STREAM/@href`) and
+//! tables that borrow another table's FIELDs (`TABLE/@ref`) are refused by name,
+//! and so are gzip-compressed and UTF-16 documents. Array sizes are capped at
+//! [`limits::MAX_CELL_ELEMENTS`] elements per cell, and batches hold fewer rows
+//! when rows hold many values ([`limits::MAX_BATCH_VALUES`]).
 //!
 //! ```no_run
 //! use fluxloom::catalog::votable::{VotableOptions, read_votable};
@@ -43,7 +47,7 @@
 //! ```
 
 use std::fs::File;
-use std::io::BufReader;
+use std::io::{BufRead, BufReader};
 use std::path::{Path, PathBuf};
 use std::sync::Arc;
 
@@ -58,7 +62,7 @@ use base64::engine::general_purpose::STANDARD as BASE64;
 use quick_xml::Reader;
 use quick_xml::events::{BytesStart, Event};
 
-use super::CatalogBatches;
+use super::{CatalogBatches, gzip, limits};
 use crate::error::{Error, Result};
 
 /// Which TABLE of a VOTable document to read and how many rows go in one record batch.
@@ -80,11 +84,15 @@ pub struct VotableOptions {
 /// [`Error::BadValue`] (while iterating) for a TABLEDATA cell that does not
 /// parse as its FIELD's datatype.
 pub fn read_votable(path: &Path, options: &VotableOptions) -> Result<CatalogBatches> {
+    super::check_regular_file(path)?;
     let file = File::open(path).map_err(|e| Error::io(path, e))?;
+    let mut input = BufReader::new(file);
+    check_encoding(path, input.fill_buf().map_err(|e| Error::io(path, e))?)?;
     let mut xml = Xml {
-        reader: Reader::from_reader(BufReader::new(file)),
+        reader: Reader::from_reader(input),
         buf: Vec::new(),
         path: path.to_path_buf(),
+        depth: 0,
     };
     let (specs, data) = find_table(&mut xml, options.table_index)?;
     let mut columns = Vec::with_capacity(specs.len());
@@ -97,21 +105,44 @@ pub fn read_votable(path: &Path, options: &VotableOptions) -> Result<CatalogBatc
             .filter_map(Column::arrow_field)
             .collect::<Vec<_>>(),
     ));
+    let values_per_row: usize = columns.iter().map(Column::values_per_row).sum();
+    let batch_rows = options
+        .batch_rows
+        .min(limits::MAX_BATCH_VALUES / values_per_row.max(1))
+        .max(1);
     let batches = TableBatches {
         xml,
         schema: schema.clone(),
         columns,
         table: options.table_index,
         data,
-        batch_rows: options.batch_rows.max(1),
+        batch_rows,
         rows_read: 0,
         done: false,
+        checked_end: false,
         cell: String::new(),
     };
     Ok(CatalogBatches {
+        path: path.to_path_buf(),
         schema,
         batches: Box::new(batches),
     })
+}
+
+/// Refuses a document that is gzip-compressed or UTF-16 encoded, from its first bytes.
+fn check_encoding(path: &Path, head: &[u8]) -> Result<()> {
+    let what = if gzip::is_gzip(head) {
+        "is gzip-compressed, expected an uncompressed VOTable (decompress it first)"
+    } else if head.starts_with(&[0xFF, 0xFE])
+        || head.starts_with(&[0xFE, 0xFF])
+        || head.starts_with(&[b'<', 0])
+        || head.starts_with(&[0, b'<'])
+    {
+        "is UTF-16 encoded, expected a UTF-8 VOTable (re-encode it as UTF-8)"
+    } else {
+        return Ok(());
+    };
+    Err(Error::format(path, what))
 }
 
 /// The XML reader over the file, with its event buffer and path.
@@ -119,21 +150,56 @@ struct Xml {
     reader: Reader<BufReader<File>>,
     buf: Vec<u8>,
     path: PathBuf,
+    /// Elements open at the current position.
+    depth: usize,
 }
 
 /// Reads the next XML event, turning a parse error into [`Error::Format`] with its byte position.
 fn read_event<'b>(
     reader: &mut Reader<BufReader<File>>,
     buf: &'b mut Vec<u8>,
+    depth: &mut usize,
     path: &Path,
 ) -> Result<Event<'b>> {
     buf.clear();
-    reader.read_event_into(buf).map_err(|e| {
+    let event = reader.read_event_into(buf).map_err(|e| {
         Error::format(
             path,
-            format!("malformed XML at byte {}: {e}", reader.error_position()),
+            format!(
+                "malformed XML at byte {}: {}",
+                reader.error_position(),
+                limits::one_line(&e.to_string())
+            ),
         )
-    })
+    })?;
+    match event {
+        Event::Start(_) => *depth += 1,
+        Event::End(_) => *depth = depth.saturating_sub(1),
+        _ => {}
+    }
+    Ok(event)
+}
+
+/// Reads the rest of the document after the rows, so that a truncated or
+/// malformed end is an error rather than a silent stop.
+fn read_to_end(xml: &mut Xml) -> Result<()> {
+    loop {
+        let event = read_event(&mut xml.reader, &mut xml.buf, &mut xml.depth, &xml.path)?;
+        if let Event::Eof = event {
+            break;
+        }
+    }
+    if xml.depth > 0 {
+        return Err(Error::format(
+            &xml.path,
+            format!(
+                "truncated VOTable: the document ends at byte {} with {} element(s) still open",
+                xml.reader.buffer_position(),
+                xml.depth
+            ),
+        ));
+    }
+    Ok(())
 }
 
 /// The error for text that cannot be decoded as UTF-8, ending at byte `pos`.
@@ -176,14 +242,28 @@ fn attributes(
     let mut out = Vec::new();
     for attr in e.attributes() {
         let attr = attr.map_err(|err| {
-            Error::format(path, format!("malformed XML before byte {pos}: {err}"))
+            Error::format(
+                path,
+                format!(
+                    "malformed XML before byte {pos}: {}",
+                    limits::one_line(&err.to_string())
+                ),
+            )
         })?;
         let key = std::str::from_utf8(attr.key.local_name().as_ref())
             .map_err(|_| not_utf8(path, pos))?
             .to_string();
         let value = attr
             .decode_and_unescape_value(reader.decoder())
-            .map_err(|err| Error::format(path, format!("malformed XML before byte {pos}: {err}")))?
+            .map_err(|err| {
+                Error::format(
+                    path,
+                    format!(
+                        "malformed XML before byte {pos}: {}",
+                        limits::one_line(&err.to_string())
+                    ),
+                )
+            })?
             .into_owned();
         out.push((key, value));
     }
@@ -197,9 +277,10 @@ fn find_table(xml: &mut Xml, index: usize) -> Result<(Vec<FieldSpec>, Serializat
     let mut root_seen = false;
     let mut in_table = false;
     let mut in_field = false;
+    let mut in_data = false;
     let mut fields: Vec<FieldSpec> = Vec::new();
     loop {
-        let event = read_event(&mut xml.reader, &mut xml.buf, &path)?;
+        let event = read_event(&mut xml.reader, &mut xml.buf, &mut xml.depth, &path)?;
         let (start, empty) = match event {
             Event::Start(e) => (e, false),
             Event::Empty(e) => (e, true),
@@ -207,6 +288,7 @@ fn find_table(xml: &mut Xml, index: usize) -> Result<(Vec<FieldSpec>, Serializat
                 match e.local_name().as_ref() {
                     b"TABLE" if in_table => return Ok((fields, Serialization::Empty)),
                     b"FIELD" => in_field = false,
+                    b"DATA" => in_data = false,
                     _ => {}
                 }
                 continue;
@@ -247,6 +329,17 @@ fn find_table(xml: &mut Xml, index: usize) -> Result<(Vec<FieldSpec>, Serializat
         match name.as_slice() {
             b"TABLE" => {
                 if tables_seen == index {
+                    let reference = attributes(&start, &xml.reader, &path)?
+                        .into_iter()
+                        .find(|(k, _)| k == "ref");
+                    if let Some((_, target)) = reference {
+                        return Err(Error::format(
+                            &path,
+                            format!(
+                                "TABLE {index} refers to another table (ref=\"{target}\") for its FIELDs, which is not supported; expected a TABLE with its own FIELDs"
+                            ),
+                        ));
+                    }
                     if empty {
                         return Ok((fields, Serialization::Empty));
                     }
@@ -303,11 +396,14 @@ fn find_table(xml: &mut Xml, index: usize) -> Result<(Vec<FieldSpec>, Serializat
                 let data = open_stream(xml, index, mask)?;
                 return Ok((fields, data));
             }
-            b"FITS" if in_table => {
+            b"DATA" if in_table => in_data = !empty,
+            b"INFO" => {}
+            other if in_data => {
                 return Err(Error::format(
                     &path,
                     format!(
-                        "DATA of TABLE {index} is in the FITS serialization, expected TABLEDATA, BINARY or BINARY2"
+                        "DATA of TABLE {index} is in the {} serialization, expected TABLEDATA, BINARY or BINARY2",
+                        String::from_utf8_lossy(other)
                     ),
                 ));
             }
@@ -320,7 +416,7 @@ fn find_table(xml: &mut Xml, index: usize) -> Result<(Vec<FieldSpec>, Serializat
 fn open_stream(xml: &mut Xml, table: usize, mask: bool) -> Result<Serialization> {
     let path = xml.path.clone();
     loop {
-        let event = read_event(&mut xml.reader, &mut xml.buf, &path)?;
+        let event = read_event(&mut xml.reader, &mut xml.buf, &mut xml.depth, &path)?;
         let (start, empty) = match event {
             Event::Start(e) => (e, false),
             Event::Empty(e) => (e, true),
@@ -378,7 +474,7 @@ impl Base64Stream {
     /// Makes `n` bytes available; `false` if the stream ends first.
     fn fill(&mut self, n: usize, xml: &mut Xml, table: usize) -> Result<bool> {
         while self.bytes.len() - self.pos < n && !self.ended {
-            let event = read_event(&mut xml.reader, &mut xml.buf, &xml.path)?;
+            let event = read_event(&mut xml.reader, &mut xml.buf, &mut xml.depth, &xml.path)?;
             match event {
                 Event::Text(t) => self
                     .pending
@@ -565,6 +661,15 @@ impl Column {
                 spec.arraysize.clone().unwrap_or_default()
             ))
         })?;
+        if let Size::Fixed(n) = size
+            && n > limits::MAX_CELL_ELEMENTS
+        {
+            return Err(field_error(format!(
+                "has arraysize \"{}\" ({n} elements), expected at most {} elements per cell",
+                spec.arraysize.clone().unwrap_or_default(),
+                limits::MAX_CELL_ELEMENTS
+            )));
+        }
         let prim = match spec.datatype.as_str() {
             "boolean" => Some(Prim::Bool),
             "unsignedByte" => Some(Prim::U8),
@@ -666,6 +771,14 @@ impl Column {
             .filter_map(|(k, v)| v.clone().map(|v| (k, v)))
             .collect::<Metadata>();
         Some(Field::new(&self.name, data_type, true).with_metadata(metadata))
+    }
+
+    /// Values one row adds to the batch (1 for strings and skipped fields).
+    fn values_per_row(&self) -> usize {
+        match self.kind {
+            Kind::Prim { count, .. } => count,
+            _ => 1,
+        }
     }
 
     /// Appends a null row.
@@ -817,7 +930,7 @@ impl Column {
             row,
             column: self.name.clone(),
             expected: expected.to_string(),
-            found,
+            found: limits::one_line(&found),
         })
     }
 
@@ -985,6 +1098,8 @@ struct TableBatches {
     /// Rows read so far, over all batches.
     rows_read: u64,
     done: bool,
+    /// The rest of the document has been read (or reading stopped at an error).
+    checked_end: bool,
     /// The text of the TD being read.
     cell: String,
 }
@@ -994,7 +1109,11 @@ impl Iterator for TableBatches {
 
     fn next(&mut self) -> Option<Self::Item> {
         if self.done {
-            return None;
+            if self.checked_end {
+                return None;
+            }
+            self.checked_end = true;
+            return read_to_end(&mut self.xml).err().map(Err);
         }
         let rows = match &self.data {
             Serialization::Empty => Ok(0),
@@ -1005,6 +1124,7 @@ impl Iterator for TableBatches {
             Ok(rows) => rows,
             Err(e) => {
                 self.done = true;
+                self.checked_end = true;
                 return Some(Err(e));
             }
         };
@@ -1012,7 +1132,7 @@ impl Iterator for TableBatches {
             self.done = true;
         }
         if rows == 0 {
-            return None;
+            return self.next();
         }
         Some(self.finish_batch(rows))
     }
@@ -1052,7 +1172,7 @@ impl TableBatches {
         let mut in_td = false;
         while rows < self.batch_rows {
             let xml = &mut self.xml;
-            let event = read_event(&mut xml.reader, &mut xml.buf, &xml.path)?;
+            let event = read_event(&mut xml.reader, &mut xml.buf, &mut xml.depth, &xml.path)?;
             let pos = xml.reader.buffer_position();
             match event {
                 Event::Start(e) => match e.local_name().as_ref() {
@@ -1108,7 +1228,7 @@ impl TableBatches {
                                 row: self.rows_read + 1,
                                 column: column.name.clone(),
                                 expected: column.expected(),
-                                found: self.cell.clone(),
+                                found: limits::one_line(&self.cell),
                             });
                         }
                         cells += 1;

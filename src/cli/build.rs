@@ -374,6 +374,7 @@ fn read_catalog(
     options: NormalizeOptions,
     quiet: bool,
 ) -> Result<ReadCatalog> {
+    crate::catalog::check_regular_file(file)?;
     let (sha256, bytes) = file_digest(file)?;
     let stream = prefetch(open(file, &schema.format, DEFAULT_BATCH_ROWS)?, 2);
     let mut normalizer = Normalizer::new(schema, file, options);

@@ -17,7 +17,7 @@ use crate::catalog::schema::SurveySchema;
 use crate::catalog::{CatalogBatches, DEFAULT_BATCH_ROWS, open, prefetch};
 use crate::error::{Error, Result};
 use crate::output::parquet::ParquetOutput;
-use arrow::array::RecordBatch;
+use arrow::array::{AsArray, RecordBatch};
 
 /// Arguments of `fluxloom vet`.
 #[derive(Debug, Args)]
@@ -97,14 +97,17 @@ pub fn vet_catalog(
         None => None,
     };
     let bar = row_counter(&format!("reading {}", catalog.display()), quiet);
+    let mut ids = SourceIds::default();
     for_each_normalized(stream, &mut normalizer, |normalized| {
         bar.inc(normalized.num_rows() as u64);
+        ids.add(&normalized, catalog)?;
         match output.as_mut() {
             Some(o) => o.write(&normalized),
             None => Ok(()),
         }
     })?;
     bar.finish_and_clear();
+    ids.check(&schema.survey)?;
     let written = match (output, out) {
         (Some(o), Some(path)) => Some((path.to_path_buf(), o.finish()?)),
         _ => None,
@@ -138,6 +141,77 @@ pub fn for_each_normalized(
         if done {
             return Ok(());
         }
+    }
+}
+
+/// How many repeated source identifiers [`SourceIds`] lists in its message.
+const REPEATS_SHOWN: usize = 5;
+
+/// The source identifiers of the kept rows, to find those that appear twice
+/// (which `build` refuses, so `vet` refuses them too).
+#[derive(Default)]
+struct SourceIds {
+    /// Each identifier with the row it first appears on.
+    first_row: std::collections::HashMap<String, u64>,
+    /// Rows that repeat an earlier row's identifier.
+    repeats: u64,
+    /// The first repeats: identifier, its first row, the repeating row.
+    shown: Vec<(String, u64, u64)>,
+}
+
+impl SourceIds {
+    /// Adds the identifiers of one normalized batch.
+    fn add(&mut self, normalized: &RecordBatch, catalog: &Path) -> Result<()> {
+        let column = |name: &str| {
+            normalized
+                .column_by_name(name)
+                .ok_or_else(|| Error::format(catalog, format!("normalized rows lack \"{name}\"")))
+        };
+        let ids = arrow::compute::cast(column("source_id")?, &arrow::datatypes::DataType::Utf8)
+            .map_err(|e| Error::columnar(catalog, e))?;
+        let rows = arrow::compute::cast(column("row")?, &arrow::datatypes::DataType::UInt64)
+            .map_err(|e| Error::columnar(catalog, e))?;
+        let ids = ids.as_string::<i32>();
+        let rows = rows.as_primitive::<arrow::datatypes::UInt64Type>();
+        for (id, row) in ids.iter().zip(rows.iter()) {
+            let (Some(id), Some(row)) = (id, row) else {
+                continue;
+            };
+            match self.first_row.get(id) {
+                Some(&first) => {
+                    self.repeats += 1;
+                    if self.shown.len() < REPEATS_SHOWN {
+                        self.shown.push((id.to_string(), first, row));
+                    }
+                }
+                None => {
+                    self.first_row.insert(id.to_string(), row);
+                }
+            }
+        }
+        Ok(())
+    }
+
+    /// The error for repeated identifiers, worded as `build` words it.
+    fn check(&self, survey: &str) -> Result<()> {
+        if self.repeats == 0 {
+            return Ok(());
+        }
+        let shown: Vec<String> = self
+            .shown
+            .iter()
+            .map(|(id, a, b)| format!("\"{id}\" (rows {a} and {b})"))
+            .collect();
+        let first = if self.repeats as usize > self.shown.len() {
+            format!("; the first {}", self.shown.len())
+        } else {
+            String::new()
+        };
+        Err(Error::Usage(format!(
+            "catalog \"{survey}\": {} row(s) repeat the source identifier of an earlier row{first}: {}; identifiers must be unique within a catalog",
+            self.repeats,
+            shown.join(", ")
+        )))
     }
 }
 

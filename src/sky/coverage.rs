@@ -121,12 +121,19 @@ impl Coverage {
             let n = f.read(&mut buf).map_err(|e| Error::io(path, e))?;
             buf[..n].to_vec()
         };
-        if head.starts_with(b"SIMPLE") {
-            Self::from_moc_fits(path)
+        let coverage = if head.starts_with(b"SIMPLE") {
+            Self::from_moc_fits(path)?
         } else {
             let text = std::fs::read_to_string(path).map_err(|e| Error::io(path, e))?;
-            Self::from_moc_ascii(&text).map_err(|m| Error::format(path, m))
+            Self::from_moc_ascii(&text).map_err(|m| Error::format(path, m))?
+        };
+        if coverage.is_empty() {
+            return Err(Error::format(
+                path,
+                "the MOC covers no sky cell, expected at least one (an empty coverage would mark every object not_covered)",
+            ));
         }
+        Ok(coverage)
     }
 
     fn from_moc_fits(path: &Path) -> Result<Coverage> {
@@ -324,5 +331,22 @@ mod file_tests {
             err.ends_with("bad.txt: \"5/x\": expected a pixel number or a range such as 4-7"),
             "{err}"
         );
+    }
+
+    #[test]
+    fn an_empty_moc_file_is_an_error() {
+        let dir = tempfile::tempdir().unwrap();
+        for (name, text) in [("empty.txt", ""), ("orders.txt", "3/ 5/\n")] {
+            let path = dir.path().join(name);
+            std::fs::write(&path, text).unwrap();
+            let err = Coverage::from_moc_file(&path).unwrap_err().to_string();
+            assert_eq!(
+                err,
+                format!(
+                    "{}: the MOC covers no sky cell, expected at least one (an empty coverage would mark every object not_covered)",
+                    path.display()
+                )
+            );
+        }
     }
 }

@@ -153,6 +153,7 @@ impl Normalizer {
                     available: available(),
                 });
             };
+            crate::catalog::check_unique_column(&self.path, file, &column)?;
             let t = field.data_type();
             let usable = t.is_numeric()
                 || matches!(
