@@ -1,0 +1,408 @@
+//! Benchmark: a whole `fluxloom build` against general-purpose positional joins,
+//! each a fresh process from Parquet files in to results out, in one run.
+//!
+//! Run with `cargo bench --bench versus`. For each size N (default 1e5 and 1e6;
+//! set `FLUXLOOM_BENCH_SIZES`, e.g. `1e5,1e6,1e7`) it writes two catalogs of N
+//! sources on a 10° × 10° field (70 % of the second are counterparts of the first
+//! with 0.3″ scatter, 30 % unrelated; one Vega magnitude each) and times:
+//!
+//! - `build`: the full build (objects, photometry, links; no exports, no
+//!   false-match estimate, no offsets), 1″ radius;
+//! - `pairs`: the same plan writing only `links.parquet`;
+//! - `ckdtree`: SciPy's cKDTree on unit vectors, `sparse_distance_matrix` between
+//!   two trees at chord radius 2 sin(r/2), pairs written to Parquet;
+//! - `duckdb`: a DuckDB zones join (declination zones one radius high; RA window
+//!   widened by 1/cos δ and wrapped at 0/360°; exact haversine test);
+//! - the I/O floors, in this process: reading the inputs' columns plus writing
+//!   the tables the build wrote (read back from its outputs) with the same
+//!   Parquet settings; for pairs only, reading plus writing `links.parquet`.
+//!
+//! It checks that every contender finds the same pair set, and prints seconds,
+//! peak resident memory and ratios, and the growth exponent of the build time
+//! with N. The Python side lives in a virtual environment the benchmark makes
+//! under `target/bench-venv` (pinned versions below); `cargo test` does not
+//! need it.
+
+use std::collections::HashSet;
+use std::fs::File;
+use std::path::{Path, PathBuf};
+use std::process::Command;
+use std::sync::Arc;
+use std::time::Instant;
+
+use arrow::array::{Array, ArrayRef, AsArray, Float64Array, RecordBatch, StringArray};
+use arrow::datatypes::{DataType, Field, Schema};
+use fluxloom::output::parquet::ParquetOutput;
+use fluxloom::rng::Rng;
+use parquet::arrow::ArrowWriter;
+use parquet::arrow::arrow_reader::ParquetRecordBatchReaderBuilder;
+
+/// Pinned Python packages of the baselines (versions published for CPython 3.11).
+const PYTHON_PACKAGES: &[&str] = &[
+    "numpy==2.1.3",
+    "scipy==1.14.1",
+    "pyarrow==18.1.0",
+    "duckdb==1.1.3",
+];
+
+const RADIUS_ARCSEC: f64 = 1.0;
+const FIELD_RA: (f64, f64) = (150.0, 160.0);
+const FIELD_DEC: (f64, f64) = (-5.0, 5.0);
+
+const CKDTREE: &str = r#"
+import sys, time, resource
+import numpy as np, pyarrow as pa, pyarrow.parquet as pq
+from scipy.spatial import cKDTree
+a, b, out, r_arcsec = sys.argv[1], sys.argv[2], sys.argv[3], float(sys.argv[4])
+def load(p):
+    t = pq.read_table(p, columns=["id", "ra", "dec"])
+    ra = np.radians(t["ra"].to_numpy()); dec = np.radians(t["dec"].to_numpy())
+    v = np.column_stack([np.cos(dec) * np.cos(ra), np.cos(dec) * np.sin(ra), np.sin(dec)])
+    return t["id"], v
+ida, va = load(a); idb, vb = load(b)
+chord = 2.0 * np.sin(np.radians(r_arcsec / 3600.0) / 2.0)
+m = cKDTree(va).sparse_distance_matrix(cKDTree(vb), chord, output_type="coo_matrix")
+sep = np.degrees(2.0 * np.arcsin(m.data / 2.0)) * 3600.0
+pq.write_table(pa.table({"id_a": ida.take(m.row), "id_b": idb.take(m.col), "sep_arcsec": sep}), out)
+print(resource.getrusage(resource.RUSAGE_SELF).ru_maxrss * 1024)
+"#;
+
+const DUCKDB: &str = r#"
+import sys, resource, duckdb
+a, b, out, r_arcsec = sys.argv[1], sys.argv[2], sys.argv[3], float(sys.argv[4])
+h = r_arcsec / 3600.0
+con = duckdb.connect()
+con.execute(f"""
+COPY (
+WITH A AS (SELECT id, ra, dec, floor((dec + 90) / {h})::BIGINT AS z FROM read_parquet('{a}')),
+     B0 AS (SELECT id, ra, dec, floor((dec + 90) / {h})::BIGINT AS z FROM read_parquet('{b}')),
+     B AS (SELECT id, ra, dec, z FROM B0
+           UNION ALL SELECT id, ra + 360, dec, z FROM B0 WHERE ra < 1
+           UNION ALL SELECT id, ra - 360, dec, z FROM B0 WHERE ra > 359),
+     Z AS (SELECT * FROM (VALUES (-1), (0), (1)) t(dz))
+SELECT A.id AS id_a, B.id AS id_b,
+       degrees(2 * asin(sqrt(pow(sin(radians(B.dec - A.dec) / 2), 2)
+         + cos(radians(A.dec)) * cos(radians(B.dec)) * pow(sin(radians(B.ra - A.ra) / 2), 2)))) * 3600 AS sep_arcsec
+FROM A, Z, B
+WHERE B.z = A.z + Z.dz
+  AND B.ra BETWEEN A.ra - {h} / greatest(cos(radians(abs(A.dec) + {h})), 1e-9)
+               AND A.ra + {h} / greatest(cos(radians(abs(A.dec) + {h})), 1e-9)
+  AND degrees(2 * asin(sqrt(pow(sin(radians(B.dec - A.dec) / 2), 2)
+         + cos(radians(A.dec)) * cos(radians(B.dec)) * pow(sin(radians(B.ra - A.ra) / 2), 2)))) * 3600 <= {r_arcsec}
+) TO '{out}' (FORMAT PARQUET)
+""")
+print(resource.getrusage(resource.RUSAGE_SELF).ru_maxrss * 1024)
+"#;
+
+fn main() {
+    let sizes: Vec<usize> = std::env::var("FLUXLOOM_BENCH_SIZES")
+        .unwrap_or_else(|_| "1e5,1e6".into())
+        .split(',')
+        .map(|s| s.trim().parse::<f64>().expect("sizes like 1e5,1e6") as usize)
+        .collect();
+    let root = PathBuf::from(env!("CARGO_MANIFEST_DIR")).join("target/bench-versus");
+    std::fs::create_dir_all(&root).unwrap();
+    let python = python_env(&root.join("../bench-venv"));
+    std::fs::write(root.join("ckdtree_pairs.py"), CKDTREE).unwrap();
+    std::fs::write(root.join("duckdb_zones.py"), DUCKDB).unwrap();
+    let exe = env!("CARGO_BIN_EXE_fluxloom");
+
+    println!(
+        "{:>10} {:>10} {:>10} {:>10} {:>10} {:>10} {:>10} {:>9} {:>9} {:>9}",
+        "N",
+        "build s",
+        "pairs s",
+        "ckdtree s",
+        "duckdb s",
+        "floor s",
+        "pfloor s",
+        "build/fl",
+        "pairs/pf",
+        "best/bld"
+    );
+    let mut build_times: Vec<(usize, f64)> = Vec::new();
+    for &n in &sizes {
+        let dir = root.join(format!("n{n}"));
+        std::fs::create_dir_all(&dir).unwrap();
+        let (a, b) = (dir.join("a.parquet"), dir.join("b.parquet"));
+        if !a.exists() || !b.exists() {
+            write_catalogs(n, &a, &b);
+        }
+        write_plans(&dir);
+        let out = dir.join("out");
+        let out_pairs = dir.join("out_pairs");
+        let (t_build, mem_build) = run_build(exe, &dir.join("plan.toml"), &out);
+        let (t_pairs, mem_pairs) = run_build(exe, &dir.join("plan_pairs.toml"), &out_pairs);
+        let script = |name: &str, out_file: &Path| {
+            let start = Instant::now();
+            let o = Command::new(&python)
+                .arg(root.join(name))
+                .args([&a, &b, &out_file.to_path_buf()])
+                .arg(RADIUS_ARCSEC.to_string())
+                .output()
+                .expect("python runs");
+            let t = start.elapsed().as_secs_f64();
+            assert!(
+                o.status.success(),
+                "{name}: {}",
+                String::from_utf8_lossy(&o.stderr)
+            );
+            let rss: f64 = String::from_utf8_lossy(&o.stdout)
+                .trim()
+                .parse()
+                .unwrap_or(0.0);
+            (t, rss)
+        };
+        let (t_kd, mem_kd) = script("ckdtree_pairs.py", &dir.join("pairs_ckdtree.parquet"));
+        let (t_db, mem_db) = script("duckdb_zones.py", &dir.join("pairs_duckdb.parquet"));
+
+        let ours = pair_set(&out.join("links.parquet"), "source_id_a", "source_id_b");
+        let ours_pairs = pair_set(
+            &out_pairs.join("links.parquet"),
+            "source_id_a",
+            "source_id_b",
+        );
+        let kd = pair_set(&dir.join("pairs_ckdtree.parquet"), "id_a", "id_b");
+        let db = pair_set(&dir.join("pairs_duckdb.parquet"), "id_a", "id_b");
+        assert_eq!(
+            ours, ours_pairs,
+            "N = {n}: pairs-only build differs from the full build"
+        );
+        assert_eq!(ours, kd, "N = {n}: fluxloom and cKDTree pair sets differ");
+        assert_eq!(ours, db, "N = {n}: fluxloom and DuckDB pair sets differ");
+
+        let floor = io_floor(&[&a, &b], &out, &["objects", "photometry", "links"]);
+        let pairs_floor = io_floor(&[&a, &b], &out_pairs, &["links"]);
+        let best = t_kd.min(t_db);
+        println!(
+            "{:>10} {:>10.3} {:>10.3} {:>10.3} {:>10.3} {:>10.3} {:>10.3} {:>9.2} {:>9.2} {:>9.2}",
+            n,
+            t_build,
+            t_pairs,
+            t_kd,
+            t_db,
+            floor,
+            pairs_floor,
+            t_build / floor,
+            t_pairs / pairs_floor,
+            best / t_build
+        );
+        println!(
+            "{:>10} peak MB: build {:.0}, pairs {:.0}, ckdtree {:.0}, duckdb {:.0}; {} pairs",
+            "",
+            mem_build / 1e6,
+            mem_pairs / 1e6,
+            mem_kd / 1e6,
+            mem_db / 1e6,
+            ours.len()
+        );
+        build_times.push((n, t_build));
+    }
+    for w in build_times.windows(2) {
+        let ((n1, t1), (n2, t2)) = (w[0], w[1]);
+        println!(
+            "growth exponent of the build time from {n1} to {n2}: {:.2}",
+            (t2 / t1).ln() / (n2 as f64 / n1 as f64).ln()
+        );
+    }
+}
+
+/// The benchmark's Python: a virtual environment with the pinned packages.
+fn python_env(venv: &Path) -> PathBuf {
+    let python = venv.join("bin/python");
+    let stamp = venv.join("fluxloom-packages.txt");
+    let wanted = PYTHON_PACKAGES.join("\n");
+    if std::fs::read_to_string(&stamp).ok().as_deref() == Some(wanted.as_str()) {
+        return python;
+    }
+    let ok = Command::new("python3")
+        .args(["-m", "venv"])
+        .arg(venv)
+        .status()
+        .is_ok_and(|s| s.success());
+    assert!(ok, "python3 -m venv {} failed", venv.display());
+    let ok = Command::new(&python)
+        .args(["-m", "pip", "install", "--quiet"])
+        .args(PYTHON_PACKAGES)
+        .status()
+        .is_ok_and(|s| s.success());
+    assert!(ok, "pip install {PYTHON_PACKAGES:?} failed");
+    std::fs::write(&stamp, wanted).unwrap();
+    python
+}
+
+fn write_catalogs(n: usize, a: &Path, b: &Path) {
+    let mut rng = Rng::new(0xBE7C4, "versus");
+    let mut random = || {
+        (
+            FIELD_RA.0 + (FIELD_RA.1 - FIELD_RA.0) * rng.uniform(),
+            FIELD_DEC.0 + (FIELD_DEC.1 - FIELD_DEC.0) * rng.uniform(),
+        )
+    };
+    let first: Vec<(f64, f64)> = (0..n).map(|_| random()).collect();
+    let mut second = Vec::with_capacity(n);
+    let mut rng = Rng::new(0xBE7C5, "versus-scatter");
+    for (k, &(ra, dec)) in first.iter().enumerate() {
+        if k % 10 < 7 {
+            let d = 0.3 / 3600.0;
+            second.push((
+                ra + rng.normal() * d / f64::cos(dec.to_radians()),
+                dec + rng.normal() * d,
+            ));
+        } else {
+            second.push((
+                FIELD_RA.0 + (FIELD_RA.1 - FIELD_RA.0) * rng.uniform(),
+                FIELD_DEC.0 + (FIELD_DEC.1 - FIELD_DEC.0) * rng.uniform(),
+            ));
+        }
+    }
+    write_catalog(a, "a", &first, 12.0);
+    write_catalog(b, "b", &second, 11.0);
+}
+
+fn write_catalog(path: &Path, prefix: &str, positions: &[(f64, f64)], mag0: f64) {
+    let schema = Arc::new(Schema::new(vec![
+        Field::new("id", DataType::Utf8, false),
+        Field::new("ra", DataType::Float64, false),
+        Field::new("dec", DataType::Float64, false),
+        Field::new("mag", DataType::Float64, false),
+        Field::new("e_mag", DataType::Float64, false),
+    ]));
+    let file = File::create(path).unwrap();
+    let mut w = ArrowWriter::try_new(file, schema.clone(), None).unwrap();
+    for (c, chunk) in positions.chunks(65_536).enumerate() {
+        let base = c * 65_536;
+        let ids: Vec<String> = (0..chunk.len())
+            .map(|k| format!("{prefix}{:09}", base + k))
+            .collect();
+        let columns: Vec<ArrayRef> = vec![
+            Arc::new(StringArray::from(ids)),
+            Arc::new(Float64Array::from_iter_values(chunk.iter().map(|p| p.0))),
+            Arc::new(Float64Array::from_iter_values(chunk.iter().map(|p| p.1))),
+            Arc::new(Float64Array::from_iter_values(
+                (0..chunk.len()).map(|k| mag0 + ((base + k) % 700) as f64 / 100.0),
+            )),
+            Arc::new(Float64Array::from_iter_values(
+                (0..chunk.len()).map(|_| 0.05),
+            )),
+        ];
+        w.write(&RecordBatch::try_new(schema.clone(), columns).unwrap())
+            .unwrap();
+    }
+    w.close().unwrap();
+}
+
+fn write_plans(dir: &Path) {
+    for (name, band) in [("a", "tmass_ks"), ("b", "wise_w1")] {
+        std::fs::write(
+            dir.join(format!("{name}.toml")),
+            format!(
+                "survey = \"{name}\"\nformat = \"parquet\"\nid = \"id\"\n\n[position]\nra = \"ra\"\ndec = \"dec\"\nformat = \"degrees\"\nerror = {{ kind = \"fixed\", arcsec = 0.1 }}\n\n[epoch]\nyear = 2016.0\n\n[[band]]\nband = \"{band}\"\nvalue = \"mag\"\nunit = \"vega_mag\"\nerror = \"e_mag\"\n"
+            ),
+        )
+        .unwrap();
+    }
+    let plan = |tables: &str| {
+        format!(
+            "[field]\nname = \"bench\"\nreference_epoch = 2016.0\narea_deg2 = 100.0\n\n[match]\ntolerance = {{ kind = \"radius\", arcsec = {RADIUS_ARCSEC} }}\ncorrect_offsets = false\nfalse_matches = false\n\n[[catalog]]\nfile = \"a.parquet\"\nschema = \"a.toml\"\n\n[[catalog]]\nfile = \"b.parquet\"\nschema = \"b.toml\"\n\n[output]\nfolder = \"out\"\n{tables}"
+        )
+    };
+    std::fs::write(dir.join("plan.toml"), plan("")).unwrap();
+    std::fs::write(dir.join("plan_pairs.toml"), plan("tables = [\"links\"]\n")).unwrap();
+}
+
+/// Seconds of a fresh `fluxloom build` process, and the peak memory it reports.
+fn run_build(exe: &str, plan: &Path, out: &Path) -> (f64, f64) {
+    let start = Instant::now();
+    let o = Command::new(exe)
+        .args(["--quiet", "build"])
+        .arg(plan)
+        .arg("--out")
+        .arg(out)
+        .output()
+        .expect("fluxloom runs");
+    let t = start.elapsed().as_secs_f64();
+    assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
+    let text = String::from_utf8_lossy(&o.stdout);
+    let mb: f64 = text
+        .lines()
+        .find_map(|l| l.strip_prefix("memory   peak "))
+        .and_then(|l| l.split_whitespace().next())
+        .and_then(|v| v.parse().ok())
+        .unwrap_or(0.0);
+    (t, mb * 1e6)
+}
+
+fn read_batches(path: &Path, columns: Option<&[&str]>) -> Vec<RecordBatch> {
+    let f = File::open(path).unwrap();
+    let builder = ParquetRecordBatchReaderBuilder::try_new(f).unwrap();
+    let builder = match columns {
+        Some(cols) => {
+            let mask = parquet::arrow::ProjectionMask::columns(
+                builder.parquet_schema(),
+                cols.iter().copied(),
+            );
+            builder.with_projection(mask)
+        }
+        None => builder,
+    };
+    builder.build().unwrap().map(|b| b.unwrap()).collect()
+}
+
+fn pair_set(path: &Path, a: &str, b: &str) -> HashSet<(String, String)> {
+    let mut set = HashSet::new();
+    for batch in read_batches(path, Some(&[a, b])) {
+        let (ca, cb) = (
+            batch.column_by_name(a).unwrap(),
+            batch.column_by_name(b).unwrap(),
+        );
+        let cast = |c: &ArrayRef| arrow::compute::cast(c, &DataType::Utf8).unwrap();
+        let (ca, cb) = (cast(ca), cast(cb));
+        let (ca, cb) = (ca.as_string::<i32>(), cb.as_string::<i32>());
+        for i in 0..batch.num_rows() {
+            if ca.is_valid(i) && cb.is_valid(i) {
+                set.insert((ca.value(i).to_string(), cb.value(i).to_string()));
+            }
+        }
+    }
+    set
+}
+
+/// Seconds to read the inputs' columns and write `tables` of `out` again with
+/// the build's Parquet settings (the tables are read back first, untimed).
+fn io_floor(inputs: &[&Path], out: &Path, tables: &[&str]) -> f64 {
+    let contents: Vec<(String, Vec<RecordBatch>)> = tables
+        .iter()
+        .map(|t| {
+            (
+                t.to_string(),
+                read_batches(&out.join(format!("{t}.parquet")), None),
+            )
+        })
+        .collect();
+    let scratch = out.with_extension("floor");
+    std::fs::create_dir_all(&scratch).unwrap();
+    let start = Instant::now();
+    let mut rows = 0usize;
+    for input in inputs {
+        for b in read_batches(input, Some(&["id", "ra", "dec", "mag", "e_mag"])) {
+            rows += b.num_rows();
+        }
+    }
+    for (name, batches) in &contents {
+        let schema = batches
+            .first()
+            .map(|b| b.schema())
+            .unwrap_or_else(|| Arc::new(Schema::empty()));
+        let mut w =
+            ParquetOutput::create(&scratch.join(format!("{name}.parquet")), schema, Vec::new())
+                .unwrap();
+        for b in batches {
+            w.write(b).unwrap();
+        }
+        w.finish().unwrap();
+    }
+    let t = start.elapsed().as_secs_f64();
+    assert!(rows > 0);
+    t
+}
