@@ -6,6 +6,14 @@ use std::process::ExitCode;
 use clap::Parser;
 
 fn main() -> ExitCode {
+    // A reader's panic on a damaged file becomes a one-line error; only other
+    // panics are reported by the default hook.
+    let default_hook = std::panic::take_hook();
+    std::panic::set_hook(Box::new(move |info| {
+        if !fluxloom::catalog::panics_are_caught() {
+            default_hook(info);
+        }
+    }));
     let cli = fluxloom::cli::Cli::parse();
     match fluxloom::cli::run(cli) {
         Ok(()) => ExitCode::SUCCESS,

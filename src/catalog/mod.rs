@@ -228,10 +228,28 @@ pub fn reader_panic(path: &Path, payload: &(dyn Any + Send)) -> Error {
     )
 }
 
+thread_local! {
+    /// How many guarded reader calls are running on this thread.
+    static GUARDED: std::cell::Cell<usize> = const { std::cell::Cell::new(0) };
+}
+
+/// True while this thread runs reader code whose panics become errors, so a
+/// panic hook can keep quiet about them (the error reports them, in one line).
+pub fn panics_are_caught() -> bool {
+    GUARDED.with(|g| g.get() > 0)
+}
+
+/// Runs `f` with [`panics_are_caught`] true on this thread, catching its panic.
+fn catch_reader_panic<T>(f: impl FnOnce() -> T) -> std::thread::Result<T> {
+    GUARDED.with(|g| g.set(g.get() + 1));
+    let outcome = std::panic::catch_unwind(std::panic::AssertUnwindSafe(f));
+    GUARDED.with(|g| g.set(g.get() - 1));
+    outcome
+}
+
 /// Calls `f`, turning a panic into [`reader_panic`]'s error for `path`.
 pub(crate) fn guarded<T>(path: &Path, f: impl FnOnce() -> Result<T>) -> Result<T> {
-    std::panic::catch_unwind(std::panic::AssertUnwindSafe(f))
-        .unwrap_or_else(|payload| Err(reader_panic(path, payload.as_ref())))
+    catch_reader_panic(f).unwrap_or_else(|payload| Err(reader_panic(path, payload.as_ref())))
 }
 
 /// What the prefetch thread sends: a batch or error, then `End` when the stream is done.
@@ -272,7 +290,7 @@ fn feed(
     sender: &SyncSender<Message>,
     path: &Path,
 ) {
-    let outcome = std::panic::catch_unwind(std::panic::AssertUnwindSafe(|| {
+    let outcome = catch_reader_panic(|| {
         for batch in batches {
             let failed = batch.is_err();
             if sender.send(Message::Item(batch)).is_err() || failed {
@@ -281,7 +299,7 @@ fn feed(
         }
         // The consumer may be gone; then nobody needs the end marker.
         let _ = sender.send(Message::End);
-    }));
+    });
     if let Err(payload) = outcome {
         let _ = sender.send(Message::Item(Err(reader_panic(path, payload.as_ref()))));
     }
