@@ -24,7 +24,9 @@ use crate::error::{Error, Result};
 use crate::output::parquet::ParquetOutput;
 use crate::output::run_record::{InputRecord, OutputRecord, RunRecord, SedRecord};
 use crate::output::staging::Staging;
-use crate::output::tables::{for_export, links_batch, objects_batch, photometry_batch};
+use crate::output::tables::{
+    for_export, hard_sources_batch, links_batch, objects_batch, photometry_batch,
+};
 use crate::output::{csv::write_csv, fits::write_fits, votable::write_votable};
 use crate::plan::{ExportFormat, Plan};
 use crate::sed::{BandSlot, SedAssembler, SedStatus};
@@ -288,6 +290,20 @@ pub fn build_with(plan: &Plan, out_dir: &Path, run: RunOptions) -> Result<BuildO
         outputs.push(OutputRecord {
             file: file.to_string(),
             rows,
+        });
+    }
+    if which.objects {
+        // The sources of the hard cases, for the audit's match cards.
+        let hard = hard_sources_batch(&result.objects, &result.links, &matched_tables, epoch)?;
+        let mut w = ParquetOutput::create(
+            &staging.path("hard_sources.parquet"),
+            hard.schema(),
+            metadata.clone(),
+        )?;
+        w.write(&hard)?;
+        outputs.push(OutputRecord {
+            file: "hard_sources.parquet".to_string(),
+            rows: w.finish()?,
         });
     }
     for format in &plan.exports {

@@ -39,6 +39,11 @@ pub struct Candidate {
     pub norm_dist: f64,
     /// ln of the two-catalog Bayes factor (Budavári & Szalay 2008).
     pub ln_bayes: f64,
+    /// Offset of b from a toward the east (Δα cos δ), arcsec, on the tangent plane
+    /// at a, at the epoch the pair was compared.
+    pub east_arcsec: f64,
+    /// Offset of b from a toward the north (Δδ), arcsec.
+    pub north_arcsec: f64,
 }
 
 /// Moving sources get an extra index entry at another catalog's epoch when
@@ -87,6 +92,8 @@ pub fn test_pair(sources: &Sources, config: &MatchConfig, a: u32, b: u32) -> Opt
             sources.sigma_rad[ib],
             sep_arcsec * RAD_PER_ARCSEC,
         ),
+        east_arcsec: if a < b { east } else { -east },
+        north_arcsec: if a < b { north } else { -north },
     })
 }
 

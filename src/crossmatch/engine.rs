@@ -128,6 +128,11 @@ pub struct Link {
     pub probability: f64,
     /// True when both sources ended in the same object.
     pub chosen: bool,
+    /// Offset of the second source from the first toward the east (Δα cos δ),
+    /// arcsec, at the epoch they were compared, after any offset correction.
+    pub dra_cosdec_arcsec: f64,
+    /// Offset of the second source from the first toward the north, arcsec.
+    pub ddec_arcsec: f64,
     /// Anchor of the object of the first source (its identifier is
     /// `<catalog>:<source id>` of this source, built when the link is written).
     pub object_a: SourceRef,
@@ -432,6 +437,8 @@ fn assemble(ctx: &Context, cells: CellOutput) -> MatchResult {
                 ln_bayes: c.ln_bayes,
                 probability: posterior(c.ln_bayes, ctx.ln_prior(&[ca, cb])),
                 chosen: oa == ob,
+                dra_cosdec_arcsec: c.east_arcsec,
+                ddec_arcsec: c.north_arcsec,
                 object_a: anchor_of(oa),
                 object_b: anchor_of(ob),
             }

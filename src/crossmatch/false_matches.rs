@@ -41,11 +41,42 @@ pub struct FalseMatchEstimate {
     pub false_fraction: f64,
     /// Shifted candidates per source of catalog A.
     pub false_per_source_a: f64,
+    /// The same estimate within growing radii: candidates closer than each radius.
+    pub by_radius: Vec<FalseMatchesWithin>,
 }
 
-fn count_between(tables: &[SourceTable; 2], config: &MatchConfig) -> Result<usize> {
+/// The false-match estimate for the candidates of a pair closer than a radius.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct FalseMatchesWithin {
+    /// The radius, arcsec.
+    pub radius_arcsec: f64,
+    /// Real candidates within it.
+    pub real_candidates: usize,
+    /// Mean shifted candidates within it.
+    pub shifted_candidates_mean: f64,
+    /// Their ratio (0 without real candidates).
+    pub false_fraction: f64,
+}
+
+/// Radii of [`FalseMatchEstimate::by_radius`]: this many equal steps up to the
+/// pair's largest tolerance.
+pub const RADIUS_STEPS: usize = 8;
+
+/// Separations of the candidate pairs between two tables, arcsec.
+fn separations_between(tables: &[SourceTable; 2], config: &MatchConfig) -> Result<Vec<f64>> {
     let sources = Sources::prepare(tables, config)?;
-    Ok(find_candidates(&sources, config).len())
+    Ok(find_candidates(&sources, config)
+        .iter()
+        .map(|c| c.sep_arcsec)
+        .collect())
+}
+
+/// How many of `seps` are at most each of `radii`.
+fn count_within(seps: &[f64], radii: &[f64]) -> Vec<usize> {
+    radii
+        .iter()
+        .map(|&r| seps.iter().filter(|&&s| s <= r).count())
+        .collect()
 }
 
 /// Estimates false-match rates for every catalog pair.
@@ -64,7 +95,14 @@ pub fn estimate_false_matches(
             pair_config.tolerance = config.tolerance_for(a, b);
             pair_config.partition_order = config.partition_order;
             let s = MIN_SHIFT_ARCSEC.max(SHIFT_PER_RADIUS * pair_config.tolerance.max_arcsec());
-            let real = count_between(&[tables[a].clone(), tables[b].clone()], &pair_config)?;
+            let radii: Vec<f64> = (1..=RADIUS_STEPS)
+                .map(|k| pair_config.tolerance.max_arcsec() * k as f64 / RADIUS_STEPS as f64)
+                .collect();
+            let real_seps =
+                separations_between(&[tables[a].clone(), tables[b].clone()], &pair_config)?;
+            let real = real_seps.len();
+            let real_within = count_within(&real_seps, &radii);
+            let mut shifted_within = vec![0usize; radii.len()];
             let mut total = 0usize;
             let d = s / std::f64::consts::SQRT_2;
             let shifts = [
@@ -80,7 +118,11 @@ pub fn estimate_false_matches(
             for (east, north) in shifts {
                 let mut moved = tables[b].clone();
                 shift_table(&mut moved, east, north);
-                total += count_between(&[tables[a].clone(), moved], &pair_config)?;
+                let seps = separations_between(&[tables[a].clone(), moved], &pair_config)?;
+                total += seps.len();
+                for (sum, n) in shifted_within.iter_mut().zip(count_within(&seps, &radii)) {
+                    *sum += n;
+                }
             }
             let mean = total as f64 / shifts.len() as f64;
             out.push(FalseMatchEstimate {
@@ -95,6 +137,19 @@ pub fn estimate_false_matches(
                 } else {
                     mean / tables[a].len() as f64
                 },
+                by_radius: radii
+                    .iter()
+                    .zip(real_within.iter().zip(&shifted_within))
+                    .map(|(&radius_arcsec, (&real, &shifted))| {
+                        let mean = shifted as f64 / shifts.len() as f64;
+                        FalseMatchesWithin {
+                            radius_arcsec,
+                            real_candidates: real,
+                            shifted_candidates_mean: mean,
+                            false_fraction: if real > 0 { mean / real as f64 } else { 0.0 },
+                        }
+                    })
+                    .collect(),
             });
         }
     }

@@ -381,6 +381,13 @@ pub fn links_batch(links: &[Link], tables: &[SourceTable]) -> Result<RecordBatch
         field("ln_bayes", DataType::Float64, false, None),
         field("probability", DataType::Float64, false, None),
         field("chosen", DataType::Boolean, false, None),
+        field(
+            "dra_cosdec_arcsec",
+            DataType::Float64,
+            false,
+            Some("arcsec"),
+        ),
+        field("ddec_arcsec", DataType::Float64, false, Some("arcsec")),
     ];
     let columns: Vec<ArrayRef> = vec![
         object_ids(links.iter().map(|l| l.object_a), tables),
@@ -415,6 +422,12 @@ pub fn links_batch(links: &[Link], tables: &[SourceTable]) -> Result<RecordBatch
         )),
         Arc::new(BooleanArray::from(
             links.iter().map(|l| l.chosen).collect::<Vec<_>>(),
+        )),
+        Arc::new(Float64Array::from_iter_values(
+            links.iter().map(|l| l.dra_cosdec_arcsec),
+        )),
+        Arc::new(Float64Array::from_iter_values(
+            links.iter().map(|l| l.ddec_arcsec),
         )),
     ];
     RecordBatch::try_new(Arc::new(Schema::new(fields)), columns)
@@ -451,4 +464,110 @@ pub fn for_export(batch: &RecordBatch) -> Result<RecordBatch> {
     }
     RecordBatch::try_new(Arc::new(Schema::new(fields)), columns)
         .map_err(|e| Error::Usage(format!("export table: {e}")))
+}
+
+/// The sources of the hard cases: every member of an object flagged ambiguous,
+/// blend or under a blend, and every source a candidate pair links to one of
+/// them, each with the object it ended in, its position at the epoch pairs are
+/// compared (the reference epoch for a source with a proper motion, its own
+/// epoch otherwise), after any offset correction (`tables` as matched), and its
+/// 1σ error ellipse — what a chart of such a case needs.
+///
+/// # Errors
+/// A columnar error if the batch cannot be built.
+pub fn hard_sources_batch(
+    objects: &[MatchedObject],
+    links: &[Link],
+    tables: &[SourceTable],
+    reference_epoch_yr: f64,
+) -> Result<RecordBatch> {
+    use crate::crossmatch::flags::{AMBIGUOUS, BLEND, HAS_BLEND};
+    let mut rows: std::collections::BTreeMap<SourceRef, SourceRef> = Default::default();
+    for o in objects {
+        if o.flags & (AMBIGUOUS | BLEND | HAS_BLEND) != 0 {
+            for m in &o.members {
+                let s = SourceRef {
+                    catalog: m.catalog as u32,
+                    row: m.row as u32,
+                };
+                rows.insert(s, o.anchor);
+            }
+        }
+    }
+    let mut linked: Vec<(SourceRef, SourceRef)> = Vec::new();
+    for l in links {
+        let a = SourceRef {
+            catalog: l.catalog_a as u32,
+            row: l.row_a as u32,
+        };
+        let b = SourceRef {
+            catalog: l.catalog_b as u32,
+            row: l.row_b as u32,
+        };
+        if rows.contains_key(&a) {
+            linked.push((b, l.object_b));
+        }
+        if rows.contains_key(&b) {
+            linked.push((a, l.object_a));
+        }
+    }
+    for (s, object) in linked {
+        rows.entry(s).or_insert(object);
+    }
+    let mut order: Vec<(SourceRef, SourceRef)> = rows.into_iter().map(|(s, o)| (o, s)).collect();
+    order.sort_unstable();
+    let fields = vec![
+        field("object_id", DataType::Utf8, false, None),
+        field("catalog", DataType::Utf8, false, None),
+        field("source_id", DataType::Utf8, false, None),
+        field("ra_deg", DataType::Float64, false, Some("deg")),
+        field("dec_deg", DataType::Float64, false, Some("deg")),
+        field("err_major_arcsec", DataType::Float64, false, Some("arcsec")),
+        field("err_minor_arcsec", DataType::Float64, false, Some("arcsec")),
+        field("err_pa_deg", DataType::Float64, false, Some("deg")),
+    ];
+    let position = |s: &SourceRef| -> (f64, f64) {
+        let t = &tables[s.catalog as usize];
+        let i = s.row as usize;
+        let (pmra, pmdec, epoch) = (t.pmra_cosdec_masyr[i], t.pmdec_masyr[i], t.epoch_yr[i]);
+        if pmra.is_finite() && pmdec.is_finite() && epoch.is_finite() {
+            crate::sky::propagation::propagate_deg(
+                t.ra_deg[i],
+                t.dec_deg[i],
+                pmra,
+                pmdec,
+                reference_epoch_yr - epoch,
+            )
+        } else {
+            (t.ra_deg[i], t.dec_deg[i])
+        }
+    };
+    let columns: Vec<ArrayRef> = vec![
+        object_ids(order.iter().map(|(o, _)| *o), tables),
+        Arc::new(StringArray::from_iter_values(
+            order
+                .iter()
+                .map(|(_, s)| tables[s.catalog as usize].name.as_str()),
+        )),
+        Arc::new(StringArray::from_iter_values(order.iter().map(|(_, s)| {
+            tables[s.catalog as usize].source_id[s.row as usize].as_str()
+        }))),
+        Arc::new(Float64Array::from_iter_values(
+            order.iter().map(|(_, s)| position(s).0),
+        )),
+        Arc::new(Float64Array::from_iter_values(
+            order.iter().map(|(_, s)| position(s).1),
+        )),
+        Arc::new(Float64Array::from_iter_values(order.iter().map(
+            |(_, s)| tables[s.catalog as usize].err_major_arcsec[s.row as usize],
+        ))),
+        Arc::new(Float64Array::from_iter_values(order.iter().map(
+            |(_, s)| tables[s.catalog as usize].err_minor_arcsec[s.row as usize],
+        ))),
+        Arc::new(Float64Array::from_iter_values(order.iter().map(
+            |(_, s)| tables[s.catalog as usize].err_pa_deg[s.row as usize],
+        ))),
+    ];
+    RecordBatch::try_new(Arc::new(Schema::new(fields)), columns)
+        .map_err(|e| Error::Usage(format!("hard sources table: {e}")))
 }
