@@ -84,6 +84,8 @@ pub struct Plan {
     pub exports: Vec<ExportFormat>,
     /// Skip unreadable rows (counted) instead of stopping.
     pub skip_bad_rows: bool,
+    /// Write the match audit (report.html, report.json) with the tables.
+    pub report: bool,
     /// The plan file.
     pub path: PathBuf,
     /// The plan text, kept for run.json and output metadata.
@@ -158,6 +160,7 @@ struct RawOutput {
     #[serde(default)]
     exports: Vec<Spanned<String>>,
     skip_bad_rows: Option<bool>,
+    report: Option<bool>,
 }
 
 impl Plan {
@@ -380,6 +383,7 @@ impl Plan {
             output: resolve(&raw.output.folder),
             exports,
             skip_bad_rows: raw.output.skip_bad_rows.unwrap_or(false),
+            report: raw.output.report.unwrap_or(true),
             path: path.to_path_buf(),
             text,
         })
