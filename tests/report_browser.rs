@@ -208,7 +208,7 @@ impl Drop for Browser {
 fn ink(png_bytes: &[u8]) -> (f64, usize) {
     let decoder = png::Decoder::new(std::io::Cursor::new(png_bytes));
     let mut reader = decoder.read_info().unwrap();
-    let mut buf = vec![0; reader.output_buffer_size()];
+    let mut buf = vec![0; reader.output_buffer_size().unwrap()];
     let info = reader.next_frame(&mut buf).unwrap();
     let channels = info.color_type.samples();
     let pixels: Vec<&[u8]> = buf[..info.buffer_size()].chunks(channels).collect();
