@@ -196,6 +196,32 @@ impl Browser {
     }
 }
 
+impl Browser {
+    /// Console errors and requests other than `page_url` seen so far.
+    fn problems(&self, page_url: &str) -> (Vec<Value>, Vec<String>) {
+        let errors = self
+            .events
+            .iter()
+            .filter(|e| {
+                let m = e["method"].as_str().unwrap_or("");
+                (m == "Runtime.consoleAPICalled" && e["params"]["type"] == json!("error"))
+                    || m == "Runtime.exceptionThrown"
+                    || (m == "Log.entryAdded" && e["params"]["entry"]["level"] == json!("error"))
+            })
+            .cloned()
+            .collect();
+        let requests = self
+            .events
+            .iter()
+            .filter(|e| e["method"] == json!("Network.requestWillBeSent"))
+            .filter_map(|e| e["params"]["request"]["url"].as_str())
+            .filter(|u| *u != page_url)
+            .map(str::to_string)
+            .collect();
+        (errors, requests)
+    }
+}
+
 impl Drop for Browser {
     fn drop(&mut self) {
         let _ = self.child.kill();
@@ -246,27 +272,11 @@ fn the_report_loads_offline_without_errors_and_fits_a_phone() {
     let (narrow_ink, _) = ink(&narrow);
     std::fs::write(dir.path().join("wide.png"), &wide).unwrap();
 
-    let console_errors: Vec<&Value> = b
-        .events
-        .iter()
-        .filter(|e| {
-            let m = e["method"].as_str().unwrap_or("");
-            (m == "Runtime.consoleAPICalled" && e["params"]["type"] == json!("error"))
-                || m == "Runtime.exceptionThrown"
-                || (m == "Log.entryAdded" && e["params"]["entry"]["level"] == json!("error"))
-        })
-        .collect();
+    let (console_errors, requests) = b.problems(&url);
     assert!(
         console_errors.is_empty(),
         "console errors: {console_errors:?}"
     );
-    let requests: Vec<&str> = b
-        .events
-        .iter()
-        .filter(|e| e["method"] == json!("Network.requestWillBeSent"))
-        .filter_map(|e| e["params"]["request"]["url"].as_str())
-        .filter(|u| *u != url)
-        .collect();
     assert!(requests.is_empty(), "the report fetched: {requests:?}");
     println!(
         "screenshot 1200 px: {:.1} % ink, {wide_colours} colours; 390 px: {:.1} % ink; widths (document, body, viewport) {widths}",
@@ -286,4 +296,27 @@ fn the_report_loads_offline_without_errors_and_fits_a_phone() {
         w[0] <= w[2] && w[1] <= w[2],
         "the page overflows a 390 px window: {widths}"
     );
+}
+
+#[test]
+fn the_checks_catch_a_console_error_and_a_request() {
+    let Some(binary) = chromium() else { return };
+    let dir = tempfile::tempdir().unwrap();
+    let page = dir.path().join("bad.html");
+    std::fs::write(
+        &page,
+        "<!DOCTYPE html><html><body><p>x</p><img src=\"http://127.0.0.1:9/x.png\"/><script>console.error(\"boom\")</script></body></html>",
+    )
+    .unwrap();
+    let url = format!("file://{}", page.canonicalize().unwrap().display());
+    let mut b = Browser::launch(&binary, &dir.path().join("profile"));
+    b.call("Page.navigate", json!({ "url": url }));
+    b.wait_for("Page.loadEventFired");
+    b.eval("1");
+    let (errors, requests) = b.problems(&url);
+    assert!(
+        errors.iter().any(|e| e.to_string().contains("boom")),
+        "{errors:?}"
+    );
+    assert_eq!(requests, vec!["http://127.0.0.1:9/x.png".to_string()]);
 }
