@@ -480,3 +480,145 @@ fn a_folder_without_outputs_is_one_line_and_exit_1() {
         )
     );
 }
+
+fn write_parquet(path: &Path, batch: &RecordBatch) {
+    let mut w =
+        parquet::arrow::ArrowWriter::try_new(fs::File::create(path).unwrap(), batch.schema(), None)
+            .unwrap();
+    w.write(batch).unwrap();
+    w.close().unwrap();
+}
+
+#[test]
+fn per_pair_offsets_and_source_positions_are_used_when_the_folder_has_them() {
+    use arrow::array::{ArrayRef, Float64Array, StringArray};
+    use std::sync::Arc;
+    let (out, _) = built();
+    let dir = tempfile::tempdir().unwrap();
+    let folder = dir.path();
+    for f in ["objects.parquet", "photometry.parquet", "run.json"] {
+        fs::copy(out.join(f), folder.join(f)).unwrap();
+    }
+    // Links with per-pair offsets (b minus a in each row's own orientation):
+    // ask x kos pairs at (+0.1, -0.05)", every other pair at zero.
+    let links = read_parquet(&out.join("links.parquet"));
+    let (ca, cb) = (text(&links, "catalog_a"), text(&links, "catalog_b"));
+    let sign: Vec<f64> = (0..links.num_rows())
+        .map(|i| match (ca[i].as_str(), cb[i].as_str()) {
+            ("ask", "kos") => 1.0,
+            ("kos", "ask") => -1.0,
+            _ => 0.0,
+        })
+        .collect();
+    let mut columns: Vec<ArrayRef> = links.columns().to_vec();
+    columns.push(Arc::new(Float64Array::from_iter_values(
+        sign.iter().map(|s| 0.1 * s),
+    )));
+    columns.push(Arc::new(Float64Array::from_iter_values(
+        sign.iter().map(|s| -0.05 * s),
+    )));
+    let mut fields: Vec<arrow::datatypes::Field> = links
+        .schema()
+        .fields()
+        .iter()
+        .map(|f| f.as_ref().clone())
+        .collect();
+    for name in ["dra_cosdec_arcsec", "ddec_arcsec"] {
+        fields.push(arrow::datatypes::Field::new(name, DataType::Float64, false));
+    }
+    let links =
+        RecordBatch::try_new(Arc::new(arrow::datatypes::Schema::new(fields)), columns).unwrap();
+    write_parquet(&folder.join("links.parquet"), &links);
+
+    // Source positions for the members of the ambiguous objects.
+    let objects = read_parquet(&out.join("objects.parquet"));
+    let (ids, status) = (text(&objects, "object_id"), text(&objects, "status"));
+    let (ra, dec) = (floats(&objects, "ra_deg"), floats(&objects, "dec_deg"));
+    let catalogs = ["ask", "kos", "lantern", "harrier", "cinder", "ember"];
+    let mut rows: Vec<(String, String, String, f64, f64)> = Vec::new();
+    for i in 0..objects.num_rows() {
+        if !status[i].split('+').any(|f| f == "ambiguous") {
+            continue;
+        }
+        for (k, c) in catalogs.iter().enumerate() {
+            let s = text(&objects, &format!("{c}_source_id"))[i].clone();
+            if !s.is_empty() {
+                let step = (k as f64 - 2.5) * 0.1 / 3600.0;
+                rows.push((
+                    ids[i].clone(),
+                    c.to_string(),
+                    s,
+                    ra[i] + step,
+                    dec[i] - step,
+                ));
+            }
+        }
+    }
+    let text_col = |f: &dyn Fn(&(String, String, String, f64, f64)) -> String| -> ArrayRef {
+        Arc::new(StringArray::from_iter_values(rows.iter().map(f)))
+    };
+    let float_col = |f: &dyn Fn(&(String, String, String, f64, f64)) -> f64| -> ArrayRef {
+        Arc::new(Float64Array::from_iter_values(rows.iter().map(f)))
+    };
+    let hard = RecordBatch::try_from_iter([
+        ("object_id", text_col(&|r| r.0.clone())),
+        ("catalog", text_col(&|r| r.1.clone())),
+        ("source_id", text_col(&|r| r.2.clone())),
+        ("ra_deg", float_col(&|r| r.3)),
+        ("dec_deg", float_col(&|r| r.4)),
+        ("err_major_arcsec", float_col(&|_| 0.2)),
+        ("err_minor_arcsec", float_col(&|_| 0.1)),
+        ("err_pa_deg", float_col(&|_| 30.0)),
+    ])
+    .unwrap();
+    write_parquet(&folder.join("hard_sources.parquet"), &hard);
+
+    let o = Command::new(env!("CARGO_BIN_EXE_fluxloom"))
+        .args(["report", folder.to_str().unwrap()])
+        .output()
+        .unwrap();
+    assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
+    let report = json(&folder.join("report.json"));
+    let run = json(&folder.join("run.json"));
+    let pair = report["pairs"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .find(|p| p["catalog_a"] == "ask" && p["catalog_b"] == "kos")
+        .unwrap();
+    let after = &pair["offsets_after"];
+    assert!(
+        close(after["dra_cosdec_arcsec"].as_f64().unwrap(), 0.1),
+        "{after}"
+    );
+    assert!(
+        close(after["ddec_arcsec"].as_f64().unwrap(), -0.05),
+        "{after}"
+    );
+    assert_eq!(after["n"], pair["chosen"]);
+    // Before correction: the correction applied to kos taken back out.
+    let applied = &run["offsets"][0]["applied_arcsec"];
+    assert_eq!(run["offsets"][0]["catalog"], 1);
+    let before = &pair["offsets_before"];
+    assert!(close(
+        before["dra_cosdec_arcsec"].as_f64().unwrap(),
+        0.1 - applied[0].as_f64().unwrap()
+    ));
+    assert!(close(
+        before["ddec_arcsec"].as_f64().unwrap(),
+        -0.05 - applied[1].as_f64().unwrap()
+    ));
+    let gaps = report["gaps"].to_string();
+    assert!(
+        !gaps.contains("dra_cosdec_arcsec") && !gaps.contains("hard_sources"),
+        "{gaps}"
+    );
+
+    // The ambiguous group's card places every source with its ellipse.
+    let html = fs::read_to_string(folder.join("report.html")).unwrap();
+    let card = &html[html.find("id=\"card-1\"").unwrap()..];
+    let card = &card[..card.find("</figure>").unwrap()];
+    assert!(card.contains(">sources</text>"), "{card}");
+    assert_eq!(card.matches("<ellipse class=\"error\"").count(), rows.len());
+    assert!(html.contains("id=\"fig-off-ask-kos\""));
+}
