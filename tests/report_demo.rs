@@ -481,6 +481,9 @@ fn a_folder_without_outputs_is_one_line_and_exit_1() {
     );
 }
 
+/// (object id, catalog, source id, RA, Dec) of a source in a hard group.
+type SourceRow = (String, String, String, f64, f64);
+
 fn write_parquet(path: &Path, batch: &RecordBatch) {
     let mut w =
         parquet::arrow::ArrowWriter::try_new(fs::File::create(path).unwrap(), batch.schema(), None)
@@ -535,7 +538,7 @@ fn per_pair_offsets_and_source_positions_are_used_when_the_folder_has_them() {
     let (ids, status) = (text(&objects, "object_id"), text(&objects, "status"));
     let (ra, dec) = (floats(&objects, "ra_deg"), floats(&objects, "dec_deg"));
     let catalogs = ["ask", "kos", "lantern", "harrier", "cinder", "ember"];
-    let mut rows: Vec<(String, String, String, f64, f64)> = Vec::new();
+    let mut rows: Vec<SourceRow> = Vec::new();
     for i in 0..objects.num_rows() {
         if !status[i].split('+').any(|f| f == "ambiguous") {
             continue;
@@ -554,10 +557,10 @@ fn per_pair_offsets_and_source_positions_are_used_when_the_folder_has_them() {
             }
         }
     }
-    let text_col = |f: &dyn Fn(&(String, String, String, f64, f64)) -> String| -> ArrayRef {
+    let text_col = |f: &dyn Fn(&SourceRow) -> String| -> ArrayRef {
         Arc::new(StringArray::from_iter_values(rows.iter().map(f)))
     };
-    let float_col = |f: &dyn Fn(&(String, String, String, f64, f64)) -> f64| -> ArrayRef {
+    let float_col = |f: &dyn Fn(&SourceRow) -> f64| -> ArrayRef {
         Arc::new(Float64Array::from_iter_values(rows.iter().map(f)))
     };
     let hard = RecordBatch::try_from_iter([
