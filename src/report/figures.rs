@@ -602,7 +602,11 @@ pub fn card_chart(c: &Card) -> String {
     fig.x_axis = Axis::linear("east (arcsec)", -r, r).inverted();
     fig.y_axis = Axis::linear("north (arcsec)", -r, r * (1.0 + 0.22 * n));
     let where_is = |name: &str| placed.iter().find(|(n, _)| n == name).map(|p| p.1);
-    for l in &c.links {
+    // One probability label per joined pair of places: the highest.
+    let mut labelled: Vec<((f64, f64), (f64, f64))> = Vec::new();
+    let mut links: Vec<&super::cards::CardLink> = c.links.iter().collect();
+    links.sort_by(|a, b| b.probability.total_cmp(&a.probability));
+    for l in links {
         let (a, b) = if c.sources.is_empty() {
             (where_is(&l.object_a), where_is(&l.object_b))
         } else {
@@ -625,6 +629,10 @@ pub fn card_chart(c: &Card) -> String {
                     "rejected-pair"
                 },
             );
+            if labelled.contains(&(a, b)) || labelled.contains(&(b, a)) {
+                continue;
+            }
+            labelled.push((a, b));
             fig.text(
                 ((a.0 + b.0) / 2.0, (a.1 + b.1) / 2.0),
                 &format!("{:.2}", l.probability),
@@ -677,9 +685,9 @@ pub fn card_chart(c: &Card) -> String {
         &fig,
         &format!("fig-{}", c.anchor),
         if c.sources.is_empty() {
-            "Objects at the reference epoch with their 1σ position errors (circles); lines join objects with candidate pairs between their members (grey: chosen, red dashed: not chosen), labelled with the pair's probability. Sources are not placed: the outputs carry no source positions."
+            "Objects at the reference epoch with their 1σ position errors (circles); lines join objects with candidate pairs between their members (grey: chosen, red dashed: not chosen), labelled with the highest pair probability between them. Sources are not placed: the outputs carry no source positions."
         } else {
-            "Sources at the common epoch with their 1σ error ellipses, coloured by the object they ended in; lines are candidate pairs (grey: chosen, red dashed: not chosen) labelled with their probability."
+            "Sources at the common epoch with their 1σ error ellipses, coloured by the object they ended in; lines are candidate pairs (grey: chosen, red dashed: not chosen) labelled with their probability (the highest, where pairs coincide)."
         },
     )
 }

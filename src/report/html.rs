@@ -287,6 +287,7 @@ fn false_matches(h: &mut String, s: &Summary) {
         return;
     }
     h.push_str("<p class=\"note\">Chance candidates expected per catalog pair: the mean number of candidates found against copies of the second catalog shifted far beyond the tolerance, as a fraction of the real run's candidates (run.json <code>false_matches</code>). run.json gives one number per pair at the pair's own tolerance, so each pair is one point, not a curve against radius.</p>\n");
+    h.push_str("<p class=\"note\">The shifted copies count neighbours as if the sky around each source were empty; a survey cannot hold a second source within its resolution of a true counterpart, so where tolerances are below the resolution these numbers are an upper bound of the chance candidates.</p>\n");
     h.push_str(&figures::false_matches(&s.false_matches));
     table_start(
         h,
@@ -368,7 +369,7 @@ fn science(h: &mut String, s: &Summary) {
         Some(c) => {
             h.push_str(&figures::classes(c));
         }
-        None => h.push_str("<p>No science table (science.parquet with a <code>class</code> column) in this folder.</p>\n"),
+        None => h.push_str("<p>No science table (science.parquet with a <code>class</code> or <code>*_class</code> column) in this folder.</p>\n"),
     }
     h.push_str("</section>\n");
 }

@@ -177,7 +177,7 @@ pub struct Summary {
     pub bands: Vec<BandReport>,
     /// Object counts.
     pub objects: ObjectCounts,
-    /// Science classes (`class` column of science.parquet), when present.
+    /// Science classes (`class` or `*_class` column of science.parquet), when present.
     pub science_classes: Option<BTreeMap<String, u64>>,
 }
 
@@ -213,16 +213,7 @@ impl Summary {
             false_matches: false_matches(out),
             bands: bands(out)?,
             objects: objects(out)?,
-            science_classes: match &out.science {
-                Some(t) if t.has("class") => {
-                    let mut m = BTreeMap::new();
-                    for c in t.text("class")? {
-                        count(&mut m, c.unwrap_or_else(|| "(none)".into()));
-                    }
-                    Some(m)
-                }
-                _ => None,
-            },
+            science_classes: science_classes(out)?,
         })
     }
 
@@ -233,6 +224,27 @@ impl Summary {
     pub fn to_json(&self) -> Result<String> {
         serde_json::to_string_pretty(self).map_err(|e| crate::Error::Usage(e.to_string()))
     }
+}
+
+/// Objects per class of science.parquet: its column `class`, else the first
+/// column whose name ends in `_class`.
+fn science_classes(out: &OutputFolder) -> Result<Option<BTreeMap<String, u64>>> {
+    let Some(t) = &out.science else {
+        return Ok(None);
+    };
+    let names = t.names();
+    let Some(column) = names
+        .iter()
+        .find(|n| *n == "class")
+        .or_else(|| names.iter().find(|n| n.ends_with("_class")))
+    else {
+        return Ok(None);
+    };
+    let mut m = BTreeMap::new();
+    for c in t.text(column)? {
+        count(&mut m, c.unwrap_or_else(|| "(none)".into()));
+    }
+    Ok(Some(m))
 }
 
 fn u(v: &serde_json::Value) -> u64 {

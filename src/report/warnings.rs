@@ -190,7 +190,10 @@ pub fn summary_lines(w: &[Warning]) -> String {
 mod tests {
     use super::*;
     use crate::report::stats::norm_dist_histogram;
-    use crate::report::summary::{BandReport, FalseMatchReport, ObjectCounts, PairReport};
+    use crate::report::summary::{
+        BandReport, FalseMatchReport, InputReport, ObjectCounts, OffsetCloud, OffsetReport,
+        PairReport,
+    };
     use std::collections::BTreeMap;
 
     fn pair(median_d: f64, chosen: u64) -> PairReport {
@@ -280,5 +283,48 @@ mod tests {
             "warning  c x: 6 of 10 objects not covered, above 50 %\n"
         );
         assert!(warnings(&summary()).is_empty());
+    }
+
+    #[test]
+    fn offsets_left_and_rows_lost_warn() {
+        let cloud = |dra: f64| OffsetCloud {
+            n: 100,
+            dra_cosdec_arcsec: dra,
+            ddec_arcsec: 0.0,
+            width_ra_arcsec: 0.1,
+            width_dec_arcsec: 0.1,
+            points: Vec::new(),
+        };
+        let mut s = summary();
+        // Standard error 0.1 / 10 = 0.01: 3 of them is 0.03, a tenth of the scatter 0.01.
+        s.offsets = [0.029, 0.031]
+            .iter()
+            .map(|&d| OffsetReport {
+                catalog: format!("c{d}"),
+                reference: "r".into(),
+                initial: Some(cloud(d)),
+                residual: Some(cloud(d)),
+                applied_arcsec: (0.0, 0.0),
+            })
+            .collect();
+        s.inputs = vec![InputReport {
+            catalog: "c".into(),
+            file: "c.csv".into(),
+            sha256: String::new(),
+            rows_read: 1000,
+            rows_kept: 989,
+            rows_skipped: 11,
+            rejected_by_band: BTreeMap::from([("x".into(), 49), ("y".into(), 50)]),
+        }];
+        let w = warnings(&s);
+        let text: Vec<&str> = w.iter().map(|x| x.message.as_str()).collect();
+        assert_eq!(
+            text,
+            [
+                "c0.031 vs r: offset (+0.031, +0.000)\" left after correction, scatter (0.100, 0.100)\" over 100 pairs: beyond 3 standard errors and a tenth of the scatter",
+                "c: 11 of 1000 rows skipped, above 1 %",
+                "c y: 50 of 989 values rejected, above 5 %",
+            ]
+        );
     }
 }
