@@ -25,6 +25,7 @@ pub mod photometry;
 pub mod plan;
 pub mod plot;
 pub mod rng;
+pub mod science;
 pub mod sed;
 pub mod sky;
 

@@ -3,8 +3,10 @@
 
 pub mod bands;
 pub mod build;
+pub mod draw;
 pub mod make_demo;
 pub mod progress;
+pub mod science;
 pub mod vet;
 
 use clap::{Parser, Subcommand};
@@ -38,6 +40,11 @@ pub enum Command {
     MakeDemo(make_demo::MakeDemoArgs),
     /// List the band library: ids, systems, wavelengths, zero points and sources.
     Bands(bands::BandsArgs),
+    /// Spectral indices and classes, dereddening, photosphere excesses and colours of
+    /// a built output folder, into science.parquet.
+    Science(science::ScienceArgs),
+    /// Draw SEDs, colour–colour and colour–magnitude diagrams of a built output folder.
+    Draw(draw::DrawArgs),
 }
 
 /// Runs the parsed command line.
@@ -50,6 +57,8 @@ pub fn run(cli: Cli) -> Result<()> {
         Command::Vet(args) => vet::run(&args, cli.quiet),
         Command::Bands(args) => bands::run(&args),
         Command::MakeDemo(args) => make_demo::run(&args),
+        Command::Science(args) => science::run(&args),
+        Command::Draw(args) => draw::run(&args),
     }
 }
 
