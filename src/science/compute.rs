@@ -10,7 +10,7 @@ use std::path::Path;
 
 use super::alpha::{AlphaFit, SedPoint, YsoClass, alpha_bounds, fit_alpha};
 use super::colour::{Colour, colour, colour_from_mags};
-use super::photosphere::excess;
+use super::photosphere::{Photosphere, excess};
 use super::sed_table::{BandInfo, BandValue, FieldSeds};
 use super::settings::{AvSource, ScienceSettings};
 use crate::error::{Error, Result};
@@ -112,7 +112,8 @@ pub fn colour_pairs(seds: &FieldSeds, settings: &ScienceSettings) -> Result<Vec<
     Ok(out)
 }
 
-fn read_av_table(path: &Path) -> Result<HashMap<String, f64>> {
+/// Reads a CSV with columns `object_id` and `value_column` (numbers).
+fn read_object_table(path: &Path, value_column: &str) -> Result<HashMap<String, f64>> {
     let text = std::fs::read_to_string(path).map_err(|e| Error::io(path, e))?;
     let mut lines = text.lines();
     let header: Vec<&str> = lines
@@ -126,13 +127,13 @@ fn read_av_table(path: &Path) -> Result<HashMap<String, f64>> {
             Error::format(
                 path,
                 format!(
-                    "expected columns object_id and av_mag, found \"{}\"",
+                    "expected columns object_id and {value_column}, found \"{}\"",
                     header.join(",")
                 ),
             )
         })
     };
-    let (ci, ca) = (col("object_id")?, col("av_mag")?);
+    let (ci, ca) = (col("object_id")?, col(value_column)?);
     let mut out = HashMap::new();
     for (row, line) in lines.enumerate() {
         if line.trim().is_empty() {
@@ -143,8 +144,8 @@ fn read_av_table(path: &Path) -> Result<HashMap<String, f64>> {
         let v: f64 = text.parse().map_err(|_| Error::BadValue {
             path: path.to_path_buf(),
             row: row as u64 + 1,
-            column: "av_mag".into(),
-            expected: "a number of magnitudes".into(),
+            column: value_column.into(),
+            expected: "a number".into(),
             found: text.into(),
         })?;
         out.insert(f.get(ci).copied().unwrap_or("").to_string(), v);
@@ -165,6 +166,9 @@ fn alpha_of(
     let mut lim = Vec::new();
     for ((b, v), s) in bands.iter().zip(values).zip(scale) {
         if b.wavelength_um < lo || b.wavelength_um > hi {
+            continue;
+        }
+        if !settings.alpha_bands.is_empty() && !settings.alpha_bands.contains(&b.id) {
             continue;
         }
         let Some(s) = s else { continue };
@@ -218,7 +222,7 @@ pub fn compute(seds: &FieldSeds, settings: &ScienceSettings) -> Result<Science> 
         .map(|b| settings.law.a_over_av(b.wavelength_um))
         .collect();
     let av_table = match &settings.av {
-        AvSource::Table(p) => Some(read_av_table(p)?),
+        AvSource::Table(p) => Some(read_object_table(p, "av_mag")?),
         _ => None,
     };
     let av_colour = match &settings.av {
@@ -228,6 +232,10 @@ pub fn compute(seds: &FieldSeds, settings: &ScienceSettings) -> Result<Science> 
             intrinsic_mag,
         } => Some((need(blue)?, need(red)?, *intrinsic_mag)),
         _ => None,
+    };
+    let teff_table = match &settings.teff_table {
+        Some(p) => Some(read_object_table(p, "teff_k")?),
+        None => None,
     };
     let strom = ["strom_u", "strom_v", "strom_b", "strom_y"].map(|b| seds.band_index(b));
     let halpha = match &settings.halpha {
@@ -292,7 +300,15 @@ pub fn compute(seds: &FieldSeds, settings: &ScienceSettings) -> Result<Science> 
                 Some((f, e))
             }
         };
+        let photosphere = match (settings.photosphere, &teff_table) {
+            (Photosphere::Blackbody { teff_k }, Some(t)) => Some(Photosphere::Blackbody {
+                teff_k: t.get(id).copied().unwrap_or(teff_k),
+            }),
+            (p, _) => Some(p),
+        }
+        .filter(|p| !matches!(p, Photosphere::Blackbody { teff_k } if teff_k.is_nan() || *teff_k <= 0.0));
         if let Some(a) = anchor
+            && let Some(photosphere) = photosphere
             && let Some((fa, ea)) = flux_for(a)
         {
             let ab = &seds.bands[a];
@@ -300,7 +316,7 @@ pub fn compute(seds: &FieldSeds, settings: &ScienceSettings) -> Result<Science> 
                 if k == a {
                     continue;
                 }
-                let Some(phot) = settings.photosphere.flux_jy(
+                let Some(phot) = photosphere.flux_jy(
                     (ab.wavelength_um, ab.zero_point_jy, fa),
                     b.wavelength_um,
                     b.zero_point_jy,

@@ -5,9 +5,11 @@
 //! alpha_window_um = [2.0, 24.0]      # spectral-index window, µm
 //! alpha_min_points = 3               # fewer detections: α but no class
 //! alpha_weighting = "inverse_variance"   # or "equal"
+//! alpha_bands = ["tmass_ks", "irac_36"]  # optional: fit only these bands (default: all in the window)
 //! anchor = "tmass_ks"                # photosphere anchor band
 //! photosphere = "zero_vega_colour"   # or "rayleigh_jeans", "blackbody" (needs teff_k)
 //! teff_k = 4000.0
+//! teff_table = "teff.csv"            # blackbody T_eff per object: CSV with object_id, teff_k
 //! photosphere_error = 0.1            # relative model uncertainty of the photosphere
 //! excess_sigma = 3.0                 # χ threshold for an excess flag
 //! excess_floor_mag = 0.3             # and the excess must exceed this
@@ -74,10 +76,15 @@ pub struct ScienceSettings {
     pub alpha_min_points: usize,
     /// Fit weighting.
     pub alpha_weighting: Weighting,
+    /// Bands fitted for α; empty: every flux band in the window.
+    pub alpha_bands: Vec<String>,
     /// Photosphere anchor band id.
     pub anchor: String,
     /// Photosphere assumption.
     pub photosphere: Photosphere,
+    /// Per-object blackbody T_eff (CSV with object_id, teff_k); used with a
+    /// blackbody photosphere, objects not in it fall back to `teff_k` if given.
+    pub teff_table: Option<PathBuf>,
     /// Relative model uncertainty of the photosphere.
     pub photosphere_error: f64,
     /// χ threshold of an excess flag.
@@ -100,8 +107,10 @@ impl Default for ScienceSettings {
             alpha_window_um: (2.0, 24.0),
             alpha_min_points: 3,
             alpha_weighting: Weighting::InverseVariance,
+            alpha_bands: Vec::new(),
             anchor: "tmass_ks".to_string(),
             photosphere: Photosphere::ZeroVegaColour,
+            teff_table: None,
             photosphere_error: 0.1,
             excess_sigma: 3.0,
             excess_floor_mag: 0.3,
@@ -140,9 +149,11 @@ struct RawScience {
     alpha_window_um: Option<Spanned<Vec<f64>>>,
     alpha_min_points: Option<Spanned<i64>>,
     alpha_weighting: Option<Spanned<String>>,
+    alpha_bands: Option<Vec<String>>,
     anchor: Option<String>,
     photosphere: Option<Spanned<String>>,
     teff_k: Option<Spanned<f64>>,
+    teff_table: Option<String>,
     photosphere_error: Option<Spanned<f64>>,
     excess_sigma: Option<Spanned<f64>>,
     excess_floor_mag: Option<Spanned<f64>>,
@@ -210,6 +221,15 @@ impl ScienceSettings {
                 }
             };
         }
+        let base = path.parent().map(Path::to_path_buf).unwrap_or_default();
+        let resolve = |t: &str| {
+            let p = PathBuf::from(t);
+            if p.is_absolute() { p } else { base.join(p) }
+        };
+        if let Some(b) = raw.alpha_bands {
+            s.alpha_bands = b;
+        }
+        s.teff_table = raw.teff_table.as_deref().map(resolve);
         if let Some(a) = raw.anchor {
             s.anchor = a;
         }
@@ -244,12 +264,15 @@ impl ScienceSettings {
                 "rayleigh_jeans" => Photosphere::RayleighJeans,
                 "zero_vega_colour" => Photosphere::ZeroVegaColour,
                 "blackbody" => Photosphere::Blackbody {
-                    teff_k: teff.ok_or_else(|| {
-                        err(
-                            p.span(),
-                            "photosphere = \"blackbody\" needs teff_k (K)".to_string(),
-                        )
-                    })?,
+                    teff_k: teff
+                        .or(s.teff_table.as_ref().map(|_| f64::NAN))
+                        .ok_or_else(|| {
+                            err(
+                                p.span(),
+                                "photosphere = \"blackbody\" needs teff_k (K) or teff_table"
+                                    .to_string(),
+                            )
+                        })?,
                 },
                 other => {
                     return Err(err(
@@ -317,9 +340,7 @@ impl ScienceSettings {
             s.av = AvSource::Field(v);
         }
         if let Some(t) = &raw.av_table {
-            let p = PathBuf::from(t.get_ref());
-            let base = path.parent().map(Path::to_path_buf).unwrap_or_default();
-            s.av = AvSource::Table(if p.is_absolute() { p } else { base.join(p) });
+            s.av = AvSource::Table(resolve(t.get_ref()));
         }
         if let Some(c) = raw.av_from_colour {
             let c = c.into_inner();
@@ -370,9 +391,14 @@ impl ScienceSettings {
             (
                 "fluxloom.science.alpha".into(),
                 format!(
-                    "alpha = d log10(lambda F_lambda) / d log10 lambda, least squares over {}-{} um, detections only, weighting {}, class needs >= {} points spanning a factor >= 2 in wavelength",
+                    "alpha = d log10(lambda F_lambda) / d log10 lambda, least squares over {}-{} um ({}), detections only, weighting {}, class needs >= {} points spanning a factor >= 2 in wavelength",
                     self.alpha_window_um.0,
                     self.alpha_window_um.1,
+                    if self.alpha_bands.is_empty() {
+                        "every flux band".to_string()
+                    } else {
+                        format!("bands {}", self.alpha_bands.join(", "))
+                    },
                     self.alpha_weighting.as_str(),
                     self.alpha_min_points
                 ),
@@ -384,8 +410,12 @@ impl ScienceSettings {
             (
                 "fluxloom.science.photosphere".into(),
                 format!(
-                    "{}; anchor {}; relative model error {}",
+                    "{}{}; anchor {}; relative model error {}",
                     self.photosphere.describe(),
+                    self.teff_table.as_ref().map_or(String::new(), |t| format!(
+                        "; T_eff per object from {}",
+                        t.display()
+                    )),
                     self.anchor,
                     self.photosphere_error
                 ),
@@ -432,7 +462,7 @@ mod tests {
         let e = parse("[science]\nphotosphere = \"blackbody\"\n").unwrap_err();
         assert_eq!(
             e.to_string(),
-            "plan.toml:2: photosphere = \"blackbody\" needs teff_k (K)"
+            "plan.toml:2: photosphere = \"blackbody\" needs teff_k (K) or teff_table"
         );
         let e = parse("[science]\nav_mag = 1.0\nav_table = \"a.csv\"\n").unwrap_err();
         assert_eq!(
