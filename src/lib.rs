@@ -27,6 +27,7 @@ pub mod plan;
 pub mod plot;
 pub mod report;
 pub mod rng;
+pub mod science;
 pub mod sed;
 pub mod sky;
 

@@ -90,6 +90,8 @@ pub struct Plan {
     pub path: PathBuf,
     /// The plan text, kept for run.json and output metadata.
     pub text: String,
+    /// The `[science]` table: write science.parquet with these settings.
+    pub science: Option<crate::science::ScienceSettings>,
 }
 
 #[derive(Deserialize)]
@@ -101,6 +103,9 @@ struct RawPlan {
     catalog: Vec<Spanned<RawCatalog>>,
     output: RawOutput,
     bands: Option<String>,
+    /// Parsed on its own by `ScienceSettings::from_plan_text`, which names its lines.
+    #[serde(rename = "science")]
+    _science: Option<serde::de::IgnoredAny>,
 }
 
 #[derive(Deserialize)]
@@ -385,6 +390,7 @@ impl Plan {
             skip_bad_rows: raw.output.skip_bad_rows.unwrap_or(false),
             report: raw.output.report.unwrap_or(true),
             path: path.to_path_buf(),
+            science: crate::science::ScienceSettings::from_plan_text(&text, path)?,
             text,
         })
     }

@@ -226,6 +226,9 @@ pub fn build(plan: &Plan, out_dir: &Path, quiet: bool) -> Result<BuildOutcome> {
         sed_counts(&slots, &seds),
         outputs.clone(),
     );
+    if let Some(s) = &plan.science {
+        crate::science::write_into(&mut staging, s)?;
+    }
     let run_json = staging.path("run.json");
     std::fs::write(&run_json, record.to_json()? + "\n").map_err(|e| Error::io(&run_json, e))?;
     let report = plan

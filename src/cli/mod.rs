@@ -3,9 +3,11 @@
 
 pub mod bands;
 pub mod build;
+pub mod draw;
 pub mod make_demo;
 pub mod progress;
 pub mod report;
+pub mod science;
 pub mod vet;
 
 use clap::{Parser, Subcommand};
@@ -42,6 +44,11 @@ pub enum Command {
     Report(report::ReportArgs),
     /// List the band library: ids, systems, wavelengths, zero points and sources.
     Bands(bands::BandsArgs),
+    /// Spectral indices and classes, dereddening, photosphere excesses and colours of
+    /// a built output folder, into science.parquet.
+    Science(science::ScienceArgs),
+    /// Draw SEDs, colour–colour and colour–magnitude diagrams of a built output folder.
+    Draw(draw::DrawArgs),
 }
 
 /// Runs the parsed command line.
@@ -55,6 +62,8 @@ pub fn run(cli: Cli) -> Result<()> {
         Command::Report(args) => report::run(&args),
         Command::Bands(args) => bands::run(&args),
         Command::MakeDemo(args) => make_demo::run(&args),
+        Command::Science(args) => science::run(&args),
+        Command::Draw(args) => draw::run(&args),
     }
 }
 
