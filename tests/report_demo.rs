@@ -625,3 +625,47 @@ fn per_pair_offsets_and_source_positions_are_used_when_the_folder_has_them() {
     assert_eq!(card.matches("<ellipse class=\"error\"").count(), rows.len());
     assert!(html.contains("id=\"fig-off-ask-kos\""));
 }
+
+#[test]
+fn science_classes_are_counted_when_the_folder_has_a_science_table() {
+    let (out, _) = built();
+    let dir = tempfile::tempdir().unwrap();
+    let folder = dir.path();
+    for f in [
+        "objects.parquet",
+        "photometry.parquet",
+        "links.parquet",
+        "run.json",
+    ] {
+        fs::copy(out.join(f), folder.join(f)).unwrap();
+    }
+    for args in [vec!["science", "--quiet"], vec!["report"]] {
+        let o = Command::new(env!("CARGO_BIN_EXE_fluxloom"))
+            .args(&args)
+            .arg(folder)
+            .output()
+            .unwrap();
+        assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
+    }
+    let science = read_parquet(&folder.join("science.parquet"));
+    let column = science
+        .schema()
+        .fields()
+        .iter()
+        .map(|f| f.name().clone())
+        .find(|n| n == "class" || n.ends_with("_class"))
+        .unwrap();
+    let mut classes: BTreeMap<String, u64> = BTreeMap::new();
+    for c in text(&science, &column) {
+        *classes
+            .entry(if c.is_empty() { "(none)".into() } else { c })
+            .or_default() += 1;
+    }
+    let report = json(&folder.join("report.json"));
+    assert_eq!(
+        report["science_classes"],
+        serde_json::to_value(&classes).unwrap()
+    );
+    let html = fs::read_to_string(folder.join("report.html")).unwrap();
+    assert!(html.contains("id=\"fig-classes\""));
+}
