@@ -11,6 +11,8 @@
 //!   and VOTable, and the normalizer that turns a survey's own columns into a
 //!   calibrated source table (`flux_jy`, `flux_err_jy`, `ulim_jy`, status).
 //! - [`output`]: Parquet writing with atomic renames and self-describing metadata.
+//! - [`plot`]: SVG and PNG figures (axes, points, limits, lines, legends).
+//! - [`report`]: the match audit of an output folder, as one HTML page and JSON.
 //! - [`cli`]: one module per command of the `fluxloom` binary.
 #![warn(missing_docs)]
 
@@ -23,7 +25,10 @@ pub mod memory;
 pub mod output;
 pub mod photometry;
 pub mod plan;
+pub mod plot;
+pub mod report;
 pub mod rng;
+pub mod science;
 pub mod sed;
 pub mod sky;
 

@@ -108,10 +108,14 @@ pub struct Plan {
     pub tables: OutputTables,
     /// Skip unreadable rows (counted) instead of stopping.
     pub skip_bad_rows: bool,
+    /// Write the match audit (report.html, report.json) with the tables.
+    pub report: bool,
     /// The plan file.
     pub path: PathBuf,
     /// The plan text, kept for run.json and output metadata.
     pub text: String,
+    /// The `[science]` table: write science.parquet with these settings.
+    pub science: Option<crate::science::ScienceSettings>,
 }
 
 #[derive(Deserialize)]
@@ -123,6 +127,9 @@ struct RawPlan {
     catalog: Vec<Spanned<RawCatalog>>,
     output: RawOutput,
     bands: Option<String>,
+    /// Parsed on its own by `ScienceSettings::from_plan_text`, which names its lines.
+    #[serde(rename = "science")]
+    _science: Option<serde::de::IgnoredAny>,
 }
 
 #[derive(Deserialize)]
@@ -183,6 +190,7 @@ struct RawOutput {
     exports: Vec<Spanned<String>>,
     tables: Option<Vec<Spanned<String>>>,
     skip_bad_rows: Option<bool>,
+    report: Option<bool>,
 }
 
 impl Plan {
@@ -442,7 +450,9 @@ impl Plan {
             exports,
             tables,
             skip_bad_rows: raw.output.skip_bad_rows.unwrap_or(false),
+            report: raw.output.report.unwrap_or(true),
             path: path.to_path_buf(),
+            science: crate::science::ScienceSettings::from_plan_text(&text, path)?,
             text,
         })
     }

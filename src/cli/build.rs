@@ -374,12 +374,20 @@ pub fn build_with(plan: &Plan, out_dir: &Path, run: RunOptions) -> Result<BuildO
         sed_counts(&slots, &status_counts),
         outputs.clone(),
     );
+    if let Some(s) = &plan.science {
+        crate::science::write_into(&mut staging, s)?;
+    }
     let run_json = staging.path("run.json");
     std::fs::write(&run_json, record.to_json()? + "\n").map_err(|e| Error::io(&run_json, e))?;
+    let report = plan
+        .report
+        .then(|| crate::report::write_into(&mut staging))
+        .transpose()?;
     let files = staging.commit()?;
     bar.finish_and_clear();
     Ok(BuildOutcome {
-        summary: summary(plan, out_dir, &read, &record, &outputs),
+        summary: summary(plan, out_dir, &read, &record, &outputs)
+            + &crate::report::warnings::build_lines(report.as_deref()),
         files,
     })
 }

@@ -3,8 +3,11 @@
 
 pub mod bands;
 pub mod build;
+pub mod draw;
 pub mod make_demo;
 pub mod progress;
+pub mod report;
+pub mod science;
 pub mod vet;
 
 use clap::{Parser, Subcommand};
@@ -36,8 +39,16 @@ pub enum Command {
     Vet(vet::VetArgs),
     /// Write the invented demo field: six survey catalogs, their schemas, a plan and the truth.
     MakeDemo(make_demo::MakeDemoArgs),
+    /// Write the match audit of a build's output folder: report.html (figures,
+    /// match cards, warnings, provenance) and report.json (the same numbers).
+    Report(report::ReportArgs),
     /// List the band library: ids, systems, wavelengths, zero points and sources.
     Bands(bands::BandsArgs),
+    /// Spectral indices and classes, dereddening, photosphere excesses and colours of
+    /// a built output folder, into science.parquet.
+    Science(science::ScienceArgs),
+    /// Draw SEDs, colour–colour and colour–magnitude diagrams of a built output folder.
+    Draw(draw::DrawArgs),
 }
 
 /// Runs the parsed command line.
@@ -48,8 +59,11 @@ pub fn run(cli: Cli) -> Result<()> {
     match cli.command {
         Command::Build(args) => build::run(&args, cli.quiet),
         Command::Vet(args) => vet::run(&args, cli.quiet),
+        Command::Report(args) => report::run(&args),
         Command::Bands(args) => bands::run(&args),
         Command::MakeDemo(args) => make_demo::run(&args),
+        Command::Science(args) => science::run(&args),
+        Command::Draw(args) => draw::run(&args),
     }
 }
 

@@ -43,6 +43,11 @@ impl Staging {
         self.dir.join(name)
     }
 
+    /// The staging folder itself, where staged files can be read back before the commit.
+    pub fn dir(&self) -> &Path {
+        &self.dir
+    }
+
     /// The final path of output file `name`.
     pub fn final_path(&self, name: &str) -> PathBuf {
         self.target.join(name)

@@ -1,0 +1,414 @@
+//! Per-object science from the SEDs: α and class, A_V, dereddened fluxes,
+//! photosphere and excess, colours and indices.
+//!
+//! Everything observed stays as read; dereddened values go to their own fields.
+//! The photosphere and its excess use dereddened fluxes when the object has an
+//! A_V, observed fluxes otherwise (recorded per object in `excess_dereddened`).
+
+use std::collections::HashMap;
+use std::path::Path;
+
+use super::alpha::{AlphaFit, SedPoint, YsoClass, alpha_bounds, fit_alpha};
+use super::colour::{Colour, colour, colour_from_mags};
+use super::photosphere::{Photosphere, excess};
+use super::sed_table::{BandInfo, BandValue, FieldSeds};
+use super::settings::{AvSource, ScienceSettings};
+use crate::error::{Error, Result};
+
+/// α of one SED and what it allows.
+#[derive(Debug, Clone, Copy, PartialEq, Default)]
+pub struct AlphaResult {
+    /// The fit, when ≥ 2 detections lie in the window.
+    pub fit: Option<AlphaFit>,
+    /// Class, when the fit has enough points spanning a factor ≥ 2 in λ.
+    pub class: Option<YsoClass>,
+    /// Lower bound on α from a limit bluer than every detection.
+    pub lower_bound: Option<f64>,
+    /// Upper bound on α from a limit redder than every detection.
+    pub upper_bound: Option<f64>,
+}
+
+/// Per band results of one object.
+#[derive(Debug, Clone, Copy, PartialEq, Default)]
+pub struct BandScience {
+    /// Dereddened detected flux density, Jy.
+    pub dered_flux_jy: Option<f64>,
+    /// Its error, Jy (the observed error times the same factor).
+    pub dered_flux_err_jy: Option<f64>,
+    /// Photospheric flux density, Jy.
+    pub phot_jy: Option<f64>,
+    /// m_phot − m_obs, mag.
+    pub excess_mag: Option<f64>,
+    /// Excess significance χ.
+    pub excess_chi: Option<f64>,
+    /// Whether the excess passes the threshold (χ and floor).
+    pub flagged: bool,
+}
+
+/// Everything computed for one object.
+#[derive(Debug, Clone, PartialEq, Default)]
+pub struct ObjectScience {
+    /// Observed α.
+    pub alpha: AlphaResult,
+    /// A_V used for this object, mag.
+    pub av_mag: Option<f64>,
+    /// α of the dereddened fluxes.
+    pub alpha_dered: AlphaResult,
+    /// Per band, in the order of [`FieldSeds::bands`].
+    pub bands: Vec<BandScience>,
+    /// Whether the photosphere and excess used dereddened fluxes.
+    pub excess_dereddened: bool,
+    /// Colours in the order of [`Science::colours`], observed.
+    pub colours: Vec<Option<Colour>>,
+    /// The same colours dereddened (measured or bound, shifted by E = A_blue − A_red).
+    pub colours_dered: Vec<Option<f64>>,
+    /// Strömgren b−y, m1, c1, mag.
+    pub stromgren: Option<(f64, f64, f64)>,
+    /// r − Hα and r − i with errors: ((value, err), (value, err)).
+    pub halpha: (Option<Colour>, Option<Colour>),
+}
+
+/// The science of a field.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Science {
+    /// The settings used.
+    pub settings: ScienceSettings,
+    /// Colour band pairs, ordered (bluer, redder) as band indices.
+    pub colours: Vec<(usize, usize)>,
+    /// A/A_V per band (`None` where the law is undefined).
+    pub a_over_av: Vec<Option<f64>>,
+    /// One entry per object, in the order of [`FieldSeds::object_id`].
+    pub objects: Vec<ObjectScience>,
+}
+
+/// The colour pairs of the settings as ordered band indices; neighbouring bands
+/// by wavelength when none are given.
+///
+/// # Errors
+/// A usage error naming a band the field does not have.
+pub fn colour_pairs(seds: &FieldSeds, settings: &ScienceSettings) -> Result<Vec<(usize, usize)>> {
+    let idx = |id: &str| {
+        seds.band_index(id).ok_or_else(|| {
+            Error::Usage(format!(
+                "{}: no band \"{id}\" (the field has: {})",
+                seds.path.display(),
+                seds.bands
+                    .iter()
+                    .map(|b| b.id.as_str())
+                    .collect::<Vec<_>>()
+                    .join(", ")
+            ))
+        })
+    };
+    if settings.colours.is_empty() {
+        return Ok((1..seds.bands.len()).map(|i| (i - 1, i)).collect());
+    }
+    let mut out = Vec::new();
+    for (a, b) in &settings.colours {
+        let (i, j) = (idx(a)?, idx(b)?);
+        // Bands are sorted by wavelength: the lower index is the bluer band.
+        out.push((i.min(j), i.max(j)));
+    }
+    Ok(out)
+}
+
+/// Reads a CSV with columns `object_id` and `value_column` (numbers).
+fn read_object_table(path: &Path, value_column: &str) -> Result<HashMap<String, f64>> {
+    let text = std::fs::read_to_string(path).map_err(|e| Error::io(path, e))?;
+    let mut lines = text.lines();
+    let header: Vec<&str> = lines
+        .next()
+        .unwrap_or("")
+        .split(',')
+        .map(str::trim)
+        .collect();
+    let col = |name: &str| {
+        header.iter().position(|h| *h == name).ok_or_else(|| {
+            Error::format(
+                path,
+                format!(
+                    "expected columns object_id and {value_column}, found \"{}\"",
+                    header.join(",")
+                ),
+            )
+        })
+    };
+    let (ci, ca) = (col("object_id")?, col(value_column)?);
+    let mut out = HashMap::new();
+    for (row, line) in lines.enumerate() {
+        if line.trim().is_empty() {
+            continue;
+        }
+        let f: Vec<&str> = line.split(',').map(str::trim).collect();
+        let text = f.get(ca).copied().unwrap_or("");
+        let v: f64 = text.parse().map_err(|_| Error::BadValue {
+            path: path.to_path_buf(),
+            row: row as u64 + 1,
+            column: value_column.into(),
+            expected: "a number".into(),
+            found: text.into(),
+        })?;
+        out.insert(f.get(ci).copied().unwrap_or("").to_string(), v);
+    }
+    Ok(out)
+}
+
+/// α from detected flux points of `bands`/`values` in the window, with `scale`
+/// per band applied to fluxes and errors (1 for observed values).
+fn alpha_of(
+    bands: &[BandInfo],
+    values: &[BandValue],
+    scale: &[Option<f64>],
+    settings: &ScienceSettings,
+) -> AlphaResult {
+    let (lo, hi) = settings.alpha_window_um;
+    let mut det = Vec::new();
+    let mut lim = Vec::new();
+    for ((b, v), s) in bands.iter().zip(values).zip(scale) {
+        if b.wavelength_um < lo || b.wavelength_um > hi {
+            continue;
+        }
+        if !settings.alpha_bands.is_empty() && !settings.alpha_bands.contains(&b.id) {
+            continue;
+        }
+        let Some(s) = s else { continue };
+        if let Some(f) = v.flux_jy.filter(|f| *f > 0.0) {
+            det.push(SedPoint {
+                wavelength_um: b.wavelength_um,
+                flux_jy: f * s,
+                flux_err_jy: v.flux_err_jy.map(|e| e * s),
+            });
+        } else if let Some(u) = v.ulim_jy.filter(|u| *u > 0.0) {
+            lim.push((b.wavelength_um, u * s));
+        }
+    }
+    let fit = fit_alpha(&det, settings.alpha_weighting);
+    let span_ok = {
+        let l = det.iter().map(|p| p.wavelength_um);
+        let (mn, mx) = l.fold((f64::INFINITY, 0.0f64), |(a, b), x| (a.min(x), b.max(x)));
+        mx >= 2.0 * mn
+    };
+    let class = fit
+        .filter(|f| f.n_points >= settings.alpha_min_points && span_ok)
+        .and_then(|f| YsoClass::greene_1994(f.alpha));
+    let (lower_bound, upper_bound) = alpha_bounds(&det, &lim);
+    AlphaResult {
+        fit,
+        class,
+        lower_bound,
+        upper_bound,
+    }
+}
+
+/// Computes the science of `seds` with `settings`.
+///
+/// # Errors
+/// A usage error for a band named in the settings that the field lacks; I/O or
+/// format errors of an A_V table.
+pub fn compute(seds: &FieldSeds, settings: &ScienceSettings) -> Result<Science> {
+    let colours = colour_pairs(seds, settings)?;
+    let need = |id: &str| -> Result<usize> {
+        seds.band_index(id).ok_or_else(|| {
+            Error::Usage(format!(
+                "{}: no band \"{id}\" for the science settings",
+                seds.path.display()
+            ))
+        })
+    };
+    let anchor = seds.band_index(&settings.anchor);
+    let a_over_av: Vec<Option<f64>> = seds
+        .bands
+        .iter()
+        .map(|b| settings.law.a_over_av(b.wavelength_um))
+        .collect();
+    let av_table = match &settings.av {
+        AvSource::Table(p) => Some(read_object_table(p, "av_mag")?),
+        _ => None,
+    };
+    let av_colour = match &settings.av {
+        AvSource::Colour {
+            blue,
+            red,
+            intrinsic_mag,
+        } => Some((need(blue)?, need(red)?, *intrinsic_mag)),
+        _ => None,
+    };
+    let teff_table = match &settings.teff_table {
+        Some(p) => Some(read_object_table(p, "teff_k")?),
+        None => None,
+    };
+    let strom = ["strom_u", "strom_v", "strom_b", "strom_y"].map(|b| seds.band_index(b));
+    let halpha = match &settings.halpha {
+        Some(h) => Some((need(&h.r)?, need(&h.halpha)?, need(&h.i)?)),
+        None => None,
+    };
+    let mut objects = Vec::with_capacity(seds.object_id.len());
+    for (id, values) in seds.object_id.iter().zip(&seds.values) {
+        let ones: Vec<Option<f64>> = vec![Some(1.0); values.len()];
+        let alpha = alpha_of(&seds.bands, values, &ones, settings);
+        let obs_colours: Vec<Option<Colour>> = colours
+            .iter()
+            .map(|&(i, j)| colour([&seds.bands[i], &seds.bands[j]], [&values[i], &values[j]]))
+            .collect();
+        let av_mag = match &settings.av {
+            AvSource::None => None,
+            AvSource::Field(v) => Some(*v),
+            AvSource::Table(_) => av_table.as_ref().and_then(|t| t.get(id).copied()),
+            AvSource::Colour { .. } => {
+                let (b, r, c0) = av_colour.unwrap();
+                let c = colour([&seds.bands[b], &seds.bands[r]], [&values[b], &values[r]])
+                    .filter(|c| c.kind == super::colour::ColourKind::Measured);
+                match (c, a_over_av[b], a_over_av[r]) {
+                    (Some(c), Some(kb), Some(kr)) if kb > kr => {
+                        Some(((c.value_mag - c0) / (kb - kr)).max(0.0))
+                    }
+                    _ => None,
+                }
+            }
+        };
+        let scale: Vec<Option<f64>> = a_over_av
+            .iter()
+            .map(|k| match (av_mag, k) {
+                (Some(av), Some(k)) => Some(10f64.powf(0.4 * av * k)),
+                _ => None,
+            })
+            .collect();
+        let alpha_dered = if av_mag.is_some() {
+            alpha_of(&seds.bands, values, &scale, settings)
+        } else {
+            AlphaResult::default()
+        };
+        let mut bands: Vec<BandScience> = values
+            .iter()
+            .zip(&scale)
+            .map(|(v, s)| BandScience {
+                dered_flux_jy: s.and_then(|s| v.flux_jy.map(|f| f * s)),
+                dered_flux_err_jy: s.and_then(|s| v.flux_err_jy.map(|e| e * s)),
+                ..BandScience::default()
+            })
+            .collect();
+        // Photosphere and excess.
+        let excess_dereddened = av_mag.is_some();
+        let flux_for = |k: usize| -> Option<(f64, f64)> {
+            let v = &values[k];
+            let f = v.flux_jy.filter(|f| *f > 0.0)?;
+            let e = v.flux_err_jy.unwrap_or(0.0);
+            if excess_dereddened {
+                let s = scale[k]?;
+                Some((f * s, e * s))
+            } else {
+                Some((f, e))
+            }
+        };
+        let photosphere = match (settings.photosphere, &teff_table) {
+            (Photosphere::Blackbody { teff_k }, Some(t)) => Some(Photosphere::Blackbody {
+                teff_k: t.get(id).copied().unwrap_or(teff_k),
+            }),
+            (p, _) => Some(p),
+        }
+        .filter(|p| !matches!(p, Photosphere::Blackbody { teff_k } if teff_k.is_nan() || *teff_k <= 0.0));
+        if let Some(a) = anchor
+            && let Some(photosphere) = photosphere
+            && let Some((fa, ea)) = flux_for(a)
+        {
+            let ab = &seds.bands[a];
+            for (k, b) in seds.bands.iter().enumerate() {
+                if k == a {
+                    continue;
+                }
+                let Some(phot) = photosphere.flux_jy(
+                    (ab.wavelength_um, ab.zero_point_jy, fa),
+                    b.wavelength_um,
+                    b.zero_point_jy,
+                    b.system == "vega",
+                ) else {
+                    continue;
+                };
+                bands[k].phot_jy = Some(phot);
+                let phot_err = phot * (ea / fa).hypot(settings.photosphere_error);
+                if let Some((f, e)) = flux_for(k)
+                    && let Some(x) = excess(f, e, phot, phot_err)
+                {
+                    bands[k].excess_mag = Some(x.excess_mag);
+                    bands[k].excess_chi = Some(x.chi);
+                    bands[k].flagged =
+                        x.chi >= settings.excess_sigma && x.excess_mag >= settings.excess_floor_mag;
+                }
+            }
+        }
+        let colours_dered = colours
+            .iter()
+            .zip(&obs_colours)
+            .map(
+                |(&(i, j), c)| match (c, av_mag, a_over_av[i], a_over_av[j]) {
+                    (Some(c), Some(av), Some(ki), Some(kj)) => Some(c.value_mag - av * (ki - kj)),
+                    _ => None,
+                },
+            )
+            .collect();
+        let stromgren = match strom {
+            [Some(u), Some(v), Some(b), Some(y)] => {
+                let m = |k: usize| values[k].detected_mag(&seds.bands[k]).map(|m| m.0);
+                match (m(u), m(v), m(b), m(y)) {
+                    (Some(u), Some(v), Some(b), Some(y)) => {
+                        let idx = crate::photometry::stromgren::indices(u, v, b, y);
+                        Some((idx.b_minus_y, idx.m1, idx.c1))
+                    }
+                    _ => None,
+                }
+            }
+            _ => None,
+        };
+        let halpha_result = match halpha {
+            Some((r, h, i)) => {
+                let d = |k: usize| values[k].detected_mag(&seds.bands[k]);
+                let l = |k: usize| values[k].limit_mag(&seds.bands[k]);
+                // r − Hα is "r minus the narrow band", not ordered by wavelength.
+                (
+                    colour_from_mags(d(r), l(r), d(h), l(h)),
+                    colour_from_mags(d(r), l(r), d(i), l(i)),
+                )
+            }
+            None => (None, None),
+        };
+        objects.push(ObjectScience {
+            alpha,
+            av_mag,
+            alpha_dered,
+            bands,
+            excess_dereddened,
+            colours: obs_colours,
+            colours_dered,
+            stromgren,
+            halpha: halpha_result,
+        });
+    }
+    Ok(Science {
+        settings: settings.clone(),
+        colours,
+        a_over_av,
+        objects,
+    })
+}
+
+impl ObjectScience {
+    /// Whether any band redder than the anchor (`anchor_wavelength_um`) is flagged.
+    pub fn ir_excess(&self, bands: &[BandInfo], anchor_wavelength_um: f64) -> bool {
+        self.flagged_bands(bands, |l| l > anchor_wavelength_um)
+            .next()
+            .is_some()
+    }
+
+    /// Bands whose excess is flagged and whose wavelength passes `keep`.
+    pub fn flagged_bands<'a>(
+        &'a self,
+        bands: &'a [BandInfo],
+        keep: impl Fn(f64) -> bool + 'a,
+    ) -> impl Iterator<Item = &'a str> + 'a {
+        bands
+            .iter()
+            .zip(&self.bands)
+            .filter(move |(b, s)| s.flagged && keep(b.wavelength_um))
+            .map(|(b, _)| b.id.as_str())
+    }
+}

@@ -1,0 +1,370 @@
+//! Figures of the science layer, drawn with [`crate::plot`].
+//!
+//! - [`sed_figure`]: one object's SED, log λF_λ against log λ, detections with
+//!   error bars, upper limits as downward arrows, the photosphere and the α fit
+//!   with its value and class.
+//! - [`colour_colour_figure`] and [`colour_magnitude_figure`]: the field, blue
+//!   to the left, magnitudes bright at the top, points styled by class and
+//!   excess flag, the reddening vector of the law for a chosen A_V, a reference
+//!   locus when given, and on a colour–magnitude diagram the detection limits of
+//!   the bands: the survey depth, recognised as the upper limit shared by the
+//!   band's non-detections (written by `build` when the schema gives a depth);
+//!   without one no limit line is drawn.
+
+use super::alpha::YsoClass;
+use super::compute::{ObjectScience, Science};
+use super::sed_table::FieldSeds;
+use crate::photometry::flux::nu_fnu_cgs;
+use crate::plot::{Anchor, Axis, Colour, Figure, LegendKey, LineStyle, Marker, PointStyle, Scale};
+
+/// Styles of the five groups points are drawn in, with their legend text.
+fn group_style(o: &ObjectScience, ir_excess: bool) -> (usize, PointStyle, &'static str) {
+    let p = Colour::PALETTE;
+    match o.alpha.class {
+        Some(YsoClass::ClassI) => (0, PointStyle::filled(Marker::Triangle, p[1]), "Class I"),
+        Some(YsoClass::Flat) => (1, PointStyle::filled(Marker::Diamond, p[3]), "flat"),
+        Some(YsoClass::ClassII) => (2, PointStyle::filled(Marker::Circle, p[0]), "Class II"),
+        Some(YsoClass::ClassIII) if ir_excess => (
+            3,
+            PointStyle::open(Marker::Square, p[2]),
+            "Class III, IR excess",
+        ),
+        Some(YsoClass::ClassIII) => (
+            4,
+            PointStyle::open(Marker::Circle, Colour::GREY),
+            "Class III",
+        ),
+        None if ir_excess => (
+            5,
+            PointStyle::open(Marker::Square, p[4]),
+            "unclassified, IR excess",
+        ),
+        None => (
+            6,
+            PointStyle::open(Marker::Circle, Colour(170, 170, 170)),
+            "unclassified",
+        ),
+    }
+}
+
+/// The class names used as SVG classes of the points of each group.
+const GROUP_CLASS: [&str; 7] = [
+    "point class-i",
+    "point flat",
+    "point class-ii",
+    "point class-iii-excess",
+    "point class-iii",
+    "point unclassified-excess",
+    "point unclassified",
+];
+
+/// SED of object `k`.
+pub fn sed_figure(seds: &FieldSeds, sci: &Science, k: usize) -> Figure {
+    let o = &sci.objects[k];
+    let values = &seds.values[k];
+    let mut fig = Figure::new(640.0, 480.0);
+    fig.title = format!("SED of {}", seds.object_id[k]);
+    let mut det = Vec::new();
+    let mut bars = Vec::new();
+    let mut lims = Vec::new();
+    let mut ys = Vec::new();
+    let mut xs = Vec::new();
+    for (b, v) in seds.bands.iter().zip(values) {
+        let l = b.wavelength_um;
+        if let Some(f) = v.flux_jy.filter(|f| *f > 0.0) {
+            let y = nu_fnu_cgs(f, l);
+            det.push((l, y));
+            if let Some(e) = v.flux_err_jy.filter(|e| *e > 0.0) {
+                let lo = nu_fnu_cgs((f - e).max(f * 1e-3), l);
+                bars.push((l, lo, nu_fnu_cgs(f + e, l)));
+            }
+            ys.push(y);
+            xs.push(l);
+        } else if let Some(u) = v.ulim_jy.filter(|u| *u > 0.0) {
+            let y = nu_fnu_cgs(u, l);
+            lims.push((l, y));
+            ys.push(y);
+            ys.push(y / 3.0);
+            xs.push(l);
+        }
+    }
+    let phot: Vec<(f64, f64)> = seds
+        .bands
+        .iter()
+        .zip(&o.bands)
+        .filter_map(|(b, s)| {
+            s.phot_jy
+                .map(|p| (b.wavelength_um, nu_fnu_cgs(p, b.wavelength_um)))
+        })
+        .collect();
+    xs.extend(seds.bands.iter().map(|b| b.wavelength_um));
+    fig.x_axis = Axis::covering("wavelength λ (µm)", Scale::Log10, &xs, 0.05);
+    fig.y_axis = Axis::covering("λF_λ (erg s⁻¹ cm⁻²)", Scale::Log10, &ys, 0.08);
+    let black = PointStyle::filled(Marker::Circle, Colour::BLACK);
+    if !phot.is_empty() {
+        let style = LineStyle::dashed(Colour::GREY);
+        fig.polyline(&phot, &style, "photosphere");
+        fig.legend_entry(
+            &format!("photosphere ({})", sci.settings.anchor),
+            LegendKey::Line(style),
+        );
+    }
+    fig.error_bars(&bars, Colour::BLACK, "error-bar");
+    fig.points(&det, &black, "detection");
+    fig.upper_limits(&lims, Colour::BLACK, "upper-limit");
+    fig.legend_entry("detection", LegendKey::Point(black));
+    if !lims.is_empty() {
+        fig.legend_entry("upper limit", LegendKey::Limit(Colour::BLACK));
+    }
+    let (lo, hi) = sci.settings.alpha_window_um;
+    let note = match o.alpha.fit {
+        Some(fit) => {
+            let style = LineStyle::solid(Colour::RED);
+            let grid: Vec<(f64, f64)> = (0..=20)
+                .map(|i| {
+                    let l = lo * (hi / lo).powf(i as f64 / 20.0);
+                    (l, fit.nu_fnu_cgs_at(l))
+                })
+                .collect();
+            fig.polyline(&grid, &style, "alpha-fit");
+            fig.legend_entry(&format!("α fit {lo}–{hi} µm"), LegendKey::Line(style));
+            let err = fit
+                .alpha_err
+                .map_or(String::new(), |e| format!(" ± {e:.2}"));
+            let class = o.alpha.class.map_or("unclassified".to_string(), |c| {
+                match c {
+                    YsoClass::ClassI => "Class I",
+                    YsoClass::Flat => "flat",
+                    YsoClass::ClassII => "Class II",
+                    YsoClass::ClassIII => "Class III",
+                }
+                .to_string()
+            });
+            format!(
+                "α = {:.2}{err} ({class}, {} points)",
+                fit.alpha, fit.n_points
+            )
+            .replace('-', "\u{2212}")
+        }
+        None => "α: fewer than two detections in the window".to_string(),
+    };
+    fig.note((0.03, 0.07), &note, Anchor::Start, "alpha-value");
+    fig
+}
+
+/// Band indices of a colour "a-b", ordered (bluer, redder); `None` if unknown.
+pub fn parse_colour(seds: &FieldSeds, text: &str) -> Option<(usize, usize)> {
+    let (a, b) = text.split_once('-')?;
+    let (i, j) = (seds.band_index(a.trim())?, seds.band_index(b.trim())?);
+    Some((i.min(j), i.max(j)))
+}
+
+fn colour_label(seds: &FieldSeds, (i, j): (usize, usize)) -> String {
+    format!("{} − {} (mag)", seds.bands[i].name, seds.bands[j].name)
+}
+
+/// Measured colour of object `k` (both bands detected).
+fn measured(seds: &FieldSeds, k: usize, (i, j): (usize, usize)) -> Option<f64> {
+    let v = &seds.values[k];
+    let (mi, _) = v[i].detected_mag(&seds.bands[i])?;
+    let (mj, _) = v[j].detected_mag(&seds.bands[j])?;
+    Some(mi - mj)
+}
+
+fn ir_flag(seds: &FieldSeds, sci: &Science, o: &ObjectScience) -> bool {
+    seds.band_index(&sci.settings.anchor)
+        .is_some_and(|a| o.ir_excess(&seds.bands, seds.bands[a].wavelength_um))
+}
+
+/// One group of points: style, legend text, positions.
+type Group = (PointStyle, &'static str, Vec<(f64, f64)>);
+
+/// Plots points grouped by class; returns nothing (marks added to `fig`).
+fn grouped_points(fig: &mut Figure, seds: &FieldSeds, sci: &Science, xy: &[(usize, f64, f64)]) {
+    let mut groups: Vec<Group> = Vec::new();
+    let mut index = [usize::MAX; 7];
+    for &(k, x, y) in xy {
+        let o = &sci.objects[k];
+        let (g, style, label) = group_style(o, ir_flag(seds, sci, o));
+        if index[g] == usize::MAX {
+            index[g] = groups.len();
+            groups.push((style, label, Vec::new()));
+        }
+        groups[index[g]].2.push((x, y));
+    }
+    // Faint groups first, so classified objects are drawn on top.
+    let mut order: Vec<usize> = (0..7).filter(|g| index[*g] != usize::MAX).collect();
+    order.reverse();
+    for g in order {
+        let (style, label, pts) = &groups[index[g]];
+        fig.points(pts, style, GROUP_CLASS[g]);
+        fig.legend_entry(
+            &format!("{label} ({})", pts.len()),
+            LegendKey::Point(*style),
+        );
+    }
+}
+
+/// The reddening of colour (i, j) per magnitude of A_V: A_i/A_V − A_j/A_V.
+fn reddening(sci: &Science, (i, j): (usize, usize)) -> Option<f64> {
+    Some(sci.a_over_av[i]? - sci.a_over_av[j]?)
+}
+
+fn add_vector(fig: &mut Figure, sci: &Science, dx: Option<f64>, dy: Option<f64>, av_mag: f64) {
+    let (Some(dx), Some(dy)) = (dx, dy) else {
+        return;
+    };
+    let (x0, y0) = (
+        fig.x_axis.min + 0.08 * (fig.x_axis.max - fig.x_axis.min),
+        fig.y_axis.min + 0.12 * (fig.y_axis.max - fig.y_axis.min),
+    );
+    let style = LineStyle::solid(Colour::RED);
+    fig.arrow(
+        (x0, y0),
+        (x0 + av_mag * dx, y0 + av_mag * dy),
+        &style,
+        "reddening-vector",
+    );
+    let law = match sci.settings.law.infrared {
+        super::extinction::InfraredLaw::Xue16 => "Xue et al. 2016",
+        super::extinction::InfraredLaw::Indebetouw05 => "Indebetouw et al. 2005",
+    };
+    let optical = match sci.settings.law.optical {
+        super::extinction::OpticalLaw::Ccm89 => "CCM89",
+        super::extinction::OpticalLaw::ODonnell94 => "O'Donnell 1994",
+    };
+    fig.legend_entry(
+        &format!("A_V = {av_mag} mag ({optical} / {law})"),
+        LegendKey::Line(style),
+    );
+}
+
+/// A reference locus: a polyline of (x, y) in the diagram's units.
+pub type Locus = Vec<(f64, f64)>;
+
+/// Colour–colour diagram: `y` against `x`.
+pub fn colour_colour_figure(
+    seds: &FieldSeds,
+    sci: &Science,
+    y: (usize, usize),
+    x: (usize, usize),
+    av_mag: f64,
+    locus: Option<&Locus>,
+) -> Figure {
+    let mut fig = Figure::new(640.0, 560.0);
+    let pts: Vec<(usize, f64, f64)> = (0..seds.object_id.len())
+        .filter_map(|k| Some((k, measured(seds, k, x)?, measured(seds, k, y)?)))
+        .collect();
+    fig.title = format!("{} objects with both colours", pts.len());
+    let mut xs: Vec<f64> = pts.iter().map(|p| p.1).collect();
+    let mut ys: Vec<f64> = pts.iter().map(|p| p.2).collect();
+    if let Some(l) = locus {
+        xs.extend(l.iter().map(|p| p.0));
+        ys.extend(l.iter().map(|p| p.1));
+    }
+    fig.x_axis = Axis::covering(&colour_label(seds, x), Scale::Linear, &xs, 0.06);
+    fig.y_axis = Axis::covering(&colour_label(seds, y), Scale::Linear, &ys, 0.06);
+    if let Some(l) = locus {
+        let style = LineStyle::solid(Colour::GREY);
+        fig.polyline(l, &style, "locus");
+        fig.legend_entry("reference locus", LegendKey::Line(style));
+    }
+    grouped_points(&mut fig, seds, sci, &pts);
+    add_vector(&mut fig, sci, reddening(sci, x), reddening(sci, y), av_mag);
+    fig
+}
+
+/// The survey depth of band `b` as a magnitude: the upper limit most often
+/// repeated exactly (at least 3 times), which is how `build` marks a catalog's
+/// depth for its non-detections.
+pub fn depth_mag(seds: &FieldSeds, b: usize) -> Option<f64> {
+    let mut counts: Vec<(u64, usize, f64)> = Vec::new();
+    for v in &seds.values {
+        if v[b].flux_jy.is_some() || v[b].mag.is_some() {
+            continue;
+        }
+        if let Some(m) = v[b].limit_mag(&seds.bands[b]) {
+            let key = m.to_bits();
+            match counts.iter_mut().find(|c| c.0 == key) {
+                Some(c) => c.1 += 1,
+                None => counts.push((key, 1, m)),
+            }
+        }
+    }
+    counts
+        .into_iter()
+        .filter(|c| c.1 >= 3)
+        .max_by_key(|c| c.1)
+        .map(|c| c.2)
+}
+
+/// Colour–magnitude diagram: band `m` (bright at the top) against colour `x`.
+pub fn colour_magnitude_figure(
+    seds: &FieldSeds,
+    sci: &Science,
+    x: (usize, usize),
+    m: usize,
+    av_mag: f64,
+    locus: Option<&Locus>,
+) -> Figure {
+    let mut fig = Figure::new(560.0, 640.0);
+    let pts: Vec<(usize, f64, f64)> = (0..seds.object_id.len())
+        .filter_map(|k| {
+            let (mag, _) = seds.values[k][m].detected_mag(&seds.bands[m])?;
+            Some((k, measured(seds, k, x)?, mag))
+        })
+        .collect();
+    fig.title = format!("{} objects", pts.len());
+    let mut xs: Vec<f64> = pts.iter().map(|p| p.1).collect();
+    let mut ys: Vec<f64> = pts.iter().map(|p| p.2).collect();
+    let depths: Vec<(usize, f64)> = [x.0, x.1, m]
+        .into_iter()
+        .filter_map(|b| depth_mag(seds, b).map(|d| (b, d)))
+        .collect();
+    ys.extend(depths.iter().filter(|d| d.0 == m).map(|d| d.1));
+    if let Some(l) = locus {
+        xs.extend(l.iter().map(|p| p.0));
+        ys.extend(l.iter().map(|p| p.1));
+    }
+    let band = &seds.bands[m];
+    fig.x_axis = Axis::covering(&colour_label(seds, x), Scale::Linear, &xs, 0.06);
+    fig.y_axis = Axis::covering(
+        &format!("{} ({} mag)", band.name, band.system),
+        Scale::Linear,
+        &ys,
+        0.05,
+    )
+    .inverted();
+    if let Some(l) = locus {
+        let style = LineStyle::solid(Colour::GREY);
+        fig.polyline(l, &style, "locus");
+        fig.legend_entry("reference locus", LegendKey::Line(style));
+    }
+    let (x_lo, x_hi) = (fig.x_axis.min, fig.x_axis.max);
+    for (b, d) in &depths {
+        let style = LineStyle::dashed(Colour::BLUE);
+        // y = m. Depth in m: y = d. Depth in the other colour band: if m is the
+        // colour's red band, m_blue = d gives y = d − x; if m is its blue band,
+        // m_red = d gives y = d + x; a third band's depth is not a line here.
+        let line = if *b == m {
+            Some(vec![(x_lo, *d), (x_hi, *d)])
+        } else if m == x.1 && *b == x.0 {
+            Some(vec![(x_lo, d - x_lo), (x_hi, d - x_hi)])
+        } else if m == x.0 && *b == x.1 {
+            Some(vec![(x_lo, d + x_lo), (x_hi, d + x_hi)])
+        } else {
+            None
+        };
+        if let Some(line) = line {
+            fig.polyline(&line, &style, "detection-limit");
+            fig.legend_entry(
+                &format!("{} depth {d:.2} mag", seds.bands[*b].name),
+                LegendKey::Line(style),
+            );
+        }
+    }
+    grouped_points(&mut fig, seds, sci, &pts);
+    let dy = sci.a_over_av[m];
+    add_vector(&mut fig, sci, reddening(sci, x), dy, av_mag);
+    fig
+}

@@ -1,0 +1,308 @@
+//! The science layer on the demo field, against the truth the demo generator
+//! wrote (`demo_catalogs/fl1/truth_*.csv`), and the figures it draws.
+
+use std::collections::{HashMap, HashSet};
+use std::fs;
+use std::path::{Path, PathBuf};
+use std::process::Command;
+
+use arrow::array::{Array, AsArray, RecordBatch};
+use arrow::datatypes::{DataType, Float64Type};
+use parquet::arrow::arrow_reader::ParquetRecordBatchReaderBuilder;
+
+fn repo() -> PathBuf {
+    PathBuf::from(env!("CARGO_MANIFEST_DIR"))
+}
+
+fn demo() -> PathBuf {
+    repo().join("demo_catalogs/fl1")
+}
+
+fn fluxloom(args: &[&str]) -> (i32, String, String) {
+    let o = Command::new(env!("CARGO_BIN_EXE_fluxloom"))
+        .args(args)
+        .output()
+        .unwrap();
+    (
+        o.status.code().unwrap_or(-1),
+        String::from_utf8_lossy(&o.stdout).into_owned(),
+        String::from_utf8_lossy(&o.stderr).into_owned(),
+    )
+}
+
+/// The demo field built once per test binary, with `fluxloom science` run on it.
+fn built() -> &'static PathBuf {
+    static BUILT: std::sync::OnceLock<PathBuf> = std::sync::OnceLock::new();
+    BUILT.get_or_init(|| {
+        let out = std::env::temp_dir().join(format!("fluxloom-science-{}", std::process::id()));
+        let _ = fs::remove_dir_all(&out);
+        let plan = demo().join("plan.toml");
+        let (code, _, stderr) = fluxloom(&[
+            "build",
+            plan.to_str().unwrap(),
+            "--out",
+            out.to_str().unwrap(),
+            "--quiet",
+        ]);
+        assert_eq!(code, 0, "{stderr}");
+        // The truth's α is an equal-weight fit over Ks, the four IRAC-like bands and
+        // 24 µm (src/demo/truth.rs); the science run uses the same estimator, and the
+        // truth's A_V and T_eff per object for the photosphere (blackbody, as the demo's).
+        let objects = read_parquet(&out.join("objects.parquet"));
+        let truth: HashMap<String, HashMap<String, String>> =
+            read_csv_rows(&demo().join("truth_objects.csv"))
+                .into_iter()
+                .map(|r| (r["truth_id"].clone(), r))
+                .collect();
+        let (mut av, mut teff) = (
+            String::from("object_id,av_mag\n"),
+            String::from("object_id,teff_k\n"),
+        );
+        for (object, t) in truth_of_objects(&objects) {
+            let t = &truth[&t];
+            if !t["av_mag"].is_empty() {
+                av.push_str(&format!("{object},{}\n", t["av_mag"]));
+            }
+            if !t["teff_k"].is_empty() {
+                teff.push_str(&format!("{object},{}\n", t["teff_k"]));
+            }
+        }
+        fs::write(out.join("av.csv"), av).unwrap();
+        fs::write(out.join("teff.csv"), teff).unwrap();
+        let plan = out.join("science.toml");
+        fs::write(
+            &plan,
+            "[science]\nalpha_weighting = \"equal\"\nalpha_bands = [\"tmass_ks\", \"irac_36\", \"irac_45\", \"irac_58\", \"irac_80\", \"mips_24\"]\nphotosphere = \"blackbody\"\nteff_table = \"teff.csv\"\nav_table = \"av.csv\"\n",
+        )
+        .unwrap();
+        let (code, stdout, stderr) = fluxloom(&[
+            "science",
+            out.to_str().unwrap(),
+            "--plan",
+            plan.to_str().unwrap(),
+        ]);
+        assert_eq!(code, 0, "{stderr}");
+        assert!(stdout.starts_with("wrote "), "{stdout}");
+        out
+    })
+}
+
+fn read_parquet(path: &Path) -> RecordBatch {
+    let reader = ParquetRecordBatchReaderBuilder::try_new(fs::File::open(path).unwrap())
+        .unwrap()
+        .build()
+        .unwrap();
+    let batches: Vec<RecordBatch> = reader.map(|b| b.unwrap()).collect();
+    arrow::compute::concat_batches(&batches[0].schema(), &batches).unwrap()
+}
+
+fn text(batch: &RecordBatch, name: &str) -> Vec<Option<String>> {
+    let col = arrow::compute::cast(
+        batch
+            .column_by_name(name)
+            .unwrap_or_else(|| panic!("no column {name}")),
+        &DataType::Utf8,
+    )
+    .unwrap();
+    let s = col.as_string::<i32>();
+    (0..s.len())
+        .map(|i| s.is_valid(i).then(|| s.value(i).to_string()))
+        .collect()
+}
+
+fn floats(batch: &RecordBatch, name: &str) -> Vec<Option<f64>> {
+    let col = arrow::compute::cast(
+        batch
+            .column_by_name(name)
+            .unwrap_or_else(|| panic!("no column {name}")),
+        &DataType::Float64,
+    )
+    .unwrap();
+    let a = col.as_primitive::<Float64Type>();
+    (0..a.len())
+        .map(|i| a.is_valid(i).then(|| a.value(i)))
+        .collect()
+}
+
+fn read_csv_rows(path: &Path) -> Vec<HashMap<String, String>> {
+    let text = fs::read_to_string(path).unwrap();
+    let mut lines = text.lines().filter(|l| !l.starts_with('#'));
+    let header: Vec<String> = lines
+        .next()
+        .unwrap()
+        .split(',')
+        .map(str::to_string)
+        .collect();
+    lines
+        .map(|l| {
+            header
+                .iter()
+                .cloned()
+                .zip(l.split(',').map(str::to_string))
+                .collect()
+        })
+        .collect()
+}
+
+/// object_id → the one truth object all its members come from (objects holding
+/// several truth objects, or artefacts, are left out).
+fn truth_of_objects(objects: &RecordBatch) -> HashMap<String, String> {
+    let members = read_csv_rows(&demo().join("truth_members.csv"));
+    let mut truth_of: HashMap<(String, String), String> = HashMap::new();
+    for m in &members {
+        truth_of.insert(
+            (m["survey"].clone(), m["source_id"].clone()),
+            m["truth_id"].clone(),
+        );
+    }
+    let ids = text(objects, "object_id");
+    let catalogs = ["ask", "kos", "lantern", "harrier", "cinder", "ember"];
+    let cols: Vec<Vec<Option<String>>> = catalogs
+        .iter()
+        .map(|c| text(objects, &format!("{c}_source_id")))
+        .collect();
+    let mut out = HashMap::new();
+    for (row, id) in ids.iter().enumerate() {
+        let mut set = HashSet::new();
+        for (c, col) in catalogs.iter().zip(&cols) {
+            if let Some(s) = &col[row] {
+                set.insert(
+                    truth_of
+                        .get(&(c.to_string(), s.clone()))
+                        .cloned()
+                        .unwrap_or_default(),
+                );
+            }
+        }
+        if set.len() == 1 {
+            let t = set.into_iter().next().unwrap();
+            if !t.is_empty() {
+                out.insert(id.clone().unwrap(), t);
+            }
+        }
+    }
+    out
+}
+
+/// The rows of `objects` in the order of `ids` (the science table's order).
+fn objects_sorted(objects: &RecordBatch, ids: &[Option<String>]) -> RecordBatch {
+    let own = text(objects, "object_id");
+    let pos: HashMap<&str, u32> = own
+        .iter()
+        .enumerate()
+        .map(|(i, s)| (s.as_deref().unwrap(), i as u32))
+        .collect();
+    let idx = arrow::array::UInt32Array::from(
+        ids.iter()
+            .map(|s| pos[s.as_deref().unwrap()])
+            .collect::<Vec<u32>>(),
+    );
+    let cols = objects
+        .columns()
+        .iter()
+        .map(|c| arrow::compute::take(c, &idx, None).unwrap())
+        .collect();
+    RecordBatch::try_new(objects.schema(), cols).unwrap()
+}
+
+/// Greene et al. 1994 class of a truth α (FIELD §4.3), as in the science table.
+fn greene(alpha: f64) -> &'static str {
+    if alpha >= 0.3 {
+        "class_i"
+    } else if alpha >= -0.3 {
+        "flat"
+    } else if alpha >= -1.6 {
+        "class_ii"
+    } else {
+        "class_iii"
+    }
+}
+
+#[test]
+fn classes_and_excesses_agree_with_the_truth() {
+    let out = built();
+    let objects = read_parquet(&out.join("objects.parquet"));
+    let science = read_parquet(&out.join("science.parquet"));
+    let truth: HashMap<String, HashMap<String, String>> =
+        read_csv_rows(&demo().join("truth_objects.csv"))
+            .into_iter()
+            .map(|r| (r["truth_id"].clone(), r))
+            .collect();
+    let truth_of = truth_of_objects(&objects);
+    let ids = text(&science, "object_id");
+    let class = text(&science, "alpha_class");
+    let n_points = floats(&science, "alpha_n_points");
+    let alpha = floats(&science, "alpha");
+    let ir_excess = text(&science, "ir_excess");
+    let ir_bands = text(&science, "ir_excess_bands");
+    let mut bare_bands: HashMap<String, usize> = HashMap::new();
+    // An excess can be judged where the anchor (Ks) is detected and so is a band
+    // at 8 µm or longer, where disks dominate (FIELD §4.5).
+    let ks = floats(&objects_sorted(&objects, &ids), "tmass_ks_flux_jy");
+    let long: Vec<Vec<Option<f64>>> = ["irac_80", "wise_w3", "wise_w4", "mips_24"]
+        .iter()
+        .map(|b| floats(&objects_sorted(&objects, &ids), &format!("{b}_flux_jy")))
+        .collect();
+    let judgeable = |row: usize| ks[row].is_some() && long.iter().any(|c| c[row].is_some());
+    let mut missed = Vec::new();
+
+    let (mut judged, mut right) = (0, 0);
+    let mut wrong = Vec::new();
+    // Disk truth: Class I and II have disks; Class III and field stars do not.
+    let (mut disk, mut disk_flagged, mut bare, mut bare_flagged) = (0, 0, 0, 0);
+    for (row, id) in ids.iter().enumerate() {
+        let Some(t) = truth_of.get(id.as_ref().unwrap()) else {
+            continue;
+        };
+        let t = &truth[t];
+        let kind = t["kind"].as_str();
+        if let Ok(true_alpha) = t["alpha"].parse::<f64>()
+            && n_points[row].unwrap_or(0.0) >= 3.0
+        {
+            judged += 1;
+            if class[row].as_deref() == Some(greene(true_alpha)) {
+                right += 1;
+            } else {
+                wrong.push(format!(
+                    "{} {kind}: true α {true_alpha:.3}, measured {:?} ({:?})",
+                    id.as_ref().unwrap(),
+                    alpha[row],
+                    class[row]
+                ));
+            }
+        }
+        let flagged = ir_excess[row].as_deref() == Some("true");
+        match kind {
+            "class_i" | "class_ii" if judgeable(row) => {
+                disk += 1;
+                disk_flagged += flagged as usize;
+                if !flagged {
+                    missed.push(format!("{} {kind} α {}", id.as_ref().unwrap(), t["alpha"]));
+                }
+            }
+            "class_iii" | "star" => {
+                bare += 1;
+                bare_flagged += flagged as usize;
+                for b in ir_bands[row].iter().flat_map(|s| s.split(',')) {
+                    if !b.is_empty() {
+                        *bare_bands.entry(b.to_string()).or_default() += 1;
+                    }
+                }
+            }
+            _ => {}
+        }
+    }
+    let fraction = right as f64 / judged as f64;
+    println!(
+        "α class right for {right} of {judged} young stars with ≥ 3 detections in 2–24 µm ({fraction:.3}); wrong: {wrong:#?}"
+    );
+    println!(
+        "infrared excess flagged for {disk_flagged} of {disk} objects with disks (Ks and a band ≥ 8 µm detected; missed: {missed:?}) and {bare_flagged} of {bare} without (bands: {bare_bands:?})"
+    );
+    assert!(judged >= 100, "{judged}");
+    assert!(fraction >= 0.95, "{fraction}");
+    let recall = disk_flagged as f64 / disk as f64;
+    let false_rate = bare_flagged as f64 / bare as f64;
+    assert!(recall >= 0.9, "recall {recall}");
+    assert!(false_rate <= 0.05, "false-flag rate {false_rate}");
+}
