@@ -374,13 +374,19 @@ pub fn build_with(plan: &Plan, out_dir: &Path, run: RunOptions) -> Result<BuildO
         sed_counts(&slots, &status_counts),
         outputs.clone(),
     );
-    if let Some(s) = &plan.science {
+    // The science table and the report read the SED tables; a build that writes
+    // only some tables (e.g. links alone) makes neither.
+    let all_tables = which.objects && which.photometry && which.links;
+    if let Some(s) = plan
+        .science
+        .as_ref()
+        .filter(|_| which.objects && which.photometry)
+    {
         crate::science::write_into(&mut staging, s)?;
     }
     let run_json = staging.path("run.json");
     std::fs::write(&run_json, record.to_json()? + "\n").map_err(|e| Error::io(&run_json, e))?;
-    let report = plan
-        .report
+    let report = (plan.report && all_tables)
         .then(|| crate::report::write_into(&mut staging))
         .transpose()?;
     let files = staging.commit()?;
