@@ -38,6 +38,7 @@ pub mod density;
 pub mod engine;
 pub mod false_matches;
 pub mod flags;
+pub mod floors;
 pub mod groups;
 pub mod input;
 pub mod offsets;
