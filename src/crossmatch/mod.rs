@@ -41,6 +41,7 @@ pub mod flags;
 pub mod floors;
 pub mod groups;
 pub mod input;
+pub mod motion;
 pub mod offsets;
 pub mod prepare;
 pub mod resolve;
