@@ -43,6 +43,7 @@ pub mod groups;
 pub mod input;
 pub mod motion;
 pub mod offsets;
+pub mod position_error;
 pub mod prepare;
 pub mod resolve;
 pub mod systematics;
