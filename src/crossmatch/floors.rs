@@ -210,6 +210,7 @@ mod tests {
         let mut rng = Rng::new(7, "floors");
         let (sep, stated) = rayleigh_pairs(&mut rng, 20_000, |_| (0.1, 0.05f64.sqrt()));
         let est = estimate_floor(&sep, &stated).unwrap();
+        println!("{est:?}");
         assert!((est.floor_arcsec / 0.2 - 1.0).abs() < 0.03, "{est:?}");
         assert!((est.median_d_before - RAYLEIGH_MEDIAN * 0.05f64.sqrt() / 0.1).abs() < 0.03);
         assert!(!far_above_stated(&est));
@@ -225,6 +226,7 @@ mod tests {
             (s, (s * s + 0.04).sqrt())
         });
         let est = estimate_floor(&sep, &stated).unwrap();
+        println!("{est:?}");
         assert!((est.floor_arcsec / 0.2 - 1.0).abs() < 0.03, "{est:?}");
     }
 
@@ -235,6 +237,7 @@ mod tests {
         let mut rng = Rng::new(3, "floors-none");
         let (sep, stated) = rayleigh_pairs(&mut rng, 20_000, |_| (0.1, 0.1));
         let est = estimate_floor(&sep, &stated).unwrap();
+        println!("{est:?}");
         assert!(est.floor_arcsec < 0.018, "{est:?}");
         assert!((est.median_d_before / RAYLEIGH_MEDIAN - 1.0).abs() < 0.015);
     }
