@@ -18,6 +18,7 @@ use crate::catalog::normalize::{NormalizeOptions, NormalizeReport, Normalizer};
 use crate::catalog::{DEFAULT_BATCH_ROWS, open, prefetch};
 use crate::crossmatch::density::footprint_order;
 use crate::crossmatch::false_matches::{FalseMatchEstimate, estimate_false_matches};
+use crate::crossmatch::floors::{FAR_ABOVE_FACTOR, FloorEstimate, far_above_stated};
 use crate::crossmatch::systematics::{CatalogOffset, match_with_offsets};
 use crate::crossmatch::{MatchResult, SourceTable};
 use crate::error::{Error, Result};
@@ -497,6 +498,22 @@ fn sed_counts(slots: &[BandSlot], counts: &[[u64; SedStatus::ALL.len()]]) -> Vec
         .collect()
 }
 
+/// The summary lines of one catalog's systematic floor: the estimate, and a
+/// warning when it is far above the stated errors ([`far_above_stated`]).
+fn floor_lines(name: &str, reference: &str, f: &FloorEstimate) -> String {
+    let mut s = format!(
+        "         floor of {name} vs {reference}: {:.3}\" from {} pairs (median d {:.2} -> {:.2})\n",
+        f.floor_arcsec, f.n_pairs, f.median_d_before, f.median_d_after
+    );
+    if far_above_stated(f) {
+        s.push_str(&format!(
+            "         warning: the floor of {name} ({:.3}\") is more than {} times its median stated error ({:.3}\")\n",
+            f.floor_arcsec, FAR_ABOVE_FACTOR, f.median_stated_sigma_arcsec
+        ));
+    }
+    s
+}
+
 fn summary(
     plan: &Plan,
     out_dir: &Path,
@@ -552,6 +569,13 @@ fn summary(
                 o.applied_arcsec.1
             ));
         }
+        if let Some(f) = &o.floor {
+            s.push_str(&floor_lines(
+                &plan.catalogs[o.catalog].name,
+                record.astrometric_reference.as_deref().unwrap_or("-"),
+                f,
+            ));
+        }
     }
     for f in &record.false_matches {
         s.push_str(&format!(
@@ -598,4 +622,37 @@ fn summary(
         ));
     }
     s
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn estimate(floor_arcsec: f64, median_stated_sigma_arcsec: f64) -> FloorEstimate {
+        FloorEstimate {
+            n_pairs: 358,
+            floor_arcsec,
+            median_d_before: 1.3212,
+            median_d_after: 1.177_41,
+            median_stated_sigma_arcsec,
+        }
+    }
+
+    #[test]
+    fn floor_line_without_warning() {
+        assert_eq!(
+            floor_lines("kos", "ask", &estimate(0.0514, 0.03)),
+            "         floor of kos vs ask: 0.051\" from 358 pairs (median d 1.32 -> 1.18)\n"
+        );
+    }
+
+    #[test]
+    fn floor_far_above_the_stated_errors_warns() {
+        // 0.25″ > 2 × 0.1″.
+        assert_eq!(
+            floor_lines("kos", "ask", &estimate(0.25, 0.1)),
+            "         floor of kos vs ask: 0.250\" from 358 pairs (median d 1.32 -> 1.18)\n\
+             \x20        warning: the floor of kos (0.250\") is more than 2 times its median stated error (0.100\")\n"
+        );
+    }
 }

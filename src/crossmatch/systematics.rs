@@ -11,12 +11,19 @@
 //! pairs whose offset exceeds both a tenth of its scatter and three standard
 //! errors is moved by minus the offset, and the offsets are measured again (at
 //! most [`MAX_PASSES`] times); the final match then runs on the corrected positions.
+//!
+//! The same pairs give each catalog's systematic floor ([`super::floors`]): the
+//! per-axis σ_sys that brings the median normalised separation to the Rayleigh
+//! median, from the stated errors without any configured floor. It is reported
+//! only; the match keeps the configured floors.
 
 use serde::Serialize;
 
+use super::bayes::circularized_sigma_arcsec;
 use super::candidates::find_candidates;
 use super::config::{MatchConfig, Tolerance};
 use super::engine::{MatchResult, run_match_with_area};
+use super::floors::{FloorEstimate, estimate_floor};
 use super::input::SourceTable;
 use super::offsets::{OffsetEstimate, offset_standard_error, robust_offset};
 use super::prepare::Sources;
@@ -29,6 +36,10 @@ pub const MIN_PAIRS: usize = 3;
 /// Most match passes with correction.
 pub const MAX_PASSES: usize = 5;
 
+/// Per catalog (indexed by catalog, `None` for the reference and for catalogs
+/// without pairs): the offsets and the systematic floors of [`measure_offsets`].
+pub type Measured = (Vec<Option<OffsetEstimate>>, Vec<Option<FloorEstimate>>);
+
 /// The offset of one catalog against the reference.
 #[derive(Debug, Clone, PartialEq, Serialize)]
 pub struct CatalogOffset {
@@ -40,6 +51,9 @@ pub struct CatalogOffset {
     pub residual: Option<OffsetEstimate>,
     /// Total correction applied to the catalog's positions, arcsec (east, north).
     pub applied_arcsec: (f64, f64),
+    /// Systematic floor measured from the pairs of the last measurement (after
+    /// the corrections), against the stated errors without configured floors.
+    pub floor: Option<FloorEstimate>,
 }
 
 /// Measures each catalog's offset from `reference`: tangent-plane offsets (at a
@@ -47,13 +61,20 @@ pub struct CatalogOffset {
 /// radius that are unique both ways (the reference source has no other candidate
 /// in that catalog, and the catalog's source none in the reference).
 ///
+/// From the same pairs it also estimates each catalog's systematic floor
+/// ([`estimate_floor`]): separations are taken after removing the median offset
+/// just measured (the offset is reported on its own), and each pair's stated
+/// σ is `sqrt(σ_ref² + σ_cat²)` with σ the circularized error ellipse
+/// ([`circularized_sigma_arcsec`]) without the configured `systematic_arcsec`.
+/// Returns the offsets and the floors, one per catalog (`None` for the reference).
+///
 /// # Errors
 /// As [`super::engine::run_match`].
 pub fn measure_offsets(
     tables: &[SourceTable],
     config: &MatchConfig,
     reference: usize,
-) -> Result<Vec<Option<OffsetEstimate>>> {
+) -> Result<Measured> {
     let generous = generous_config(config);
     let sources = Sources::prepare(tables, &generous)?;
     let candidates = find_candidates(&sources, &generous);
@@ -67,6 +88,14 @@ pub fn measure_offsets(
     }
     let mut dra: Vec<Vec<f64>> = vec![Vec::new(); n];
     let mut ddec: Vec<Vec<f64>> = vec![Vec::new(); n];
+    let mut stated: Vec<Vec<f64>> = vec![Vec::new(); n];
+    let stated_sigma = |i: usize| {
+        let (t, row) = (
+            &tables[sources.catalog[i] as usize],
+            sources.row[i] as usize,
+        );
+        circularized_sigma_arcsec(t.err_major_arcsec[row], t.err_minor_arcsec[row], 0.0)
+    };
     for c in &candidates {
         let (a, b) = (c.a as usize, c.b as usize);
         let (ca, cb) = (sources.catalog[a] as usize, sources.catalog[b] as usize);
@@ -85,8 +114,9 @@ pub fn measure_offsets(
         let (east, north) = tangent_offsets_arcsec(ra_r, dec_r, ra_x, dec_x);
         dra[cx].push(east);
         ddec[cx].push(north);
+        stated[cx].push(stated_sigma(r).hypot(stated_sigma(x)));
     }
-    Ok((0..n)
+    let offsets: Vec<Option<OffsetEstimate>> = (0..n)
         .map(|c| {
             if c == reference {
                 None
@@ -94,7 +124,25 @@ pub fn measure_offsets(
                 robust_offset(&dra[c], &ddec[c])
             }
         })
-        .collect())
+        .collect();
+    let floors = (0..n)
+        .map(|c| {
+            let m = offsets[c]?;
+            let sep: Vec<f64> = dra[c]
+                .iter()
+                .zip(&ddec[c])
+                .map(|(e, no)| (e - m.dra_cosdec_arcsec).hypot(no - m.ddec_arcsec))
+                .collect();
+            // A pair without a finite, positive stated error cannot be normalised.
+            let (sep, sigma): (Vec<f64>, Vec<f64>) = sep
+                .into_iter()
+                .zip(stated[c].iter().copied())
+                .filter(|(_, s)| s.is_finite() && *s > 0.0)
+                .unzip();
+            estimate_floor(&sep, &sigma)
+        })
+        .collect();
+    Ok((offsets, floors))
 }
 
 /// `config` with every pair's tolerance replaced by its largest radius.
@@ -148,7 +196,7 @@ pub fn match_with_offsets(
 ) -> Result<(MatchResult, Vec<CatalogOffset>, Vec<SourceTable>)> {
     let mut working: Vec<SourceTable> = tables.to_vec();
     let mut applied = vec![(0.0, 0.0); tables.len()];
-    let initial = measure_offsets(&working, config, reference)?;
+    let (initial, mut floors) = measure_offsets(&working, config, reference)?;
     let mut residual = initial.clone();
     if correct {
         for _ in 0..MAX_PASSES {
@@ -162,7 +210,7 @@ pub fn match_with_offsets(
                     applied[c].1 -= m.ddec_arcsec;
                 }
             }
-            residual = measure_offsets(&working, config, reference)?;
+            (residual, floors) = measure_offsets(&working, config, reference)?;
         }
     }
     let result = run_match_with_area(&working, config, area_sr)?;
@@ -173,6 +221,7 @@ pub fn match_with_offsets(
             initial: initial[catalog],
             residual: residual[catalog],
             applied_arcsec: applied[catalog],
+            floor: floors[catalog],
         })
         .collect();
     Ok((result, offsets, working))
