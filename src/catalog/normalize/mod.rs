@@ -341,10 +341,7 @@ pub fn output_schema(schema: &SurveySchema) -> SchemaRef {
         Field::new("row", DataType::UInt64, false),
         with_unit(Field::new("ra_deg", DataType::Float64, false), "deg"),
         with_unit(Field::new("dec_deg", DataType::Float64, false), "deg"),
-        with_unit(
-            Field::new("epoch_yr", DataType::Float64, false),
-            "yr (Julian)",
-        ),
+        with_unit(Field::new("epoch_yr", DataType::Float64, false), "yr"),
         with_unit(
             Field::new("pos_err_major_arcsec", DataType::Float64, false),
             "arcsec",
@@ -355,7 +352,7 @@ pub fn output_schema(schema: &SurveySchema) -> SchemaRef {
         ),
         with_unit(
             Field::new("pos_err_pa_deg", DataType::Float64, false),
-            "deg E of N",
+            "deg",
         ),
         with_unit(
             Field::new("pmra_cosdec_masyr", DataType::Float64, true),
@@ -382,7 +379,7 @@ pub fn output_schema(schema: &SurveySchema) -> SchemaRef {
             for suffix in ["mag", "mag_err", "ulim_mag"] {
                 fields.push(with_unit(
                     Field::new(format!("{id}_{suffix}"), DataType::Float64, true),
-                    "mag (Vega)",
+                    "mag",
                 ));
             }
         }
