@@ -148,6 +148,75 @@ impl Error {
     }
 }
 
+/// Reads a TOML file (schema, plan or band file) as text.
+///
+/// TOML files must be UTF-8 (TOML 1.0, "Spec"); bytes that are not UTF-8 give an
+/// [`Error::Toml`] naming the line and the byte column (both from 1) of the
+/// first bad byte.
+///
+/// # Errors
+/// [`Error::Io`] when the file cannot be read, [`Error::Toml`] as above.
+pub fn read_toml_text(path: &Path) -> Result<String> {
+    let bytes = std::fs::read(path).map_err(|e| Error::io(path, e))?;
+    String::from_utf8(bytes).map_err(|e| {
+        let at = e.utf8_error().valid_up_to();
+        let bytes = e.as_bytes();
+        let line_start = bytes[..at]
+            .iter()
+            .rposition(|&b| b == b'\n')
+            .map_or(0, |i| i + 1);
+        let line = bytes[..at].iter().filter(|&&b| b == b'\n').count() + 1;
+        Error::Toml {
+            path: path.to_path_buf(),
+            message: format!(
+                "line {line}, byte column {}: byte 0x{:02X} is not valid UTF-8; TOML files must be UTF-8 text",
+                at - line_start + 1,
+                bytes[at]
+            ),
+        }
+    })
+}
+
+/// Turns a TOML parse or shape error on `text` into [`Error::Toml`].
+///
+/// The message reads `line L, column C: <problem>` and, on the following
+/// lines, the offending source line with a caret under the column, so that it
+/// stays readable after the `fluxloom: error: <file>: ` prefix:
+///
+/// ```text
+/// plan.toml: line 2, column 8: invalid string
+///     |
+///   2 | name = fl1
+///     |        ^
+/// ```
+pub fn toml_error(path: &Path, text: &str, err: &toml::de::Error) -> Error {
+    let problem = err.message().trim_end().replace('\n', "; ");
+    let message = match err.span() {
+        Some(span) => {
+            let start = span.start.min(text.len());
+            let line = line_of_offset(text, start);
+            let line_start = text[..start].rfind('\n').map_or(0, |i| i + 1);
+            let line_end = text[start..].find('\n').map_or(text.len(), |i| start + i);
+            let source = text[line_start..line_end].trim_end_matches('\r');
+            let column = text[line_start..start].chars().count() + 1;
+            let gutter = " ".repeat(line.to_string().len() + 3);
+            let caret_pad: String = source
+                .chars()
+                .take(column - 1)
+                .map(|c| if c == '\t' { '\t' } else { ' ' })
+                .collect();
+            format!(
+                "line {line}, column {column}: {problem}\n{gutter}|\n  {line} | {source}\n{gutter}| {caret_pad}^"
+            )
+        }
+        None => problem,
+    };
+    Error::Toml {
+        path: path.to_path_buf(),
+        message,
+    }
+}
+
 /// Converts a byte offset in `text` into a 1-based line number.
 pub fn line_of_offset(text: &str, offset: usize) -> usize {
     let end = offset.min(text.len());
@@ -175,6 +244,37 @@ mod tests {
             err.to_string(),
             "wise.csv: row 1043, column \"w1mpro\": expected a number, found \"--\""
         );
+    }
+
+    #[test]
+    fn non_utf8_toml_names_line_and_byte_column() {
+        let dir = tempfile::tempdir().unwrap();
+        let path = dir.path().join("s.toml");
+        std::fs::write(&path, b"survey = \"a\"\ndescription = \"caf\xe9\"\n").unwrap();
+        let err = read_toml_text(&path).unwrap_err().to_string();
+        assert_eq!(
+            err,
+            format!(
+                "{}: line 2, byte column 19: byte 0xE9 is not valid UTF-8; TOML files must be UTF-8 text",
+                path.display()
+            )
+        );
+    }
+
+    #[test]
+    fn toml_errors_keep_the_caret_drawing_on_separate_lines() {
+        let text = "[field]\nname = fl1\n";
+        let err = toml::from_str::<toml::Value>(text).unwrap_err();
+        let err = toml_error(Path::new("plan.toml"), text, &err).to_string();
+        let lines: Vec<&str> = err.lines().collect();
+        assert_eq!(lines.len(), 4, "{err}");
+        assert!(
+            lines[0].starts_with("plan.toml: line 2, column 8: "),
+            "{err}"
+        );
+        assert_eq!(lines[1], "    |");
+        assert_eq!(lines[2], "  2 | name = fl1");
+        assert_eq!(lines[3], "    |        ^");
     }
 
     #[test]

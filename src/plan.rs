@@ -29,8 +29,16 @@ use toml::Spanned;
 
 use crate::catalog::schema::SurveySchema;
 use crate::crossmatch::{CatalogSettings, MatchConfig, Tolerance};
-use crate::error::{Error, Result, line_of_offset};
+use crate::error::{Error, Result, line_of_offset, read_toml_text, toml_error};
 use crate::photometry::BandLibrary;
+
+/// Largest accepted angle of the plan (tolerances, systematic errors,
+/// resolutions), arcsec: one degree.
+pub const MAX_ARCSEC: f64 = 3600.0;
+/// Largest accepted tolerance multiple `k` of a sigma tolerance.
+pub const MAX_TOLERANCE_K: f64 = 100.0;
+/// The area of the whole sky, square degrees (4 pi sr = 129600 / pi deg^2).
+pub const FULL_SKY_DEG2: f64 = 41252.96124941928;
 
 /// One catalog of the plan, with its validated schema.
 #[derive(Debug, Clone)]
@@ -200,11 +208,8 @@ impl Plan {
     /// [`Error::Toml`] for a file that does not parse, [`Error::Config`] naming the
     /// plan line for an impossible value, and any schema or band-file error.
     pub fn from_file(path: &Path) -> Result<Plan> {
-        let text = std::fs::read_to_string(path).map_err(|e| Error::io(path, e))?;
-        let raw: RawPlan = toml::from_str(&text).map_err(|e| Error::Toml {
-            path: path.to_path_buf(),
-            message: e.to_string().trim_end().replace('\n', " "),
-        })?;
+        let text = read_toml_text(path)?;
+        let raw: RawPlan = toml::from_str(&text).map_err(|e| toml_error(path, &text, &e))?;
         let base = path.parent().map(Path::to_path_buf).unwrap_or_default();
         let resolve = |p: &str| -> PathBuf {
             let p = PathBuf::from(p);
@@ -218,11 +223,11 @@ impl Plan {
             library.load_user_file(&resolve(bands))?;
         }
         let epoch = *raw.field.reference_epoch.get_ref();
-        if !(1800.0..=2200.0).contains(&epoch) {
+        if !crate::catalog::schema::EPOCH_RANGE_YR.contains(&epoch) {
             return Err(err(
                 raw.field.reference_epoch.span(),
                 format!(
-                    "reference_epoch {epoch} is implausible; expected a Julian year such as 2016.0"
+                    "reference_epoch {epoch} is outside 1800 to 2200; expected a Julian year such as 2016.0"
                 ),
             ));
         }
@@ -244,11 +249,11 @@ impl Plan {
                 (rc.resolution_arcsec, "resolution_arcsec"),
             ] {
                 if let Some(v) = value
-                    && !(v >= 0.0 && v.is_finite())
+                    && !(0.0..=MAX_ARCSEC).contains(&v)
                 {
                     return Err(err(
                         c.span(),
-                        format!("{key} must be a non-negative number of arcsec, found {v}"),
+                        format!("{key} must be a number of arcsec in [0, {MAX_ARCSEC}], found {v}"),
                     ));
                 }
             }
@@ -379,10 +384,12 @@ impl Plan {
             None => None,
             Some(a) => {
                 let v = *a.get_ref();
-                if !(v > 0.0 && v.is_finite()) {
+                if !(v > 0.0 && v <= FULL_SKY_DEG2) {
                     return Err(err(
                         a.span(),
-                        format!("area_deg2 must be positive, found {v}"),
+                        format!(
+                            "area_deg2 must lie in (0, {FULL_SKY_DEG2}] (the whole sky), found {v}"
+                        ),
                     ));
                 }
                 Some(v * (std::f64::consts::PI / 180.0).powi(2))
@@ -464,11 +471,16 @@ fn tolerance(
 ) -> Result<Tolerance> {
     let r = t.get_ref();
     let positive = |v: Option<f64>, key: &str| -> Result<f64> {
+        let max = if key == "k" {
+            MAX_TOLERANCE_K
+        } else {
+            MAX_ARCSEC
+        };
         match v {
-            Some(x) if x > 0.0 && x.is_finite() => Ok(x),
+            Some(x) if x > 0.0 && x <= max => Ok(x),
             Some(x) => Err(err(
                 t.span(),
-                format!("tolerance {key} must be positive, found {x}"),
+                format!("tolerance {key} must lie in (0, {max}], found {x}"),
             )),
             None => Err(err(
                 t.span(),

@@ -847,3 +847,61 @@ fn empty_tables_write_and_read_back_with_their_columns() {
     assert_eq!(header.lines().count(), 1);
     assert!(header.starts_with("name,ra_deg,"));
 }
+
+/// A one-column table whose field carries a unit and a description.
+fn described_table() -> (SchemaRef, Vec<RecordBatch>) {
+    let field = Field::new("ulim_mag", DataType::Float64, true).with_metadata(
+        std::collections::HashMap::from([
+            ("unit".to_string(), "mag".to_string()),
+            ("description".to_string(), "Vega magnitude".to_string()),
+        ]),
+    );
+    let schema: SchemaRef = Arc::new(Schema::new(vec![field]));
+    let batch = RecordBatch::try_new(
+        schema.clone(),
+        vec![Arc::new(Float64Array::from(vec![Some(17.5), None]))],
+    )
+    .unwrap();
+    (schema, vec![batch])
+}
+
+#[test]
+fn descriptions_go_to_the_votable_field_and_the_fits_ttype_comment() {
+    let dir = tempfile::tempdir().unwrap();
+    let (schema, batches) = described_table();
+    let vot = dir.path().join("d.vot");
+    write_votable(&vot, &schema, &batches, "t", "", &[]).unwrap();
+    let xml = fs::read_to_string(&vot).unwrap();
+    assert!(
+        xml.contains(
+            "<FIELD name=\"ulim_mag\" datatype=\"double\" unit=\"mag\"><DESCRIPTION>Vega magnitude</DESCRIPTION></FIELD>\n"
+        ),
+        "{xml}"
+    );
+    let back = read_all_votable(&vot);
+    assert_eq!(
+        back.schema()
+            .field(0)
+            .metadata()
+            .get("unit")
+            .map(String::as_str),
+        Some("mag")
+    );
+
+    let fits = dir.path().join("d.fits");
+    write_fits(&fits, &schema, &batches, "T", &[]).unwrap();
+    let bytes = fs::read(&fits).unwrap();
+    let cards: Vec<String> = bytes[2880..]
+        .chunks(80)
+        .map(|c| String::from_utf8_lossy(c).trim_end().to_string())
+        .take_while(|c| c != "END")
+        .collect();
+    assert!(
+        cards.contains(&"TTYPE1  = 'ulim_mag' / Vega magnitude".to_string()),
+        "{cards:?}"
+    );
+    assert!(
+        cards.contains(&"TUNIT1  = 'mag     '".to_string()),
+        "{cards:?}"
+    );
+}

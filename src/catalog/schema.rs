@@ -35,8 +35,17 @@ use std::path::{Path, PathBuf};
 use serde::Deserialize;
 use toml::Spanned;
 
-use crate::error::{Error, Result, line_of_offset};
+use crate::error::{Error, Result, line_of_offset, read_toml_text, toml_error};
 use crate::photometry::{AB_ZERO_POINT_JY, Band, BandLibrary, Conversion, LimitRule, ValueUnit};
+
+/// Largest accepted fixed 1-sigma position error, arcsec (one degree).
+pub const MAX_POSITION_ERROR_ARCSEC: f64 = 3600.0;
+/// Largest accepted magnitude offset (`offset_mag`), magnitudes: a factor 10^8 in flux.
+pub const MAX_OFFSET_MAG: f64 = 20.0;
+/// Largest accepted signal-to-noise threshold or sigma multiple of an `snr` limit.
+pub const MAX_SIGMA_MULTIPLE: f64 = 1000.0;
+/// Accepted fixed epochs, Julian years.
+pub const EPOCH_RANGE_YR: std::ops::RangeInclusive<f64> = 1800.0..=2200.0;
 
 /// How the catalog file is encoded.
 #[derive(Debug, Clone, PartialEq)]
@@ -369,7 +378,7 @@ impl SurveySchema {
     /// [`Error::Config`] naming the schema line when a value is impossible (an
     /// unknown band, unit or format, a band without a zero point where one is needed).
     pub fn from_file(path: &Path, library: &BandLibrary) -> Result<SurveySchema> {
-        let text = std::fs::read_to_string(path).map_err(|e| Error::io(path, e))?;
+        let text = read_toml_text(path)?;
         SurveySchema::from_str(&text, path, library)
     }
 
@@ -378,10 +387,7 @@ impl SurveySchema {
     /// # Errors
     /// As [`SurveySchema::from_file`].
     pub fn from_str(text: &str, path: &Path, library: &BandLibrary) -> Result<SurveySchema> {
-        let raw: RawSchema = toml::from_str(text).map_err(|e| Error::Toml {
-            path: path.to_path_buf(),
-            message: e.to_string().trim_end().replace('\n', " "),
-        })?;
+        let raw: RawSchema = toml::from_str(text).map_err(|e| toml_error(path, text, &e))?;
         Validator {
             text,
             path,
@@ -545,7 +551,7 @@ struct RawPositionError {
 #[derive(Deserialize)]
 #[serde(deny_unknown_fields)]
 struct RawEpoch {
-    year: Option<f64>,
+    year: Option<Spanned<f64>>,
     column: Option<String>,
     unit: Option<String>,
 }
@@ -570,12 +576,12 @@ struct RawBand {
     nulls: Vec<f64>,
     #[serde(default)]
     null_text: Vec<String>,
-    offset_mag: Option<f64>,
+    offset_mag: Option<Spanned<f64>>,
     softening: Option<Spanned<f64>>,
     limit: Option<Spanned<RawLimit>>,
     #[serde(default)]
     quality: Vec<Spanned<RawQuality>>,
-    depth: Option<f64>,
+    depth: Option<Spanned<f64>>,
 }
 
 #[derive(Deserialize)]
@@ -790,10 +796,14 @@ impl Validator<'_> {
         let unit = self.angle_unit(e.unit.as_deref(), span.clone())?;
         match e.kind.as_str() {
             "fixed" => match e.arcsec {
-                Some(s) if s > 0.0 && s.is_finite() => Ok(PositionError::Fixed { sigma_arcsec: s }),
+                Some(s) if s > 0.0 && s <= MAX_POSITION_ERROR_ARCSEC => {
+                    Ok(PositionError::Fixed { sigma_arcsec: s })
+                }
                 Some(s) => Err(self.err(
                     span,
-                    format!("a fixed position error must be a positive number of arcsec, found {s}"),
+                    format!(
+                        "a fixed position error must be a number of arcsec in (0, {MAX_POSITION_ERROR_ARCSEC}], found {s}"
+                    ),
                 )),
                 None => Err(self.err(span, "position error of kind \"fixed\" needs \"arcsec\"")),
             },
@@ -825,13 +835,16 @@ impl Validator<'_> {
         let e = raw.get_ref();
         match (&e.year, &e.column) {
             (Some(year), None) => {
-                if !(1800.0..=2200.0).contains(year) {
+                let v = *year.get_ref();
+                if !EPOCH_RANGE_YR.contains(&v) {
                     return Err(self.err(
-                        raw.span(),
-                        format!("epoch year {year} is implausible; expected a Julian year such as 2015.5"),
+                        year.span(),
+                        format!(
+                            "epoch year {v} is outside 1800 to 2200; expected a Julian year such as 2015.5 (per-source MJD or JD go in a column with unit = \"mjd\" or \"jd\")"
+                        ),
                     ));
                 }
-                Ok(Epoch::Fixed(*year))
+                Ok(Epoch::Fixed(v))
             }
             (None, Some(column)) => {
                 let unit = match e.unit.as_deref() {
@@ -898,11 +911,16 @@ impl Validator<'_> {
             ));
         }
         let softening = match (&unit, &b.softening) {
-            (ValueUnit::AsinhMag, Some(s)) if *s.get_ref() > 0.0 => Some(*s.get_ref()),
+            (ValueUnit::AsinhMag, Some(s)) if *s.get_ref() > 0.0 && *s.get_ref() <= 1.0 => {
+                Some(*s.get_ref())
+            }
             (ValueUnit::AsinhMag, Some(s)) => {
                 return Err(self.err(
                     s.span(),
-                    format!("asinh softening must be positive, found {}", s.get_ref()),
+                    format!(
+                        "asinh softening must lie in (0, 1] (a fraction of the zero-point flux), found {}",
+                        s.get_ref()
+                    ),
                 ));
             }
             (ValueUnit::AsinhMag, None) => match band.asinh_softening {
@@ -941,20 +959,65 @@ impl Validator<'_> {
         for q in &b.quality {
             quality.push(self.quality(q)?);
         }
-        Ok(BandColumns {
+        if let Some(v) = b.nulls.iter().find(|v| v.is_nan()) {
+            return Err(self.err(
+                raw.span(),
+                format!("nulls holds {v}; NaN is always read as no measurement, list only numbers"),
+            ));
+        }
+        let offset_mag = match &b.offset_mag {
+            None => 0.0,
+            Some(o) => {
+                let v = *o.get_ref();
+                if !(-MAX_OFFSET_MAG..=MAX_OFFSET_MAG).contains(&v) {
+                    return Err(self.err(
+                        o.span(),
+                        format!(
+                            "offset_mag must be a number of magnitudes in [-{MAX_OFFSET_MAG}, {MAX_OFFSET_MAG}], found {v}"
+                        ),
+                    ));
+                }
+                v
+            }
+        };
+        let mut columns = BandColumns {
             band: band.clone(),
             value: b.value.clone(),
             unit,
             error: b.error.clone(),
             nulls: b.nulls.clone(),
             null_text: b.null_text.clone(),
-            offset_mag: b.offset_mag.unwrap_or(0.0),
+            offset_mag,
             softening,
             limit,
             quality,
-            depth: b.depth,
+            depth: None,
             line: self.line(raw.span()),
-        })
+        };
+        if let Some(d) = &b.depth {
+            let v = *d.get_ref();
+            let out = if v.is_finite() {
+                columns.to_output(v)
+            } else {
+                v
+            };
+            let usable = if columns.has_flux() {
+                out.is_finite() && out > 0.0
+            } else {
+                out.is_finite()
+            };
+            if !usable {
+                return Err(self.err(
+                    d.span(),
+                    format!(
+                        "depth {v} (unit {}) does not give a finite, positive flux density; expected a limiting value such as 21.5 for magnitudes or 0.05 for mJy",
+                        unit.as_str()
+                    ),
+                ));
+            }
+            columns.depth = Some(v);
+        }
+        Ok(columns)
     }
 
     fn limit(&self, raw: &Spanned<RawLimit>) -> Result<LimitMarker> {
@@ -983,8 +1046,15 @@ impl Validator<'_> {
             "snr" => {
                 let below = l.below.unwrap_or(3.0);
                 let n = l.n.unwrap_or(3.0);
-                if below <= 0.0 || n <= 0.0 {
-                    return Err(self.err(span, "snr limits need positive \"below\" and \"n\""));
+                for (key, v) in [("below", below), ("n", n)] {
+                    if !(v > 0.0 && v <= MAX_SIGMA_MULTIPLE) {
+                        return Err(self.err(
+                            span,
+                            format!(
+                                "snr limit \"{key}\" must lie in (0, {MAX_SIGMA_MULTIPLE}], found {v}"
+                            ),
+                        ));
+                    }
                 }
                 let rule = match l.rule.as_deref() {
                     None | Some("flux_plus_sigma") => LimitRule::FluxPlusSigma { n },
@@ -1013,6 +1083,10 @@ impl Validator<'_> {
                     _ => None,
                 };
                 match values {
+                    Some(v) if v.iter().any(|x| x.is_nan()) => Err(self.err(
+                        span,
+                        "limit kind \"sentinel\" values must be numbers, found nan (NaN is always read as no measurement)",
+                    )),
                     Some(v) if !v.is_empty() => Ok(LimitMarker::Sentinel { values: v }),
                     _ => Err(self.err(
                         span,
@@ -1064,6 +1138,27 @@ impl Validator<'_> {
 
     fn quality(&self, raw: &Spanned<RawQuality>) -> Result<QualityRule> {
         let q = raw.get_ref();
+        if q.char == Some(0) {
+            return Err(self.err(raw.span(), "char counts from 1"));
+        }
+        for (key, v) in [("min", q.min), ("max", q.max)] {
+            if let Some(v) = v
+                && v.is_nan()
+            {
+                return Err(self.err(
+                    raw.span(),
+                    format!("quality {key} must be a number, found {v}"),
+                ));
+            }
+        }
+        if let (Some(lo), Some(hi)) = (q.min, q.max)
+            && lo > hi
+        {
+            return Err(self.err(
+                raw.span(),
+                format!("quality min {lo} is above max {hi}; no value could pass"),
+            ));
+        }
         match (&q.reject, q.min.or(q.max)) {
             (Some(values), None) => {
                 let values = self.text_values(

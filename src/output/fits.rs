@@ -32,7 +32,8 @@
 //! | Boolean | `L` (`T` / `F`) | byte 0 |
 //!
 //! `TNULLn` is written only for integer columns that hold a null. The field
-//! metadata `"unit"` becomes `TUNITn`. Text values must be printable ASCII
+//! metadata `"unit"` becomes `TUNITn` (a FITS unit string, FITS Standard 4.0
+//! section 4.3), and `"description"` the comment of `TTYPEn` when it fits the card. Text values must be printable ASCII
 //! (section 7.3.3.1 allows ASCII text only); a FITS string cannot tell null from
 //! empty, and trailing spaces are not significant. Column names, units and the
 //! extension name must fit one card (at most 68 characters, a `'` counting
@@ -170,6 +171,9 @@ struct Column {
     /// Bytes in a row.
     width: usize,
     unit: Option<String>,
+    /// The field metadata `"description"`, written as the comment of `TTYPEn`
+    /// when it fits the card (printable ASCII only).
+    description: Option<String>,
     /// Stored value marking a null (integer kinds with nulls only).
     tnull: Option<i64>,
 }
@@ -229,11 +233,17 @@ fn plan_columns(path: &Path, schema: &SchemaRef, batches: &[RecordBatch]) -> Res
         } else {
             None
         };
+        let description = field
+            .metadata()
+            .get("description")
+            .filter(|d| d.bytes().all(|b| (0x20..=0x7e).contains(&b)))
+            .cloned();
         columns.push(Column {
             name: name.clone(),
             kind,
             width,
             unit,
+            description,
             tnull,
         });
     }
@@ -383,7 +393,11 @@ fn table_header(
     cards.integer("TFIELDS", &columns.len().to_string(), "number of columns");
     for (i, c) in columns.iter().enumerate() {
         let n = i + 1;
-        cards.string(&format!("TTYPE{n}"), &c.name, "");
+        cards.string(
+            &format!("TTYPE{n}"),
+            &c.name,
+            c.description.as_deref().unwrap_or(""),
+        );
         cards.string(&format!("TFORM{n}"), &c.tform(), "");
         if let Some(unit) = &c.unit {
             cards.string(&format!("TUNIT{n}"), unit, "");

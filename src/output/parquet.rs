@@ -3,11 +3,14 @@
 //! [`ParquetOutput`] streams record batches into a Parquet file under a
 //! temporary name and renames it into place on [`ParquetOutput::finish`]; the
 //! key-value pairs given at creation (band table, schema, plan, tool version)
-//! travel in the file footer so a file explains itself.
+//! travel in the file footer so a file explains itself. The same pairs are put
+//! into the Arrow schema metadata stored in the file, so Arrow readers (e.g.
+//! `pyarrow.parquet.read_table(f).schema.metadata`) show them too.
 
 use std::fs::File;
 use std::io::BufWriter;
 use std::path::Path;
+use std::sync::Arc;
 
 use arrow::array::RecordBatch;
 use arrow::datatypes::SchemaRef;
@@ -50,6 +53,14 @@ impl ParquetOutput {
             env!("CARGO_PKG_VERSION").to_string(),
         )];
         kv.extend(metadata.into_iter().map(|(k, v)| KeyValue::new(k, v)));
+        // The pairs also go into the Arrow schema metadata, so that readers which
+        // rebuild the Arrow schema from the stored one (`ARROW:schema`) show them.
+        let mut arrow_metadata = schema.metadata().clone();
+        arrow_metadata.extend(
+            kv.iter()
+                .map(|k| (k.key.clone(), k.value.clone().unwrap_or_default())),
+        );
+        let schema = Arc::new(schema.as_ref().clone().with_metadata(arrow_metadata));
         let props = WriterProperties::builder()
             .set_compression(Compression::SNAPPY)
             .set_max_row_group_row_count(Some(ROW_GROUP_ROWS))

@@ -26,6 +26,18 @@ fn field(name: &str, data_type: DataType, nullable: bool, unit: Option<&str>) ->
     }
 }
 
+/// A field with a unit and a description: the description carries what a
+/// standard unit string cannot (the time scale of a year, the system of a magnitude).
+fn described(name: &str, data_type: DataType, unit: &str, description: &str) -> Field {
+    field(name, data_type, true, Some(unit)).with_metadata(HashMap::from([
+        ("unit".to_string(), unit.to_string()),
+        ("description".to_string(), description.to_string()),
+    ]))
+}
+
+/// Description of magnitude columns of magnitude-only bands.
+const VEGA_MAG: &str = "Vega magnitude";
+
 fn f64s(values: Vec<Option<f64>>) -> ArrayRef {
     Arc::new(Float64Array::from(values))
 }
@@ -88,7 +100,13 @@ pub fn objects_batch(
         field("pos_err_arcsec", DataType::Float64, false, Some("arcsec")),
         field("pmra_cosdec_masyr", DataType::Float64, true, Some("mas/yr")),
         field("pmdec_masyr", DataType::Float64, true, Some("mas/yr")),
-        field("epoch_yr", DataType::Float64, false, Some("yr (Julian)")),
+        described(
+            "epoch_yr",
+            DataType::Float64,
+            "yr",
+            "epoch, Julian year (365.25 d)",
+        )
+        .with_nullable(false),
         field("n_catalogs", DataType::UInt16, false, None),
         field("n_detected", DataType::UInt16, false, None),
         field("flags", DataType::UInt32, false, None),
@@ -192,7 +210,7 @@ pub fn objects_batch(
         let (value, err, ulim, unit) = if band.has_flux {
             ("flux_jy", "flux_err_jy", "ulim_jy", "Jy")
         } else {
-            ("mag", "mag_err", "ulim_mag", "mag (Vega)")
+            ("mag", "mag_err", "ulim_mag", "mag")
         };
         let id = band.id;
         for (suffix, pick) in [
@@ -203,12 +221,12 @@ pub fn objects_batch(
             (err, |p| p.err),
             (ulim, |p| p.ulim),
         ] {
-            fields.push(field(
-                &format!("{id}_{suffix}"),
-                DataType::Float64,
-                true,
-                Some(unit),
-            ));
+            let name = format!("{id}_{suffix}");
+            fields.push(if unit == "mag" && suffix != "mag_err" {
+                described(&name, DataType::Float64, unit, VEGA_MAG)
+            } else {
+                field(&name, DataType::Float64, true, Some(unit))
+            });
             columns.push(f64s(
                 seds.iter()
                     .zip(&chosen)
@@ -297,12 +315,21 @@ pub fn photometry_batch(
         ("flux_lo_jy", "Jy"),
         ("flux_hi_jy", "Jy"),
         ("ulim_jy", "Jy"),
-        ("nufnu_cgs", "erg s-1 cm-2"),
-        ("mag", "mag (Vega)"),
+        ("nufnu_cgs", "mW.m**-2"),
+        ("mag", "mag"),
         ("mag_err", "mag"),
-        ("ulim_mag", "mag (Vega)"),
+        ("ulim_mag", "mag"),
     ] {
-        fields.push(field(name, DataType::Float64, true, Some(unit)));
+        fields.push(match name {
+            "mag" | "ulim_mag" => described(name, DataType::Float64, unit, VEGA_MAG),
+            "nufnu_cgs" => described(
+                name,
+                DataType::Float64,
+                unit,
+                "nu F_nu; 1 mW m-2 = 1 erg s-1 cm-2",
+            ),
+            _ => field(name, DataType::Float64, true, Some(unit)),
+        });
     }
     fields.push(field("status", status_type(), false, None));
     let mut columns: Vec<ArrayRef> = vec![

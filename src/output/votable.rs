@@ -7,7 +7,9 @@
 //! section of IVOA VOTable 1.4:
 //!
 //! - 2.1 datatypes and 4.2 FIELD (`name`, `datatype`, `arraysize`, `unit`, and
-//!   `ucd` from the field metadata `"ucd"`), mapped as:
+//!   `ucd` from the field metadata `"ucd"`, and a `DESCRIPTION` from the field
+//!   metadata `"description"`); units should be VOUnit strings (IVOA VOUnits
+//!   1.0), e.g. `Jy`, `mag`, `yr`, `mW.m**-2`. Datatypes are mapped as:
 //!
 //! | Arrow | datatype | bytes in a row |
 //! | --- | --- | --- |
@@ -180,6 +182,7 @@ struct Column {
     kind: Kind,
     unit: Option<String>,
     ucd: Option<String>,
+    description: Option<String>,
 }
 
 /// Reads the batches once to choose each column's datatype and check that every value fits it.
@@ -246,6 +249,7 @@ fn plan_columns(path: &Path, schema: &SchemaRef, batches: &[RecordBatch]) -> Res
             kind,
             unit: field.metadata().get("unit").cloned(),
             ucd: field.metadata().get("ucd").cloned(),
+            description: field.metadata().get("description").cloned(),
         });
     }
     Ok(columns)
@@ -310,7 +314,13 @@ fn document_head(
         if let Some(ucd) = &c.ucd {
             xml.push_str(&format!(" ucd=\"{}\"", escape_attr(path, &what, ucd)?));
         }
-        xml.push_str("/>\n");
+        match &c.description {
+            Some(d) => xml.push_str(&format!(
+                "><DESCRIPTION>{}</DESCRIPTION></FIELD>\n",
+                escape_text(path, &what, d)?
+            )),
+            None => xml.push_str("/>\n"),
+        }
     }
     xml.push_str("<DATA>\n<BINARY2>\n<STREAM encoding=\"base64\">\n");
     Ok(xml)

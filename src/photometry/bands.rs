@@ -189,7 +189,7 @@ impl BandLibrary {
     ///
     /// [`Error::Io`] if the file cannot be read; otherwise as [`BandLibrary::add_toml`].
     pub fn load_user_file(&mut self, path: &Path) -> Result<()> {
-        let text = std::fs::read_to_string(path).map_err(|e| Error::io(path, e))?;
+        let text = crate::error::read_toml_text(path)?;
         self.add_toml(&text, path)
     }
 
@@ -205,7 +205,8 @@ impl BandLibrary {
     ///   `wavelength_kind`, `zero_point_jy` ≤ 0, a negative `zero_point_err_jy`,
     ///   `asinh_softening` ≤ 0, a non-finite number, or an empty `source`.
     pub fn add_toml(&mut self, text: &str, path: &Path) -> Result<()> {
-        let file: BandFile = toml::from_str(text).map_err(|e| toml_error(text, path, &e))?;
+        let file: BandFile =
+            toml::from_str(text).map_err(|e| crate::error::toml_error(path, text, &e))?;
         let mut new_bands: Vec<(Band, BandOrigin)> = Vec::with_capacity(file.band.len());
         let mut new_index: HashMap<String, usize> = HashMap::new();
         for raw in file.band {
@@ -256,22 +257,6 @@ impl BandLibrary {
     /// Whether the library holds no band.
     pub fn is_empty(&self) -> bool {
         self.bands.is_empty()
-    }
-}
-
-/// Turns a TOML parse or shape error into [`Error::Toml`] with a one-line message.
-fn toml_error(text: &str, path: &Path, err: &toml::de::Error) -> Error {
-    let message = match err.span() {
-        Some(span) => format!(
-            "line {}: {}",
-            line_of_offset(text, span.start),
-            err.message().trim_end()
-        ),
-        None => err.message().trim_end().to_string(),
-    };
-    Error::Toml {
-        path: path.to_path_buf(),
-        message,
     }
 }
 
@@ -831,7 +816,7 @@ source = "Oke & Gunn 1983, ApJ 266, 713"
             .unwrap_err();
         match &err {
             Error::Toml { message, .. } => {
-                assert!(message.starts_with("line 7:"), "{err}");
+                assert!(message.starts_with("line 7, column 1: "), "{err}");
                 assert!(message.contains("zeropoint"), "{err}");
             }
             other => panic!("expected a TOML error, got {other:?}"),
@@ -841,7 +826,7 @@ source = "Oke & Gunn 1983, ApJ 266, 713"
             .add_toml(&text, Path::new("user.toml"))
             .unwrap_err();
         match &err {
-            Error::Toml { message, .. } => assert!(message.starts_with("line 4:"), "{err}"),
+            Error::Toml { message, .. } => assert!(message.starts_with("line 4, column "), "{err}"),
             other => panic!("expected a TOML error, got {other:?}"),
         }
     }

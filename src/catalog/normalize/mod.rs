@@ -342,10 +342,7 @@ pub fn output_schema(schema: &SurveySchema) -> SchemaRef {
         Field::new("row", DataType::UInt64, false),
         with_unit(Field::new("ra_deg", DataType::Float64, false), "deg"),
         with_unit(Field::new("dec_deg", DataType::Float64, false), "deg"),
-        with_unit(
-            Field::new("epoch_yr", DataType::Float64, false),
-            "yr (Julian)",
-        ),
+        with_unit(Field::new("epoch_yr", DataType::Float64, false), "yr"),
         with_unit(
             Field::new("pos_err_major_arcsec", DataType::Float64, false),
             "arcsec",
@@ -356,7 +353,7 @@ pub fn output_schema(schema: &SurveySchema) -> SchemaRef {
         ),
         with_unit(
             Field::new("pos_err_pa_deg", DataType::Float64, false),
-            "deg E of N",
+            "deg",
         ),
         with_unit(
             Field::new("pmra_cosdec_masyr", DataType::Float64, true),
@@ -383,7 +380,7 @@ pub fn output_schema(schema: &SurveySchema) -> SchemaRef {
             for suffix in ["mag", "mag_err", "ulim_mag"] {
                 fields.push(with_unit(
                     Field::new(format!("{id}_{suffix}"), DataType::Float64, true),
-                    "mag (Vega)",
+                    "mag",
                 ));
             }
         }
@@ -791,7 +788,56 @@ impl<'a> BandInput<'a> {
         })
     }
 
+    /// The outcome of row `i`; a value whose conversion overflows (a magnitude of
+    /// -1000 gives an infinite flux density) is unreadable like text in a
+    /// number column.
     fn evaluate(&self, i: usize) -> Result<Outcome, RowProblem> {
+        let outcome = self.classify(i)?;
+        let finite = |v: Option<f64>| v.is_none_or(f64::is_finite);
+        let (value_ok, error_ok) = match &outcome {
+            Outcome::Detected(f) => (
+                f.flux_jy.is_finite(),
+                finite(f.err_jy) && finite(f.lo_jy) && finite(f.hi_jy),
+            ),
+            Outcome::UpperLimit(limit, noise) => (limit.is_finite(), finite(*noise)),
+            Outcome::NotDetected(limit) => (finite(*limit), true),
+            Outcome::Missing | Outcome::Rejected(_) => (true, true),
+        };
+        if value_ok && error_ok {
+            return Ok(outcome);
+        }
+        let spec = self.spec;
+        let (column, input) = match (&spec.error, &self.error) {
+            (Some(name), Some(col)) if value_ok => (name.as_str(), col),
+            _ => match (&spec.limit, &self.limit_column) {
+                (Some(LimitMarker::Column { column }), Some(col))
+                    if self
+                        .value
+                        .get(i, &spec.null_text, &spec.nulls)
+                        .ok()
+                        .flatten()
+                        .is_none() =>
+                {
+                    (column.as_str(), col)
+                }
+                _ => (spec.value.as_str(), &self.value),
+            },
+        };
+        let found = match input.get(i, &spec.null_text, &spec.nulls) {
+            Ok(Some(v)) => v.to_string(),
+            _ => String::new(),
+        };
+        Err(RowProblem::new(
+            column,
+            &format!(
+                "a value in unit {} that converts to a finite flux density",
+                spec.unit.as_str()
+            ),
+            found,
+        ))
+    }
+
+    fn classify(&self, i: usize) -> Result<Outcome, RowProblem> {
         let spec = self.spec;
         let unreadable = |column: &str, e: NotANumber| {
             RowProblem::new(
