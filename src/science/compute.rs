@@ -312,6 +312,7 @@ pub fn compute(seds: &FieldSeds, settings: &ScienceSettings) -> Result<Science> 
             && let Some((fa, ea)) = flux_for(a)
         {
             let ab = &seds.bands[a];
+            bands[a].phot_jy = Some(fa);
             for (k, b) in seds.bands.iter().enumerate() {
                 if k == a {
                     continue;
