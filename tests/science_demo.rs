@@ -45,6 +45,9 @@ fn built() -> &'static PathBuf {
             "--quiet",
         ]);
         assert_eq!(code, 0, "{stderr}");
+        // The demo plan has a [science] table, so build wrote the science table.
+        let written = read_parquet(&out.join("science.parquet"));
+        assert!(written.column_by_name("tmass_ks_minus_mips_24_mag").is_some());
         // The truth's α is an equal-weight fit over Ks, the four IRAC-like bands and
         // 24 µm (src/demo/truth.rs); the science run uses the same estimator, and the
         // truth's A_V and T_eff per object for the photosphere (blackbody, as the demo's).
