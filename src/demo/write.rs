@@ -1053,6 +1053,14 @@ fn plan_text(observed: &[SurveyObservation]) -> String {
     text.push_str(
         "\n[output]\nfolder = \"../../out/fl1\"\nexports = [\"csv\", \"fits\", \"votable\"]\n",
     );
+    text.push_str(concat!(
+        "\n# Spectral indices, classes, photosphere excesses and colours: science.parquet.\n",
+        "[science]\n",
+        "alpha_window_um = [2.0, 24.0]\n",
+        "anchor = \"tmass_ks\"\n",
+        "photosphere = \"zero_vega_colour\"\n",
+        "colours = [\"tmass_j-tmass_h\", \"tmass_h-tmass_ks\", \"tmass_ks-irac_36\", \"irac_36-irac_45\", \"irac_45-irac_80\", \"tmass_ks-mips_24\", \"sdss_g-sdss_r\"]\n",
+    ));
     text
 }
 

@@ -355,6 +355,21 @@ enum Mark {
     },
 }
 
+/// Where the legend goes.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum LegendPlace {
+    /// Inside the plot area, top-right corner.
+    TopRight,
+    /// Inside the plot area, top-left corner.
+    TopLeft,
+    /// Inside the plot area, bottom-right corner.
+    BottomRight,
+    /// Inside the plot area, bottom-left corner.
+    BottomLeft,
+    /// Outside, in the right margin (widen `margins_px.1` to make room).
+    Outside,
+}
+
 /// A figure: canvas, margins, two axes, marks and a legend.
 #[derive(Debug, Clone, PartialEq)]
 pub struct Figure {
@@ -372,6 +387,8 @@ pub struct Figure {
     pub y_axis: Axis,
     /// Font size of tick labels, px (labels and title are scaled from it).
     pub font_px: f64,
+    /// Where the legend is drawn.
+    pub legend_place: LegendPlace,
     marks: Vec<Mark>,
     legend: Vec<(String, LegendKey)>,
 }
@@ -414,6 +431,7 @@ impl Figure {
             x_axis: Axis::linear("", 0.0, 1.0),
             y_axis: Axis::linear("", 0.0, 1.0),
             font_px: 12.0,
+            legend_place: LegendPlace::TopRight,
             marks: Vec::new(),
             legend: Vec::new(),
         }
@@ -525,7 +543,7 @@ impl Figure {
         });
     }
 
-    /// Adds a legend entry (the legend is drawn in the top-right of the plot area).
+    /// Adds a legend entry (the legend is drawn where [`Figure::legend_place`] says).
     pub fn legend_entry(&mut self, text: &str, key: LegendKey) {
         self.legend.push((text.to_string(), key));
     }
@@ -940,7 +958,7 @@ impl Figure {
         if self.legend.is_empty() {
             return;
         }
-        let (l, t, aw, _) = self.area();
+        let (l, t, aw, ah) = self.area();
         let fs = self.font_px;
         let longest = self
             .legend
@@ -951,7 +969,13 @@ impl Figure {
         let row = fs * 1.5;
         let box_w = 34.0 + longest * fs * 0.62;
         let box_h = row * self.legend.len() as f64 + fs * 0.5;
-        let (x0, y0) = (l + aw - box_w - 8.0, t + 8.0);
+        let (x0, y0) = match self.legend_place {
+            LegendPlace::TopRight => (l + aw - box_w - 8.0, t + 8.0),
+            LegendPlace::TopLeft => (l + 8.0, t + 8.0),
+            LegendPlace::BottomRight => (l + aw - box_w - 8.0, t + ah - box_h - 8.0),
+            LegendPlace::BottomLeft => (l + 8.0, t + ah - box_h - 8.0),
+            LegendPlace::Outside => (l + aw + 10.0, t),
+        };
         let _ = writeln!(
             s,
             r##"<g class="legend"><rect x="{}" y="{}" width="{}" height="{}" fill="#ffffff" fill-opacity="0.85" stroke="#888888" stroke-width="0.8"/>"##,

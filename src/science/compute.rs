@@ -312,6 +312,7 @@ pub fn compute(seds: &FieldSeds, settings: &ScienceSettings) -> Result<Science> 
             && let Some((fa, ea)) = flux_for(a)
         {
             let ab = &seds.bands[a];
+            bands[a].phot_jy = Some(fa);
             for (k, b) in seds.bands.iter().enumerate() {
                 if k == a {
                     continue;
@@ -410,5 +411,154 @@ impl ObjectScience {
             .zip(&self.bands)
             .filter(move |(b, s)| s.flagged && keep(b.wavelength_um))
             .map(|(b, _)| b.id.as_str())
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::science::settings::HalphaBands;
+
+    fn band(id: &str, system: &str, l: f64, f0: Option<f64>) -> BandInfo {
+        BandInfo {
+            id: id.into(),
+            system: system.into(),
+            name: id.into(),
+            wavelength_um: l,
+            zero_point_jy: f0,
+        }
+    }
+
+    fn flux(f0: f64, m: f64) -> BandValue {
+        let f = f0 * 10f64.powf(-0.4 * m);
+        BandValue {
+            flux_jy: Some(f),
+            flux_err_jy: Some(0.01 * f),
+            ..BandValue::default()
+        }
+    }
+
+    fn mag(m: f64) -> BandValue {
+        BandValue {
+            mag: Some(m),
+            mag_err: Some(0.01),
+            ..BandValue::default()
+        }
+    }
+
+    /// One object: Strömgren u v b y (magnitude-only), AB r, Hα, i, 2MASS J H Ks.
+    fn field() -> FieldSeds {
+        let bands = vec![
+            band("strom_u", "vega", 0.35, None),
+            band("strom_v", "vega", 0.41, None),
+            band("strom_b", "vega", 0.47, None),
+            band("strom_y", "vega", 0.55, None),
+            band("sdss_r", "ab", 0.6166, Some(3631.0)),
+            band("halpha", "ab", 0.6563, Some(3631.0)),
+            band("sdss_i", "ab", 0.7480, Some(3631.0)),
+            band("tmass_j", "vega", 1.235, Some(1594.0)),
+            band("tmass_h", "vega", 1.662, Some(1024.0)),
+            band("tmass_ks", "vega", 2.159, Some(666.7)),
+        ];
+        // Intrinsic J − H = 0.6 reddened by A_V = 2 with O'Donnell 1994 / CCM89 (R_V = 3.1):
+        // E(J − H) = 2 × (0.2876 − 0.1783) (FIELD §3.3).
+        let law = ExtinctionLawCheck::new();
+        let jh = 0.6 + 2.0 * (law.j - law.h);
+        let values = vec![vec![
+            mag(10.0),
+            mag(9.5),
+            mag(9.2),
+            mag(9.0),
+            flux(3631.0, 23.9),
+            // Twice the r flux density in Hα: r − Hα = 2.5 log10 2 (AB both).
+            BandValue {
+                flux_jy: Some(2.0 * 3631.0 * 10f64.powf(-0.4 * 23.9)),
+                flux_err_jy: None,
+                ..BandValue::default()
+            },
+            flux(3631.0, 23.7),
+            flux(1594.0, 10.0 + jh),
+            flux(1024.0, 10.0),
+            flux(666.7, 9.7),
+        ]];
+        FieldSeds {
+            path: "objects.parquet".into(),
+            bands,
+            object_id: vec!["a:1".into()],
+            values,
+            metadata: Vec::new(),
+        }
+    }
+
+    struct ExtinctionLawCheck {
+        j: f64,
+        h: f64,
+        ks: f64,
+    }
+
+    impl ExtinctionLawCheck {
+        fn new() -> Self {
+            let law = crate::science::extinction::ExtinctionLaw::default();
+            ExtinctionLawCheck {
+                j: law.a_over_av(1.235).unwrap(),
+                h: law.a_over_av(1.662).unwrap(),
+                ks: law.a_over_av(2.159).unwrap(),
+            }
+        }
+    }
+
+    #[test]
+    fn indices_av_from_colour_and_dereddened_colours() {
+        let seds = field();
+        let settings = ScienceSettings {
+            av: AvSource::Colour {
+                blue: "tmass_j".into(),
+                red: "tmass_h".into(),
+                intrinsic_mag: 0.6,
+            },
+            colours: vec![("tmass_ks".into(), "tmass_h".into())],
+            halpha: Some(HalphaBands {
+                r: "sdss_r".into(),
+                halpha: "halpha".into(),
+                i: "sdss_i".into(),
+            }),
+            ..ScienceSettings::default()
+        };
+        let sci = compute(&seds, &settings).unwrap();
+        let o = &sci.objects[0];
+        // Strömgren example of src/photometry/stromgren.rs: b−y 0.2, m1 0.1, c1 0.2.
+        let (by, m1, c1) = o.stromgren.unwrap();
+        assert!((by - 0.2).abs() < 1e-9 && (m1 - 0.1).abs() < 1e-9 && (c1 - 0.2).abs() < 1e-9);
+        // r − Hα = 2.5 log10 2 = 0.7526 mag; r − i = 23.9 − 23.7 = 0.2 mag.
+        let (rh, ri) = o.halpha;
+        assert!((rh.unwrap().value_mag - 0.752_574_99).abs() < 1e-6);
+        assert_eq!(rh.unwrap().err_mag, None);
+        assert!((ri.unwrap().value_mag - 0.2).abs() < 1e-9);
+        // A_V recovered from J − H against its intrinsic 0.6.
+        assert!((o.av_mag.unwrap() - 2.0).abs() < 1e-9);
+        // The colour is ordered bluer minus redder whatever the order asked: H − Ks.
+        assert_eq!(sci.colours, vec![(8, 9)]);
+        let c = o.colours[0].unwrap();
+        assert!((c.value_mag - 0.3).abs() < 1e-9);
+        let law = ExtinctionLawCheck::new();
+        let dered = o.colours_dered[0].unwrap();
+        assert!((dered - (0.3 - 2.0 * (law.h - law.ks))).abs() < 1e-9);
+        // Dereddened flux: F · 10^(0.4 A_V A_Ks/A_V); the observed flux is untouched.
+        let ks_obs = seds.values[0][9].flux_jy.unwrap();
+        let ks_dered = o.bands[9].dered_flux_jy.unwrap();
+        assert!((ks_dered / ks_obs - 10f64.powf(0.4 * 2.0 * law.ks)).abs() < 1e-12);
+    }
+
+    #[test]
+    fn an_unknown_band_in_the_settings_is_named() {
+        let seds = field();
+        let settings = ScienceSettings {
+            colours: vec![("tmass_j".into(), "wise_w9".into())],
+            ..ScienceSettings::default()
+        };
+        assert_eq!(
+            compute(&seds, &settings).unwrap_err().to_string(),
+            "objects.parquet: no band \"wise_w9\" (the field has: strom_u, strom_v, strom_b, strom_y, sdss_r, halpha, sdss_i, tmass_j, tmass_h, tmass_ks)"
+        );
     }
 }

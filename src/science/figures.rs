@@ -15,7 +15,9 @@ use super::alpha::YsoClass;
 use super::compute::{ObjectScience, Science};
 use super::sed_table::FieldSeds;
 use crate::photometry::flux::nu_fnu_cgs;
-use crate::plot::{Anchor, Axis, Colour, Figure, LegendKey, LineStyle, Marker, PointStyle, Scale};
+use crate::plot::{
+    Anchor, Axis, Colour, Figure, LegendKey, LegendPlace, LineStyle, Marker, PointStyle, Scale,
+};
 
 /// Styles of the five groups points are drawn in, with their legend text.
 fn group_style(o: &ObjectScience, ir_excess: bool) -> (usize, PointStyle, &'static str) {
@@ -98,15 +100,44 @@ pub fn sed_figure(seds: &FieldSeds, sci: &Science, k: usize) -> Figure {
         })
         .collect();
     xs.extend(seds.bands.iter().map(|b| b.wavelength_um));
+    if o.excess_dereddened {
+        ys.extend(seds.bands.iter().zip(&o.bands).filter_map(|(b, s)| {
+            s.dered_flux_jy
+                .filter(|f| *f > 0.0)
+                .map(|f| nu_fnu_cgs(f, b.wavelength_um))
+        }));
+    }
     fig.x_axis = Axis::covering("wavelength λ (µm)", Scale::Log10, &xs, 0.05);
     fig.y_axis = Axis::covering("λF_λ (erg s⁻¹ cm⁻²)", Scale::Log10, &ys, 0.08);
     let black = PointStyle::filled(Marker::Circle, Colour::BLACK);
     if !phot.is_empty() {
         let style = LineStyle::dashed(Colour::GREY);
         fig.polyline(&phot, &style, "photosphere");
+        let how = if o.excess_dereddened {
+            ", dereddened"
+        } else {
+            ""
+        };
         fig.legend_entry(
-            &format!("photosphere ({})", sci.settings.anchor),
+            &format!("photosphere ({}{how})", sci.settings.anchor),
             LegendKey::Line(style),
+        );
+    }
+    if o.excess_dereddened {
+        let dered: Vec<(f64, f64)> = seds
+            .bands
+            .iter()
+            .zip(&o.bands)
+            .filter_map(|(b, s)| {
+                let f = s.dered_flux_jy.filter(|f| *f > 0.0)?;
+                Some((b.wavelength_um, nu_fnu_cgs(f, b.wavelength_um)))
+            })
+            .collect();
+        let style = PointStyle::open(Marker::Circle, Colour::BLUE);
+        fig.points(&dered, &style, "dereddened");
+        fig.legend_entry(
+            &format!("dereddened, A_V = {:.2} mag", o.av_mag.unwrap_or(0.0)),
+            LegendKey::Point(style),
         );
     }
     fig.error_bars(&bars, Colour::BLACK, "error-bar");
@@ -148,7 +179,7 @@ pub fn sed_figure(seds: &FieldSeds, sci: &Science, k: usize) -> Figure {
         }
         None => "α: fewer than two detections in the window".to_string(),
     };
-    fig.note((0.03, 0.07), &note, Anchor::Start, "alpha-value");
+    fig.note((0.03, 0.95), &note, Anchor::Start, "alpha-value");
     fig
 }
 
@@ -251,7 +282,9 @@ pub fn colour_colour_figure(
     av_mag: f64,
     locus: Option<&Locus>,
 ) -> Figure {
-    let mut fig = Figure::new(640.0, 560.0);
+    let mut fig = Figure::new(960.0, 560.0);
+    fig.margins_px.1 = 340.0;
+    fig.legend_place = LegendPlace::Outside;
     let pts: Vec<(usize, f64, f64)> = (0..seds.object_id.len())
         .filter_map(|k| Some((k, measured(seds, k, x)?, measured(seds, k, y)?)))
         .collect();
@@ -307,7 +340,9 @@ pub fn colour_magnitude_figure(
     av_mag: f64,
     locus: Option<&Locus>,
 ) -> Figure {
-    let mut fig = Figure::new(560.0, 640.0);
+    let mut fig = Figure::new(900.0, 640.0);
+    fig.margins_px.1 = 340.0;
+    fig.legend_place = LegendPlace::Outside;
     let pts: Vec<(usize, f64, f64)> = (0..seds.object_id.len())
         .filter_map(|k| {
             let (mag, _) = seds.values[k][m].detected_mag(&seds.bands[m])?;

@@ -44,6 +44,9 @@ impl Photosphere {
             Photosphere::RayleighJeans => {
                 "Rayleigh-Jeans F_nu ∝ λ^-2 from the anchor (under-predicts hot photospheres by 12-27 % in the mid-infrared)".to_string()
             }
+            Photosphere::Blackbody { teff_k } if teff_k.is_nan() => {
+                "blackbody of each object's T_eff scaled to the anchor".to_string()
+            }
             Photosphere::Blackbody { teff_k } => {
                 format!("blackbody of T_eff = {teff_k} K scaled to the anchor")
             }

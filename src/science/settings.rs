@@ -80,7 +80,7 @@ pub struct ScienceSettings {
     pub alpha_bands: Vec<String>,
     /// Photosphere anchor band id.
     pub anchor: String,
-    /// Photosphere assumption.
+    /// Photosphere assumption (a blackbody with T_eff NaN: T_eff only from `teff_table`).
     pub photosphere: Photosphere,
     /// Per-object blackbody T_eff (CSV with object_id, teff_k); used with a
     /// blackbody photosphere, objects not in it fall back to `teff_k` if given.
