@@ -1,6 +1,9 @@
 //! `fluxloom build` end to end on the demo field, checked against the truth the
 //! demo generator wrote beside the catalogs (`demo_catalogs/fl1/truth_*.csv`).
 
+mod common;
+
+use common::read_parquet;
 use std::collections::{BTreeMap, HashMap, HashSet};
 use std::fs;
 use std::path::{Path, PathBuf};
@@ -8,7 +11,6 @@ use std::process::Command;
 
 use arrow::array::{Array, AsArray, RecordBatch};
 use arrow::datatypes::{DataType, Float64Type, UInt32Type};
-use parquet::arrow::arrow_reader::ParquetRecordBatchReaderBuilder;
 
 fn repo() -> PathBuf {
     PathBuf::from(env!("CARGO_MANIFEST_DIR"))
@@ -35,15 +37,6 @@ fn build(plan: &Path, out: &Path) -> (i32, String, String) {
         String::from_utf8_lossy(&o.stdout).into_owned(),
         String::from_utf8_lossy(&o.stderr).into_owned(),
     )
-}
-
-fn read_parquet(path: &Path) -> RecordBatch {
-    let reader = ParquetRecordBatchReaderBuilder::try_new(fs::File::open(path).unwrap())
-        .unwrap()
-        .build()
-        .unwrap();
-    let batches: Vec<RecordBatch> = reader.map(|b| b.unwrap()).collect();
-    arrow::compute::concat_batches(&batches[0].schema(), &batches).unwrap()
 }
 
 fn text(batch: &RecordBatch, name: &str) -> Vec<Option<String>> {

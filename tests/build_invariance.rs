@@ -19,10 +19,13 @@ fn build(out: &Path, extra: &[&str]) {
     );
 }
 
+/// The output files of a folder with their bytes, without the hidden markers of
+/// the output commit.
 fn files(dir: &Path) -> Vec<(String, Vec<u8>)> {
     let mut v: Vec<(String, Vec<u8>)> = std::fs::read_dir(dir)
         .unwrap()
         .map(|e| e.unwrap().path())
+        .filter(|p| !p.file_name().unwrap().to_string_lossy().starts_with('.'))
         .map(|p| {
             (
                 p.file_name().unwrap().to_string_lossy().into_owned(),

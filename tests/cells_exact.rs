@@ -2,61 +2,15 @@
 //! when cells are much smaller than the groups of candidates that cross them, so
 //! that cells must be matched again with wider margins.
 
+mod common;
+
+use common::fingerprint;
 use fluxloom::crossmatch::{
-    CatalogSettings, MatchConfig, MatchResult, SourceTable, Tolerance, run_match_with_area,
+    CatalogSettings, MatchConfig, SourceTable, Tolerance, run_match_with_area,
 };
 use fluxloom::rng::Rng;
 use fluxloom::sky::propagation::propagate_deg;
 use proptest::prelude::*;
-
-/// Everything about a result except the partition-dependent owner cell.
-fn fingerprint(tables: &[SourceTable], r: &MatchResult) -> Vec<String> {
-    let mut lines: Vec<String> = r
-        .objects
-        .iter()
-        .map(|o| {
-            let members: Vec<String> = o
-                .members
-                .iter()
-                .map(|m| {
-                    format!(
-                        "{}:{}:{:.12}:{:.12}",
-                        m.catalog, tables[m.catalog].source_id[m.row], m.sep_arcsec, m.probability
-                    )
-                })
-                .collect();
-            format!(
-                "{} {:.12} {:.12} {} {:.12} {:?} [{}]",
-                o.object_id(tables),
-                o.ra_deg,
-                o.dec_deg,
-                o.flags,
-                o.probability,
-                o.related_ids(tables),
-                members.join(" ")
-            )
-        })
-        .collect();
-    lines.extend(r.links.iter().map(|l| {
-        format!(
-            "{}:{} {}:{} {:.12} {:.12} {} {} {}",
-            l.catalog_a,
-            tables[l.catalog_a].source_id[l.row_a],
-            l.catalog_b,
-            tables[l.catalog_b].source_id[l.row_b],
-            l.sep_arcsec,
-            l.probability,
-            l.chosen,
-            l.object_a.object_id(tables),
-            l.object_b.object_id(tables)
-        )
-    }));
-    lines.push(format!(
-        "groups {} largest {} approximate {} candidates {}",
-        r.stats.groups, r.stats.largest_group, r.stats.approximate_groups, r.stats.candidates
-    ));
-    lines
-}
 
 fn config(n: usize, order: u8) -> MatchConfig {
     let mut c = MatchConfig::new(n, 2016.0);

@@ -3,10 +3,13 @@
 //! order of rows, the number of threads or the partitioning of the sky.
 //! Fields are placed anywhere, including across RA 0/360° and within 1° of both poles.
 
+mod common;
+
+use common::fingerprint;
 use fluxloom::crossmatch::candidates::{find_candidates, test_pair};
 use fluxloom::crossmatch::prepare::Sources;
 use fluxloom::crossmatch::{
-    CatalogSettings, MatchConfig, MatchResult, SourceTable, Tolerance, run_match_with_area,
+    CatalogSettings, MatchConfig, SourceTable, Tolerance, run_match_with_area,
 };
 use fluxloom::rng::Rng;
 use fluxloom::sky::propagation::propagate_deg;
@@ -90,54 +93,6 @@ fn config(n: usize, order: u8) -> MatchConfig {
         })
         .collect();
     c
-}
-
-/// Everything about a result except the partition-dependent owner cell.
-fn fingerprint(tables: &[SourceTable], r: &MatchResult) -> Vec<String> {
-    let mut lines: Vec<String> = r
-        .objects
-        .iter()
-        .map(|o| {
-            let members: Vec<String> = o
-                .members
-                .iter()
-                .map(|m| {
-                    format!(
-                        "{}:{}:{:.12}:{:.12}",
-                        m.catalog, tables[m.catalog].source_id[m.row], m.sep_arcsec, m.probability
-                    )
-                })
-                .collect();
-            format!(
-                "{} {:.12} {:.12} {} {:.12} {:?} [{}]",
-                o.object_id(tables),
-                o.ra_deg,
-                o.dec_deg,
-                o.flags,
-                o.probability,
-                o.related_ids(tables),
-                members.join(" ")
-            )
-        })
-        .collect();
-    let mut links: Vec<String> = r
-        .links
-        .iter()
-        .map(|l| {
-            let (a, b) = (
-                format!("{}:{}", l.catalog_a, tables[l.catalog_a].source_id[l.row_a]),
-                format!("{}:{}", l.catalog_b, tables[l.catalog_b].source_id[l.row_b]),
-            );
-            let (a, b) = if a < b { (a, b) } else { (b, a) };
-            format!(
-                "{a} {b} {:.12} {:.12} {}",
-                l.sep_arcsec, l.probability, l.chosen
-            )
-        })
-        .collect();
-    links.sort();
-    lines.extend(links);
-    lines
 }
 
 fn shuffled(tables: &[SourceTable], seed: u64) -> Vec<SourceTable> {

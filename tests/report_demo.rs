@@ -3,6 +3,9 @@
 //! output tables, against the truth the demo generator wrote
 //! (`demo_catalogs/fl1/truth_members.csv`), and the page is parsed as XML.
 
+mod common;
+
+use common::read_parquet;
 use std::collections::{BTreeMap, HashMap, HashSet};
 use std::fs;
 use std::path::{Path, PathBuf};
@@ -10,7 +13,6 @@ use std::process::Command;
 
 use arrow::array::{Array, AsArray, RecordBatch};
 use arrow::datatypes::{DataType, Float64Type};
-use parquet::arrow::arrow_reader::ParquetRecordBatchReaderBuilder;
 use serde_json::Value;
 
 fn demo() -> PathBuf {
@@ -35,15 +37,6 @@ fn built() -> &'static (PathBuf, String) {
 
 fn json(path: &Path) -> Value {
     serde_json::from_str(&fs::read_to_string(path).unwrap()).unwrap()
-}
-
-fn read_parquet(path: &Path) -> RecordBatch {
-    let reader = ParquetRecordBatchReaderBuilder::try_new(fs::File::open(path).unwrap())
-        .unwrap()
-        .build()
-        .unwrap();
-    let batches: Vec<RecordBatch> = reader.map(|b| b.unwrap()).collect();
-    arrow::compute::concat_batches(&batches[0].schema(), &batches).unwrap()
 }
 
 fn text(batch: &RecordBatch, name: &str) -> Vec<String> {

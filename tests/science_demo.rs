@@ -1,6 +1,9 @@
 //! The science layer on the demo field, against the truth the demo generator
 //! wrote (`demo_catalogs/fl1/truth_*.csv`), and the figures it draws.
 
+mod common;
+
+use common::read_parquet;
 use std::collections::{HashMap, HashSet};
 use std::fs;
 use std::path::{Path, PathBuf};
@@ -8,7 +11,6 @@ use std::process::Command;
 
 use arrow::array::{Array, AsArray, RecordBatch};
 use arrow::datatypes::{DataType, Float64Type};
-use parquet::arrow::arrow_reader::ParquetRecordBatchReaderBuilder;
 
 fn repo() -> PathBuf {
     PathBuf::from(env!("CARGO_MANIFEST_DIR"))
@@ -88,15 +90,6 @@ fn built() -> &'static PathBuf {
         assert!(stdout.starts_with("wrote "), "{stdout}");
         out
     })
-}
-
-fn read_parquet(path: &Path) -> RecordBatch {
-    let reader = ParquetRecordBatchReaderBuilder::try_new(fs::File::open(path).unwrap())
-        .unwrap()
-        .build()
-        .unwrap();
-    let batches: Vec<RecordBatch> = reader.map(|b| b.unwrap()).collect();
-    arrow::compute::concat_batches(&batches[0].schema(), &batches).unwrap()
 }
 
 fn text(batch: &RecordBatch, name: &str) -> Vec<Option<String>> {

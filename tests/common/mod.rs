@@ -1,0 +1,69 @@
+//! Helpers shared by the integration tests (each test file uses some of them).
+#![allow(dead_code)]
+
+use std::path::Path;
+
+use arrow::array::RecordBatch;
+use fluxloom::crossmatch::{MatchResult, SourceTable};
+use parquet::arrow::arrow_reader::ParquetRecordBatchReaderBuilder;
+
+/// All rows of a Parquet file as one batch.
+pub fn read_parquet(path: &Path) -> RecordBatch {
+    let reader = ParquetRecordBatchReaderBuilder::try_new(std::fs::File::open(path).unwrap())
+        .unwrap()
+        .build()
+        .unwrap();
+    let batches: Vec<RecordBatch> = reader.map(|b| b.unwrap()).collect();
+    arrow::compute::concat_batches(&batches[0].schema(), &batches).unwrap()
+}
+
+/// Everything about a match result, as text lines to compare: objects with
+/// their members, flags and relations, every link with its objects, and the
+/// group statistics.
+pub fn fingerprint(tables: &[SourceTable], r: &MatchResult) -> Vec<String> {
+    let mut lines: Vec<String> = r
+        .objects
+        .iter()
+        .map(|o| {
+            let members: Vec<String> = o
+                .members
+                .iter()
+                .map(|m| {
+                    format!(
+                        "{}:{}:{:.12}:{:.12}",
+                        m.catalog, tables[m.catalog].source_id[m.row], m.sep_arcsec, m.probability
+                    )
+                })
+                .collect();
+            format!(
+                "{} {:.12} {:.12} {} {:.12} {:?} [{}]",
+                o.object_id(tables),
+                o.ra_deg,
+                o.dec_deg,
+                o.flags,
+                o.probability,
+                o.related_ids(tables),
+                members.join(" ")
+            )
+        })
+        .collect();
+    lines.extend(r.links.iter().map(|l| {
+        format!(
+            "{}:{} {}:{} {:.12} {:.12} {} {} {}",
+            l.catalog_a,
+            tables[l.catalog_a].source_id[l.row_a],
+            l.catalog_b,
+            tables[l.catalog_b].source_id[l.row_b],
+            l.sep_arcsec,
+            l.probability,
+            l.chosen,
+            l.object_a.object_id(tables),
+            l.object_b.object_id(tables)
+        )
+    }));
+    lines.push(format!(
+        "groups {} largest {} approximate {} candidates {}",
+        r.stats.groups, r.stats.largest_group, r.stats.approximate_groups, r.stats.candidates
+    ));
+    lines
+}
