@@ -352,16 +352,22 @@ pub fn photometry_batch(
         .map_err(|e| Error::Usage(format!("photometry table: {e}")))
 }
 
+/// Appends the identifier `<catalog>:<source id>` of the object anchored on `a`
+/// to the value being built.
+fn push_object_id(b: &mut arrow::array::StringBuilder, a: SourceRef, tables: &[SourceTable]) {
+    let t = &tables[a.catalog as usize];
+    b.write_str(&t.name)
+        .and_then(|()| b.write_char(':'))
+        .and_then(|()| b.write_str(&t.source_id[a.row as usize]))
+        .expect("writing to a string builder");
+}
+
 /// Object identifiers `<catalog>:<source id>` of anchors, written straight into
 /// one Arrow string array.
 fn object_ids(anchors: impl Iterator<Item = SourceRef>, tables: &[SourceTable]) -> ArrayRef {
     let mut b = arrow::array::StringBuilder::new();
     for a in anchors {
-        let t = &tables[a.catalog as usize];
-        b.write_str(&t.name).expect("writing to a string builder");
-        b.write_char(':').expect("writing to a string builder");
-        b.write_str(&t.source_id[a.row as usize])
-            .expect("writing to a string builder");
+        push_object_id(&mut b, a, tables);
         b.append_value("");
     }
     Arc::new(b.finish())
@@ -376,15 +382,11 @@ fn related_ids(objects: &[MatchedObject], tables: &[SourceTable]) -> ArrayRef {
             b.append_null();
             continue;
         }
-        for (k, r) in o.related.iter().enumerate() {
+        for (k, &r) in o.related.iter().enumerate() {
             if k > 0 {
                 b.write_char(',').expect("writing to a string builder");
             }
-            let t = &tables[r.catalog as usize];
-            b.write_str(&t.name).expect("writing to a string builder");
-            b.write_char(':').expect("writing to a string builder");
-            b.write_str(&t.source_id[r.row as usize])
-                .expect("writing to a string builder");
+            push_object_id(&mut b, r, tables);
         }
         b.append_value("");
     }
