@@ -3,7 +3,7 @@
 
 mod common;
 
-use common::read_parquet;
+use common::{read_csv_rows, read_parquet};
 use std::collections::{HashMap, HashSet};
 use std::fs;
 use std::path::{Path, PathBuf};
@@ -117,26 +117,6 @@ fn floats(batch: &RecordBatch, name: &str) -> Vec<Option<f64>> {
     let a = col.as_primitive::<Float64Type>();
     (0..a.len())
         .map(|i| a.is_valid(i).then(|| a.value(i)))
-        .collect()
-}
-
-fn read_csv_rows(path: &Path) -> Vec<HashMap<String, String>> {
-    let text = fs::read_to_string(path).unwrap();
-    let mut lines = text.lines().filter(|l| !l.starts_with('#'));
-    let header: Vec<String> = lines
-        .next()
-        .unwrap()
-        .split(',')
-        .map(str::to_string)
-        .collect();
-    lines
-        .map(|l| {
-            header
-                .iter()
-                .cloned()
-                .zip(l.split(',').map(str::to_string))
-                .collect()
-        })
         .collect()
 }
 

@@ -1,6 +1,7 @@
 //! Helpers shared by the integration tests (each test file uses some of them).
 #![allow(dead_code)]
 
+use std::collections::HashMap;
 use std::path::Path;
 
 use arrow::array::RecordBatch;
@@ -66,4 +67,26 @@ pub fn fingerprint(tables: &[SourceTable], r: &MatchResult) -> Vec<String> {
         r.stats.groups, r.stats.largest_group, r.stats.approximate_groups, r.stats.candidates
     ));
     lines
+}
+
+/// A small CSV reader for the demo's truth files (plain comma-separated, one
+/// header line, `#` comments): one map from column to text per row.
+pub fn read_csv_rows(path: &Path) -> Vec<HashMap<String, String>> {
+    let text = std::fs::read_to_string(path).unwrap();
+    let mut lines = text.lines().filter(|l| !l.starts_with('#'));
+    let header: Vec<String> = lines
+        .next()
+        .unwrap()
+        .split(',')
+        .map(str::to_string)
+        .collect();
+    lines
+        .map(|l| {
+            header
+                .iter()
+                .cloned()
+                .zip(l.split(',').map(str::to_string))
+                .collect()
+        })
+        .collect()
 }
