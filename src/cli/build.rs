@@ -16,14 +16,17 @@ use super::progress::{row_counter, spinner};
 use super::vet::for_each_normalized;
 use crate::catalog::normalize::{NormalizeOptions, NormalizeReport, Normalizer};
 use crate::catalog::{DEFAULT_BATCH_ROWS, open, prefetch};
+use crate::crossmatch::SourceTable;
+use crate::crossmatch::cells::CellRun;
 use crate::crossmatch::density::footprint_order;
+use crate::crossmatch::engine::MatchSetup;
 use crate::crossmatch::false_matches::{FalseMatchEstimate, estimate_false_matches};
 use crate::crossmatch::floors::{FAR_ABOVE_FACTOR, FloorEstimate, far_above_stated};
-use crate::crossmatch::systematics::{CatalogOffset, match_with_offsets};
-use crate::crossmatch::{MatchResult, SourceTable};
+use crate::crossmatch::systematics::{CatalogOffset, correct_offsets};
 use crate::error::{Error, Result};
+use crate::output::journal::Journal;
 use crate::output::parquet::ParquetOutput;
-use crate::output::run_record::{InputRecord, OutputRecord, RunRecord, SedRecord};
+use crate::output::run_record::{InputRecord, OutputRecord, RunRecord, SedRecord, SubsetRecord};
 use crate::output::staging::Staging;
 use crate::output::tables::{
     for_export, hard_sources_batch, links_batch, objects_batch, photometry_batch,
@@ -55,10 +58,50 @@ pub struct BuildArgs {
     /// Objects assembled and written at a time (for tests; the outputs do not depend on it).
     #[arg(long, value_name = "N", hide = true, value_parser = clap::value_parser!(u32).range(1..))]
     pub write_chunk: Option<u32>,
+    /// Match and write only these sky cells: NESTED indices at the cell order,
+    /// e.g. `3,17-20`, so that jobs can share a sky; join their folders with
+    /// `fluxloom merge`.
+    #[arg(long, value_name = "LIST", value_parser = parse_cell_list)]
+    pub cells: Option<CellList>,
+    /// Stop (sleep) once this many cells are journaled, to test resuming a killed run.
+    #[arg(long, value_name = "N", hide = true)]
+    pub pause_after_cells: Option<usize>,
 }
 
-/// How a build runs, without changing what it writes.
-#[derive(Debug, Clone, Copy, Default)]
+/// Sky cells chosen on the command line, ascending and without repeats.
+#[derive(Debug, Clone, PartialEq, Eq)]
+pub struct CellList(pub Vec<u64>);
+
+/// Parses `3,17-20` into the cells 3, 17, 18, 19, 20.
+///
+/// # Errors
+/// A message naming the part that is not a cell index or a range `a-b` with a ≤ b.
+pub fn parse_cell_list(text: &str) -> std::result::Result<CellList, String> {
+    let mut cells = Vec::new();
+    for part in text.split(',').map(str::trim) {
+        let bad = || format!("\"{part}\" is not a cell index or a range like 17-20");
+        match part.split_once('-') {
+            Some((a, b)) => {
+                let (a, b): (u64, u64) = (
+                    a.trim().parse().map_err(|_| bad())?,
+                    b.trim().parse().map_err(|_| bad())?,
+                );
+                if a > b || b - a > 50_000_000 {
+                    return Err(bad());
+                }
+                cells.extend(a..=b);
+            }
+            None => cells.push(part.parse().map_err(|_| bad())?),
+        }
+    }
+    cells.sort_unstable();
+    cells.dedup();
+    Ok(CellList(cells))
+}
+
+/// How a build runs, without changing what it writes (except `cells`, which
+/// chooses the part of the sky written).
+#[derive(Debug, Clone, Default)]
 pub struct RunOptions {
     /// Hide progress bars.
     pub quiet: bool,
@@ -66,11 +109,14 @@ pub struct RunOptions {
     pub cell_order: Option<u8>,
     /// Objects per write chunk instead of [`WRITE_CHUNK_OBJECTS`].
     pub write_chunk: Option<usize>,
+    /// Only these sky cells (at the cell order).
+    pub cells: Option<Vec<u64>>,
+    /// Sleep once this many cells are journaled (tests of resuming).
+    pub pause_after_cells: Option<usize>,
 }
 
-/// Everything read from one catalog.
+/// Everything read from one catalog besides its source table.
 struct ReadCatalog {
-    table: SourceTable,
     normalized: RecordBatch,
     report: NormalizeReport,
     sha256: String,
@@ -88,13 +134,15 @@ pub fn run(args: &BuildArgs, quiet: bool) -> Result<()> {
         quiet,
         cell_order: args.cell_order,
         write_chunk: args.write_chunk.map(|n| n as usize),
+        cells: args.cells.clone().map(|c| c.0),
+        pause_after_cells: args.pause_after_cells,
     };
     let outcome = match args.threads {
         Some(n) => rayon::ThreadPoolBuilder::new()
             .num_threads(usize::from(n))
             .build()
             .map_err(|e| Error::Usage(format!("cannot start {n} threads: {e}")))?
-            .install(|| build_with(&plan, &out_dir, options))?,
+            .install(|| build_with(&plan, &out_dir, options.clone()))?,
         None => build_with(&plan, &out_dir, options)?,
     };
     super::write_stdout(&outcome.summary)
@@ -133,35 +181,45 @@ pub fn build_with(plan: &Plan, out_dir: &Path, run: RunOptions) -> Result<BuildO
     if let Some(order) = run.cell_order {
         matching.partition_order = order;
     }
-    let options = NormalizeOptions {
-        skip_bad_rows: plan.skip_bad_rows,
-    };
-    let mut read: Vec<ReadCatalog> = Vec::with_capacity(plan.catalogs.len());
-    for c in &plan.catalogs {
-        read.push(read_catalog(&c.file, &c.schema, options, quiet)?);
-    }
-    let tables: Vec<SourceTable> = read.iter().map(|r| r.table.clone()).collect();
-
+    let prepared = prepare(plan, &matching, quiet)?;
+    let matched_tables = prepared.matched();
+    let Prepared {
+        read,
+        tables,
+        offsets,
+        setup,
+        ..
+    } = &prepared;
+    let (read, tables, setup) = (&read[..], &tables[..], setup);
+    let offsets = offsets.clone();
     let bar = spinner("cross-matching", quiet);
-    // With offset correction, false matches are estimated on the corrected positions.
-    let (result, offsets, matched_tables): (MatchResult, Vec<CatalogOffset>, Vec<SourceTable>) =
-        match plan.astrometric_reference {
-            Some(reference) => match_with_offsets(
-                &tables,
-                &matching,
-                plan.area_sr,
-                reference,
-                plan.correct_offsets,
-            )?,
-            None => (
-                crate::crossmatch::run_match_with_area(&tables, &matching, plan.area_sr)?,
-                Vec::new(),
-                tables.clone(),
-            ),
-        };
+    let journal = Journal::open(
+        out_dir,
+        &run_key(plan, read, &matching, &run),
+        matching.partition_order,
+    )?;
+    let journaled = std::sync::atomic::AtomicUsize::new(0);
+    let record_cell = |id: u64, out: &crate::crossmatch::cells::CellOutput| -> Result<()> {
+        journal.record(id, out)?;
+        let n = journaled.fetch_add(1, std::sync::atomic::Ordering::SeqCst) + 1;
+        if run.pause_after_cells.is_some_and(|k| n >= k) {
+            loop {
+                std::thread::sleep(std::time::Duration::from_secs(3600));
+            }
+        }
+        Ok(())
+    };
+    let result = setup.run(
+        &matching,
+        CellRun {
+            subset: run.cells.clone(),
+            finished: journal.finished()?,
+            on_complete: Some(&record_cell),
+        },
+    )?;
     bar.set_message("estimating false matches");
     let false_matches: Vec<FalseMatchEstimate> = if plan.false_matches {
-        estimate_false_matches(&matched_tables, &matching)?
+        estimate_false_matches(matched_tables, &matching)?
     } else {
         Vec::new()
     };
@@ -170,7 +228,7 @@ pub fn build_with(plan: &Plan, out_dir: &Path, run: RunOptions) -> Result<BuildO
     let coverage: Vec<Coverage> = plan
         .catalogs
         .iter()
-        .zip(&tables)
+        .zip(tables)
         .map(|(c, t)| match &c.coverage {
             Some(path) => Coverage::from_moc_file(path),
             None => {
@@ -210,7 +268,7 @@ pub fn build_with(plan: &Plan, out_dir: &Path, run: RunOptions) -> Result<BuildO
         true => Some(create(
             &mut staging,
             "objects.parquet",
-            objects_batch(&[], &[], &slots, &tables, epoch),
+            objects_batch(&[], &[], &slots, tables, epoch),
         )?),
         false => None,
     };
@@ -218,7 +276,7 @@ pub fn build_with(plan: &Plan, out_dir: &Path, run: RunOptions) -> Result<BuildO
         true => Some(create(
             &mut staging,
             "photometry.parquet",
-            photometry_batch(&[], &[], &slots, &tables),
+            photometry_batch(&[], &[], &slots, tables),
         )?),
         false => None,
     };
@@ -226,7 +284,7 @@ pub fn build_with(plan: &Plan, out_dir: &Path, run: RunOptions) -> Result<BuildO
         true => Some(create(
             &mut staging,
             "links.parquet",
-            links_batch(&[], &tables),
+            links_batch(&[], tables),
         )?),
         false => None,
     };
@@ -246,14 +304,14 @@ pub fn build_with(plan: &Plan, out_dir: &Path, run: RunOptions) -> Result<BuildO
             }
             let chunk = &result.objects[range];
             if let Some(w) = objects_out.as_mut() {
-                let ob = objects_batch(chunk, &seds, &slots, &tables, epoch)?;
+                let ob = objects_batch(chunk, &seds, &slots, tables, epoch)?;
                 w.write(&ob)?;
                 if exporting {
                     objects.push(for_export(&ob)?);
                 }
             }
             if let Some(w) = photometry_out.as_mut() {
-                let pb = photometry_batch(chunk, &seds, &slots, &tables)?;
+                let pb = photometry_batch(chunk, &seds, &slots, tables)?;
                 w.write(&pb)?;
                 if exporting {
                     photometry.push(for_export(&pb)?);
@@ -267,17 +325,17 @@ pub fn build_with(plan: &Plan, out_dir: &Path, run: RunOptions) -> Result<BuildO
                 &[],
                 &[],
                 &slots,
-                &tables,
+                tables,
                 epoch,
             )?)?);
         }
         if which.photometry {
-            photometry.push(for_export(&photometry_batch(&[], &[], &slots, &tables)?)?);
+            photometry.push(for_export(&photometry_batch(&[], &[], &slots, tables)?)?);
         }
     }
     if let Some(w) = links_out.as_mut() {
         for chunk in result.links.chunks(chunk_objects) {
-            w.write(&links_batch(chunk, &tables)?)?;
+            w.write(&links_batch(chunk, tables)?)?;
         }
     }
     let mut outputs: Vec<OutputRecord> = Vec::new();
@@ -295,7 +353,7 @@ pub fn build_with(plan: &Plan, out_dir: &Path, run: RunOptions) -> Result<BuildO
     }
     if which.objects {
         // The sources of the hard cases, for the audit's match cards.
-        let hard = hard_sources_batch(&result.objects, &result.links, &matched_tables, epoch)?;
+        let hard = hard_sources_batch(&result.objects, &result.links, matched_tables, epoch)?;
         let mut w = ParquetOutput::create(
             &staging.path("hard_sources.parquet"),
             hard.schema(),
@@ -307,6 +365,54 @@ pub fn build_with(plan: &Plan, out_dir: &Path, run: RunOptions) -> Result<BuildO
             rows: w.finish()?,
         });
     }
+    outputs.extend(write_exports(&mut staging, plan, &objects, &photometry)?);
+    let mut record = RunRecord::new(
+        plan,
+        read.iter()
+            .zip(&plan.catalogs)
+            .map(|(r, c)| InputRecord {
+                catalog: c.name.clone(),
+                file: c.file.display().to_string(),
+                schema: c.schema.path.display().to_string(),
+                sha256: r.sha256.clone(),
+                bytes: r.bytes,
+                normalize: r.report.clone(),
+            })
+            .collect(),
+        &result,
+        offsets,
+        false_matches,
+        sed_counts(&slots, &status_counts),
+        outputs.clone(),
+    );
+    record.subset = run.cells.clone().map(|cells| SubsetRecord {
+        order: matching.partition_order,
+        cells,
+        cells_with_sources: result.stats.cells.emitted,
+        cells_with_sources_in_all: result.stats.cells.cells,
+    });
+    let (files, report) = finish_folder(staging, plan, &record.to_json()?)?;
+    journal.remove()?;
+    bar.finish_and_clear();
+    Ok(BuildOutcome {
+        summary: summary(plan, out_dir, read, &record, &outputs)
+            + &crate::report::warnings::build_lines(report.as_deref()),
+        files,
+    })
+}
+
+/// Writes the plan's exports of the objects and photometry batches (each
+/// skipped when its table was not written).
+///
+/// # Errors
+/// Write errors.
+pub(crate) fn write_exports(
+    staging: &mut Staging,
+    plan: &Plan,
+    objects: &[RecordBatch],
+    photometry: &[RecordBatch],
+) -> Result<Vec<OutputRecord>> {
+    let mut outputs = Vec::new();
     for format in &plan.exports {
         for (name, batches) in [("objects", &objects), ("photometry", &photometry)] {
             // A table that is not written is not exported either.
@@ -356,25 +462,20 @@ pub fn build_with(plan: &Plan, out_dir: &Path, run: RunOptions) -> Result<BuildO
             outputs.push(OutputRecord { file, rows });
         }
     }
-    let record = RunRecord::new(
-        plan,
-        read.iter()
-            .zip(&plan.catalogs)
-            .map(|(r, c)| InputRecord {
-                catalog: c.name.clone(),
-                file: c.file.display().to_string(),
-                schema: c.schema.path.display().to_string(),
-                sha256: r.sha256.clone(),
-                bytes: r.bytes,
-                normalize: r.report.clone(),
-            })
-            .collect(),
-        &result,
-        offsets,
-        false_matches,
-        sed_counts(&slots, &status_counts),
-        outputs.clone(),
-    );
+    Ok(outputs)
+}
+
+/// Writes the science table and the report (when the plan and the tables
+/// written allow) and `run_json` as run.json into `staging`, and commits the folder.
+///
+/// # Errors
+/// Science, report and write errors.
+pub(crate) fn finish_folder(
+    mut staging: Staging,
+    plan: &Plan,
+    run_json: &str,
+) -> Result<(Vec<PathBuf>, Option<Vec<crate::report::warnings::Warning>>)> {
+    let which = plan.tables;
     // The science table and the report read the SED tables; a build that writes
     // only some tables (e.g. links alone) makes neither.
     let all_tables = which.objects && which.photometry && which.links;
@@ -385,18 +486,13 @@ pub fn build_with(plan: &Plan, out_dir: &Path, run: RunOptions) -> Result<BuildO
     {
         crate::science::write_into(&mut staging, s)?;
     }
-    let run_json = staging.path("run.json");
-    std::fs::write(&run_json, record.to_json()? + "\n").map_err(|e| Error::io(&run_json, e))?;
+    let path = staging.path("run.json");
+    std::fs::write(&path, format!("{run_json}\n")).map_err(|e| Error::io(&path, e))?;
     let report = (plan.report && all_tables)
         .then(|| crate::report::write_into(&mut staging))
         .transpose()?;
     let files = staging.commit()?;
-    bar.finish_and_clear();
-    Ok(BuildOutcome {
-        summary: summary(plan, out_dir, &read, &record, &outputs)
-            + &crate::report::warnings::build_lines(report.as_deref()),
-        files,
-    })
+    Ok((files, report))
 }
 
 fn read_catalog(
@@ -404,7 +500,7 @@ fn read_catalog(
     schema: &crate::catalog::schema::SurveySchema,
     options: NormalizeOptions,
     quiet: bool,
-) -> Result<ReadCatalog> {
+) -> Result<(ReadCatalog, SourceTable)> {
     crate::catalog::check_regular_file(file)?;
     let (sha256, bytes) = file_digest(file)?;
     let stream = prefetch(open(file, &schema.format, DEFAULT_BATCH_ROWS)?, 2);
@@ -422,13 +518,104 @@ fn read_catalog(
     let normalized = arrow::compute::concat_batches(&output_schema, &batches)
         .map_err(|e| Error::columnar(file, e))?;
     let table = SourceTable::from_batches(&schema.survey, std::slice::from_ref(&normalized), file)?;
-    Ok(ReadCatalog {
+    Ok((
+        ReadCatalog {
+            normalized,
+            report: normalizer.finish(),
+            sha256,
+            bytes,
+        },
         table,
-        normalized,
-        report: normalizer.finish(),
-        sha256,
-        bytes,
+    ))
+}
+
+/// The catalogs of a plan read, offsets measured (and corrected when asked),
+/// and the whole input ranked for matching.
+pub struct Prepared {
+    read: Vec<ReadCatalog>,
+    /// The source tables as read.
+    pub tables: Vec<SourceTable>,
+    /// Offsets against the astrometric reference.
+    pub offsets: Vec<CatalogOffset>,
+    /// The tables with offsets corrected, when a correction was made.
+    pub corrected: Option<Vec<SourceTable>>,
+    /// What every cell shares.
+    pub setup: MatchSetup,
+}
+
+/// Reads every catalog of `plan` and prepares the match with `matching`.
+///
+/// # Errors
+/// Read, normalize and match-setting errors.
+pub fn prepare(
+    plan: &Plan,
+    matching: &crate::crossmatch::MatchConfig,
+    quiet: bool,
+) -> Result<Prepared> {
+    let options = NormalizeOptions {
+        skip_bad_rows: plan.skip_bad_rows,
+    };
+    let mut read: Vec<(ReadCatalog, SourceTable)> = Vec::with_capacity(plan.catalogs.len());
+    for c in &plan.catalogs {
+        read.push(read_catalog(&c.file, &c.schema, options, quiet)?);
+    }
+    let mut tables: Vec<SourceTable> = Vec::with_capacity(read.len());
+    for r in &mut read {
+        tables.push(std::mem::take(&mut r.1));
+    }
+    let read: Vec<ReadCatalog> = read.into_iter().map(|r| r.0).collect();
+    let bar = spinner(
+        "measuring offsets",
+        quiet || plan.astrometric_reference.is_none(),
+    );
+    // With offset correction, the match and the false matches use the corrected positions.
+    let (offsets, corrected) = match plan.astrometric_reference {
+        Some(reference) => correct_offsets(&tables, matching, reference, plan.correct_offsets)?,
+        None => (Vec::new(), None),
+    };
+    bar.finish_and_clear();
+    let setup = MatchSetup::new(
+        corrected.as_deref().unwrap_or(&tables),
+        matching,
+        plan.area_sr,
+    )?;
+    Ok(Prepared {
+        read,
+        tables,
+        offsets,
+        corrected,
+        setup,
     })
+}
+
+impl Prepared {
+    /// The tables matched: offsets corrected when a correction was made.
+    pub fn matched(&self) -> &[SourceTable] {
+        self.corrected.as_deref().unwrap_or(&self.tables)
+    }
+}
+
+/// What the cells' outputs of a run depend on, hashed: the version, the plan,
+/// the inputs' bytes, the cell order and the subset (the journal's key).
+fn run_key(
+    plan: &Plan,
+    read: &[ReadCatalog],
+    matching: &crate::crossmatch::MatchConfig,
+    run: &RunOptions,
+) -> String {
+    let mut h = Sha256::new();
+    h.update(env!("CARGO_PKG_VERSION").as_bytes());
+    h.update([0]);
+    h.update(plan.text.as_bytes());
+    for r in read {
+        h.update([0]);
+        h.update(r.sha256.as_bytes());
+    }
+    h.update([0, matching.partition_order]);
+    for c in run.cells.iter().flatten() {
+        h.update(c.to_le_bytes());
+    }
+    h.finalize().iter().map(|b| format!("{b:02x}")).collect()
 }
 
 /// SHA-256 of a file's bytes (hex) and its size.
@@ -554,6 +741,18 @@ fn summary(
         "         cells:   {} at order {} (margin {:.1}\"), {} matched again with wider margins\n",
         cells.cells, cells.order, cells.margin_arcsec, widened
     ));
+    if record.subset.is_some() {
+        s.push_str(&format!(
+            "         subset:  {} of the {} cells written\n",
+            cells.emitted, cells.cells
+        ));
+    }
+    if cells.resumed > 0 {
+        s.push_str(&format!(
+            "         resumed: {} cells taken from the journal of an interrupted run\n",
+            cells.resumed
+        ));
+    }
     let flags: Vec<String> = m.flags.iter().map(|(k, v)| format!("{k} {v}")).collect();
     s.push_str(&format!("         flags:   {}\n", flags.join(", ")));
     for o in &record.offsets {

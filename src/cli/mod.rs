@@ -3,8 +3,10 @@
 
 pub mod bands;
 pub mod build;
+pub mod cells;
 pub mod draw;
 pub mod make_demo;
+pub mod merge;
 pub mod progress;
 pub mod report;
 pub mod science;
@@ -49,6 +51,15 @@ pub enum Command {
     Science(science::ScienceArgs),
     /// Draw SEDs, colour–colour and colour–magnitude diagrams of a built output folder.
     Draw(draw::DrawArgs),
+    /// Write the sky cells of a plan, each with its margin, as Arrow IPC streams
+    /// for `fluxloom cell-worker` (or another engine) to match one at a time.
+    Cells(cells::CellsArgs),
+    /// Match one sky cell: its Arrow IPC stream in on stdin, its objects and
+    /// links out on stdout as Arrow IPC.
+    CellWorker(cells::WorkerArgs),
+    /// Join the output folders of builds over parts of the sky (`build --cells`)
+    /// into the folder one build over all of it writes.
+    Merge(merge::MergeArgs),
 }
 
 /// Runs the parsed command line.
@@ -64,6 +75,9 @@ pub fn run(cli: Cli) -> Result<()> {
         Command::MakeDemo(args) => make_demo::run(&args),
         Command::Science(args) => science::run(&args),
         Command::Draw(args) => draw::run(&args),
+        Command::Cells(args) => cells::run_cells(&args, cli.quiet),
+        Command::CellWorker(args) => cells::run_worker(&args),
+        Command::Merge(args) => merge::run(&args),
     }
 }
 

@@ -40,16 +40,19 @@
 //! margin) the cell is matched again with twice the margin, until it is; a
 //! margin wider than half the sphere holds every source, so this ends.
 
+use std::collections::BTreeMap;
+
 use rayon::prelude::*;
 
-use super::blends::{Blend, find_blends};
+use super::blends::find_blends;
 use super::candidates::{Candidate, EpochStats, find_candidates_with};
 use super::config::MatchConfig;
 use super::flags;
 use super::groups::connected_groups;
 use super::prepare::Sources;
 use super::resolve::{Context, ResolvedObject, resolve_group};
-use crate::sky::partition::partition;
+use crate::error::Result;
+use crate::sky::partition::{Cell, partition};
 use crate::sky::separation::separation_vec_rad;
 use crate::sky::vector::RAD_PER_ARCSEC;
 
@@ -79,21 +82,33 @@ impl CellContext<'_> {
     }
 }
 
-/// What one cell emits, in the ranks of the whole input.
+/// What one cell emits, in the ranks of the whole input: final objects and
+/// links, so that cells (and subsets of cells run apart) join by concatenation.
 #[derive(Debug, Clone, Default, PartialEq)]
 pub struct CellOutput {
-    /// Objects whose anchor is in the core, members ascending.
+    /// Objects whose anchor is in the core, members ascending; their flags and
+    /// related anchors include the blend relations.
     pub objects: Vec<ResolvedObject>,
-    /// Candidate pairs whose lower-ranked source is in the core.
-    pub candidates: Vec<Candidate>,
-    /// Blends whose coarse source is in the core.
-    pub blends: Vec<Blend>,
+    /// Candidate pairs whose lower-ranked source is in the core, with the
+    /// anchors of the objects each source ended in.
+    pub links: Vec<CellLink>,
     /// Groups whose lowest-ranked source is in the core.
     pub groups: usize,
     /// Sources in the largest of those groups.
     pub largest_group: usize,
     /// Those groups resolved greedily.
     pub approximate_groups: usize,
+}
+
+/// A candidate pair with the anchors (ranks) of the objects its sources ended in.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct CellLink {
+    /// The pair, in ranks of the whole input.
+    pub pair: Candidate,
+    /// Anchor rank of the object of `pair.a`.
+    pub object_a: u32,
+    /// Anchor rank of the object of `pair.b`.
+    pub object_b: u32,
 }
 
 /// Matches one cell: `sources` are the cell's core and margin sources (in the
@@ -188,6 +203,8 @@ pub fn match_cell(
         ln_density_per_sr: ctx.ln_density_per_sr.to_vec(),
     };
     let mut out = CellOutput::default();
+    // The anchor (local) of the object each source of a needed group ended in.
+    let mut anchor_of = vec![u32::MAX; n];
     for &g in &needed {
         let members = &groups[g as usize];
         let cands = &by_group[start[g as usize]..start[g as usize + 1]];
@@ -199,31 +216,59 @@ pub fn match_cell(
                 out.approximate_groups += 1;
             }
         }
-        for mut o in resolved {
-            if !core[o.members[0] as usize] {
-                continue;
+        for o in resolved {
+            for &m in &o.members {
+                anchor_of[m as usize] = o.members[0];
             }
-            for m in &mut o.members {
-                *m = global_rank[*m as usize];
+            if core[o.members[0] as usize] {
+                out.objects.push(o);
             }
-            out.objects.push(o);
         }
     }
-    out.candidates = candidates
+    // Blend relations: a blended source matches nothing (it is an object of its
+    // own); every source within the cell's reach of an emitted member is held,
+    // so the blends over and under each member are all known here.
+    let mut over: Vec<(u32, u32)> = Vec::new();
+    for (k, b) in blends.iter().enumerate() {
+        over.extend(b.under.iter().map(|&u| (u, k as u32)));
+    }
+    over.sort_unstable();
+    let blend_of_source: std::collections::HashMap<u32, usize> = blends
+        .iter()
+        .enumerate()
+        .map(|(k, b)| (b.source, k))
+        .collect();
+    for o in &mut out.objects {
+        for &m in &o.members {
+            if let Some(&k) = blend_of_source.get(&m) {
+                o.flags |= flags::BLEND;
+                o.related
+                    .extend(blends[k].under.iter().map(|&u| anchor_of[u as usize]));
+            }
+            let first = over.partition_point(|&(u, _)| u < m);
+            for &(_, k) in over[first..].iter().take_while(|&&(u, _)| u == m) {
+                // The blend is an object of its own, anchored on itself.
+                o.flags |= flags::HAS_BLEND;
+                o.related.push(blends[k as usize].source);
+            }
+        }
+        for r in o.members.iter_mut().chain(o.related.iter_mut()) {
+            *r = global_rank[*r as usize];
+        }
+        o.related.sort_unstable();
+        o.related.dedup();
+    }
+    out.links = candidates
         .iter()
         .filter(|c| core[c.a as usize])
-        .map(|c| Candidate {
-            a: global_rank[c.a as usize],
-            b: global_rank[c.b as usize],
-            ..*c
-        })
-        .collect();
-    out.blends = blends
-        .into_iter()
-        .filter(|b| core[b.source as usize])
-        .map(|b| Blend {
-            source: global_rank[b.source as usize],
-            under: b.under.iter().map(|&u| global_rank[u as usize]).collect(),
+        .map(|c| CellLink {
+            pair: Candidate {
+                a: global_rank[c.a as usize],
+                b: global_rank[c.b as usize],
+                ..*c
+            },
+            object_a: global_rank[anchor_of[c.a as usize] as usize],
+            object_b: global_rank[anchor_of[c.b as usize] as usize],
         })
         .collect();
     Some(out)
@@ -261,6 +306,10 @@ pub const WIDEST_MARGIN_DEG: f64 = 30.0;
 pub struct CellStats {
     /// Cells with at least one core source.
     pub cells: usize,
+    /// Of those, the cells this run emitted (all of them unless a subset was asked).
+    pub emitted: usize,
+    /// Of those, the cells taken as finished from an earlier run's journal.
+    pub resumed: usize,
     /// Their HEALPix order.
     pub order: u8,
     /// Margin width of the first pass, arcsec.
@@ -269,15 +318,33 @@ pub struct CellStats {
     pub widened: Vec<usize>,
 }
 
+/// Called with each cell's index and complete output; an error stops the run.
+pub type OnCellComplete<'a> = &'a (dyn Fn(u64, &CellOutput) -> Result<()> + Sync);
+
+/// Which cells a run emits, and what it does with each one it finishes.
+#[derive(Default)]
+pub struct CellRun<'a> {
+    /// Emit only these cells (indices at the partition order, ascending); all when `None`.
+    pub subset: Option<Vec<u64>>,
+    /// Outputs of cells finished by an earlier run (a resumed run), by cell index.
+    pub finished: BTreeMap<u64, CellOutput>,
+    /// Told of every cell matched here (e.g. to journal it).
+    pub on_complete: Option<OnCellComplete<'a>>,
+}
+
 /// Matches every cell of `sources` (the whole input, rank order) at
-/// `config.partition_order`, in parallel, and joins what they emit: objects
-/// ordered by anchor, candidates by (a, b), blends by source.
+/// `config.partition_order` that `run` selects, in parallel, and joins what
+/// they emit: objects ordered by anchor, links by (a, b).
+///
+/// # Errors
+/// Whatever `run.on_complete` returns.
 pub fn match_by_cells(
     sources: &Sources,
     config: &MatchConfig,
     ln_density_per_sr: &[f64],
     epochs: &EpochStats,
-) -> (CellOutput, CellStats) {
+    run: CellRun,
+) -> Result<(CellOutput, CellStats)> {
     let influence_arcsec = CellContext::influence_radius_arcsec(config, epochs);
     let ctx = CellContext {
         config,
@@ -285,7 +352,7 @@ pub fn match_by_cells(
         epochs,
         influence_arcsec,
     };
-    let base_margin_arcsec = 2.0 * influence_arcsec.max(1e-3);
+    let base_margin_arcsec = first_margin_arcsec(influence_arcsec);
     let mut stats = CellStats {
         order: config.partition_order,
         margin_arcsec: base_margin_arcsec,
@@ -293,85 +360,63 @@ pub fn match_by_cells(
     };
     let mut joined = CellOutput::default();
     if sources.is_empty() {
-        return (joined, stats);
+        return Ok((joined, stats));
     }
+    let CellRun {
+        subset,
+        mut finished,
+        on_complete,
+    } = run;
     let mut pending: Option<Vec<u64>> = None;
     let mut margin_arcsec = base_margin_arcsec;
     loop {
         // Past a margin this wide, the cells left hold every source.
         let everything = margin_arcsec > WIDEST_MARGIN_DEG * 3600.0;
-        let cells = if everything {
-            let all: Vec<u32> = (0..sources.len() as u32).collect();
-            partition(
-                config.partition_order,
-                &sources.ra_deg,
-                &sources.dec_deg,
-                0.0,
-            )
-            .into_iter()
-            .map(|c| {
-                let margin = all
-                    .iter()
-                    .copied()
-                    .filter(|r| c.core.binary_search(r).is_err())
-                    .collect();
-                crate::sky::partition::Cell { margin, ..c }
-            })
-            .collect()
-        } else {
-            partition(
-                config.partition_order,
-                &sources.ra_deg,
-                &sources.dec_deg,
-                margin_arcsec / 3600.0,
-            )
-        };
+        let cells = cells_with_margin(sources, config.partition_order, margin_arcsec);
         let held_arcsec = if everything {
             f64::INFINITY
         } else {
             margin_arcsec
         };
-        let todo: Vec<&crate::sky::partition::Cell> = cells
-            .iter()
-            .filter(|c| !c.core.is_empty())
-            .filter(|c| {
-                pending
-                    .as_ref()
-                    .is_none_or(|p| p.binary_search(&c.id).is_ok())
-            })
-            .collect();
+        let mut todo: Vec<&Cell> = cells.iter().filter(|c| !c.core.is_empty()).collect();
         if pending.is_none() {
             stats.cells = todo.len();
+            todo.retain(|c| {
+                subset
+                    .as_ref()
+                    .is_none_or(|s| s.binary_search(&c.id).is_ok())
+            });
+            stats.emitted = todo.len();
+            todo.retain(|c| match finished.remove(&c.id) {
+                Some(o) => {
+                    stats.resumed += 1;
+                    joined.absorb(o);
+                    false
+                }
+                None => true,
+            });
+        } else {
+            todo.retain(|c| {
+                pending
+                    .as_ref()
+                    .is_some_and(|p| p.binary_search(&c.id).is_ok())
+            });
         }
         let results: Vec<(u64, Option<CellOutput>)> = todo
             .par_iter()
             .map(|cell| {
-                let mut ranks: Vec<u32> = Vec::with_capacity(cell.core.len() + cell.margin.len());
-                ranks.extend_from_slice(&cell.core);
-                ranks.extend_from_slice(&cell.margin);
-                ranks.sort_unstable();
-                let core: Vec<bool> = ranks
-                    .iter()
-                    .map(|r| cell.core.binary_search(r).is_ok())
-                    .collect();
-                let local = sources.subset(&ranks);
-                (
-                    cell.id,
-                    match_cell(&ctx, &local, &core, &ranks, held_arcsec),
-                )
+                let (local, core, ranks) = cell_sources(sources, cell);
+                let out = match_cell(&ctx, &local, &core, &ranks, held_arcsec);
+                if let (Some(o), Some(tell)) = (&out, on_complete) {
+                    tell(cell.id, o)?;
+                }
+                Ok((cell.id, out))
             })
-            .collect();
+            .collect::<Result<_>>()?;
         let mut again: Vec<u64> = Vec::new();
         for (id, r) in results {
             match r {
-                Some(o) => {
-                    joined.groups += o.groups;
-                    joined.largest_group = joined.largest_group.max(o.largest_group);
-                    joined.approximate_groups += o.approximate_groups;
-                    joined.objects.extend(o.objects);
-                    joined.candidates.extend(o.candidates);
-                    joined.blends.extend(o.blends);
-                }
+                Some(o) => joined.absorb(o),
                 None => again.push(id),
             }
         }
@@ -388,7 +433,60 @@ pub fn match_by_cells(
         margin_arcsec *= 2.0;
     }
     joined.objects.par_sort_unstable_by_key(|o| o.members[0]);
-    joined.candidates.par_sort_unstable_by_key(|c| (c.a, c.b));
-    joined.blends.sort_unstable_by_key(|b| b.source);
-    (joined, stats)
+    joined
+        .links
+        .par_sort_unstable_by_key(|l| (l.pair.a, l.pair.b));
+    Ok((joined, stats))
+}
+
+impl CellOutput {
+    /// Adds what another cell emitted.
+    pub fn absorb(&mut self, other: CellOutput) {
+        self.groups += other.groups;
+        self.largest_group = self.largest_group.max(other.largest_group);
+        self.approximate_groups += other.approximate_groups;
+        self.objects.extend(other.objects);
+        self.links.extend(other.links);
+    }
+}
+
+/// The margin of the first pass for influence radius ρ: 2ρ (at least 2 mas).
+pub fn first_margin_arcsec(influence_arcsec: f64) -> f64 {
+    2.0 * influence_arcsec.max(1e-3)
+}
+
+/// The cells of `sources` at `order` with margins `margin_arcsec` wide; past
+/// [`WIDEST_MARGIN_DEG`] each cell's margin holds every other source.
+pub fn cells_with_margin(sources: &Sources, order: u8, margin_arcsec: f64) -> Vec<Cell> {
+    if margin_arcsec <= WIDEST_MARGIN_DEG * 3600.0 {
+        return partition(
+            order,
+            &sources.ra_deg,
+            &sources.dec_deg,
+            margin_arcsec / 3600.0,
+        );
+    }
+    partition(order, &sources.ra_deg, &sources.dec_deg, 0.0)
+        .into_iter()
+        .map(|c| {
+            let margin = (0..sources.len() as u32)
+                .filter(|r| c.core.binary_search(r).is_err())
+                .collect();
+            Cell { margin, ..c }
+        })
+        .collect()
+}
+
+/// A cell's sources as a table of their own (rank order), whether each is in
+/// the core, and their ranks in the whole input.
+pub fn cell_sources(sources: &Sources, cell: &Cell) -> (Sources, Vec<bool>, Vec<u32>) {
+    let mut ranks: Vec<u32> = Vec::with_capacity(cell.core.len() + cell.margin.len());
+    ranks.extend_from_slice(&cell.core);
+    ranks.extend_from_slice(&cell.margin);
+    ranks.sort_unstable();
+    let core: Vec<bool> = ranks
+        .iter()
+        .map(|r| cell.core.binary_search(r).is_ok())
+        .collect();
+    (sources.subset(&ranks), core, ranks)
 }

@@ -28,7 +28,7 @@ use serde::Serialize;
 
 use super::bayes::posterior;
 use super::candidates::EpochStats;
-use super::cells::{CellOutput, CellStats, match_by_cells};
+use super::cells::{CellOutput, CellRun, CellStats, match_by_cells};
 use super::config::MatchConfig;
 use super::density::footprint_area_sr;
 use super::flags;
@@ -239,62 +239,115 @@ pub fn run_match_with_area(
     config: &MatchConfig,
     area_sr: Option<f64>,
 ) -> Result<MatchResult> {
-    let mut seconds = PhaseSeconds::default();
-    let t = Instant::now();
-    let sources = Sources::prepare(tables, config)?;
-    seconds.prepare = t.elapsed().as_secs_f64();
+    let setup = MatchSetup::new(tables, config, area_sr)?;
+    setup.run(config, CellRun::default())
+}
 
-    let t = Instant::now();
-    let densities: Vec<f64> = (0..tables.len())
-        .into_par_iter()
-        .map(|c| {
-            let range = sources.catalog_start[c]..sources.catalog_start[c + 1];
-            let area = area_sr.unwrap_or_else(|| {
-                footprint_area_sr(&sources.ra_deg[range.clone()], &sources.dec_deg[range])
-            });
-            if area > 0.0 {
-                sources.catalog_len(c) as f64 / area
-            } else {
-                1.0
-            }
+/// What every cell shares: the sources of the whole input in rank order, each
+/// catalog's density and the epoch statistics. Cells matched apart (a subset of
+/// the sky, a worker process, a resumed run) use the same setup, so they agree.
+pub struct MatchSetup {
+    /// The whole input, rank order.
+    pub sources: Sources,
+    /// Surface density of each catalog, sources per steradian.
+    pub density_per_sr: Vec<f64>,
+    /// ln of `density_per_sr`.
+    pub ln_density_per_sr: Vec<f64>,
+    /// Epoch statistics of the whole input.
+    pub epochs: EpochStats,
+    /// Rows per catalog.
+    pub rows: Vec<usize>,
+    seconds: PhaseSeconds,
+}
+
+impl MatchSetup {
+    /// Ranks the sources of `tables` and measures densities (over `area_sr`
+    /// when given, else each catalog's own footprint) and epoch statistics.
+    ///
+    /// # Errors
+    /// As [`run_match`].
+    pub fn new(
+        tables: &[SourceTable],
+        config: &MatchConfig,
+        area_sr: Option<f64>,
+    ) -> Result<MatchSetup> {
+        let mut seconds = PhaseSeconds::default();
+        let t = Instant::now();
+        let sources = Sources::prepare(tables, config)?;
+        seconds.prepare = t.elapsed().as_secs_f64();
+        let t = Instant::now();
+        let density_per_sr: Vec<f64> = (0..tables.len())
+            .into_par_iter()
+            .map(|c| {
+                let range = sources.catalog_start[c]..sources.catalog_start[c + 1];
+                let area = area_sr.unwrap_or_else(|| {
+                    footprint_area_sr(&sources.ra_deg[range.clone()], &sources.dec_deg[range])
+                });
+                if area > 0.0 {
+                    sources.catalog_len(c) as f64 / area
+                } else {
+                    1.0
+                }
+            })
+            .collect();
+        seconds.densities = t.elapsed().as_secs_f64();
+        let epochs = EpochStats::of(&sources, config.reference_epoch_yr);
+        Ok(MatchSetup {
+            ln_density_per_sr: density_per_sr.iter().map(|d| d.ln()).collect(),
+            density_per_sr,
+            epochs,
+            rows: tables.iter().map(SourceTable::len).collect(),
+            sources,
+            seconds,
         })
-        .collect();
-    seconds.densities = t.elapsed().as_secs_f64();
+    }
 
-    let t = Instant::now();
-    let epochs = EpochStats::of(&sources, config.reference_epoch_yr);
-    let ln_density_per_sr: Vec<f64> = densities.iter().map(|d| d.ln()).collect();
-    let (cells, cell_stats) = match_by_cells(&sources, config, &ln_density_per_sr, &epochs);
-    seconds.candidates = t.elapsed().as_secs_f64();
-    let ctx = Context {
-        sources: &sources,
-        config,
-        ln_density_per_sr,
-    };
-
-    let t = Instant::now();
-    let mut result = assemble(&ctx, cells);
-    result.stats.cells = cell_stats;
-    seconds.assemble = t.elapsed().as_secs_f64();
-    result.stats.density_per_deg2 = densities.iter().map(|d| d / DEG2_PER_SR).collect();
-    result.stats.sources = tables.iter().map(SourceTable::len).collect();
-    result.stats.seconds = seconds;
-    Ok(result)
+    /// Matches the cells `cells` selects and assembles their objects and links.
+    ///
+    /// # Errors
+    /// Whatever `cells.on_complete` returns.
+    pub fn run(&self, config: &MatchConfig, cells: CellRun) -> Result<MatchResult> {
+        let mut seconds = self.seconds.clone();
+        let t = Instant::now();
+        let (joined, cell_stats) = match_by_cells(
+            &self.sources,
+            config,
+            &self.ln_density_per_sr,
+            &self.epochs,
+            cells,
+        )?;
+        seconds.candidates = t.elapsed().as_secs_f64();
+        let ctx = Context {
+            sources: &self.sources,
+            config,
+            ln_density_per_sr: self.ln_density_per_sr.clone(),
+        };
+        let t = Instant::now();
+        let mut result = assemble(&ctx, joined);
+        result.stats.cells = cell_stats;
+        seconds.assemble = t.elapsed().as_secs_f64();
+        result.stats.density_per_deg2 = self
+            .density_per_sr
+            .iter()
+            .map(|d| d / DEG2_PER_SR)
+            .collect();
+        result.stats.sources = self.rows.clone();
+        result.stats.seconds = seconds;
+        Ok(result)
+    }
 }
 
 fn assemble(ctx: &Context, cells: CellOutput) -> MatchResult {
     let (sources, config) = (ctx.sources, ctx.config);
     let CellOutput {
-        objects: mut resolved,
-        candidates,
-        blends,
+        objects: resolved,
+        links: cell_links,
         groups,
         largest_group,
         approximate_groups,
     } = cells;
-    let candidates = &candidates[..];
     let mut stats = MatchStats {
-        candidates: candidates.len(),
+        candidates: cell_links.len(),
         groups,
         largest_group,
         approximate_groups,
@@ -307,28 +360,6 @@ fn assemble(ctx: &Context, cells: CellOutput) -> MatchResult {
             row: sources.row[r],
         }
     };
-    // Objects come in anchor order.
-    let mut object_of_rank = vec![0u32; sources.len()];
-    for (pos, o) in resolved.iter().enumerate() {
-        for &m in &o.members {
-            object_of_rank[m as usize] = pos as u32;
-        }
-    }
-    for b in &blends {
-        let kb = object_of_rank[b.source as usize] as usize;
-        resolved[kb].flags |= flags::BLEND;
-        for &u in &b.under {
-            let ku = object_of_rank[u as usize] as usize;
-            let (anchor_blend, anchor_under) = (resolved[kb].members[0], resolved[ku].members[0]);
-            resolved[ku].flags |= flags::HAS_BLEND;
-            resolved[ku].related.push(anchor_blend);
-            resolved[kb].related.push(anchor_under);
-        }
-    }
-    for o in resolved.iter_mut() {
-        o.related.sort_unstable();
-        o.related.dedup();
-    }
     let mut objects: Vec<MatchedObject> = resolved
         .par_iter()
         .map(|o| {
@@ -420,13 +451,12 @@ fn assemble(ctx: &Context, cells: CellOutput) -> MatchResult {
             }
         })
         .collect();
-    let anchor_of = |object: u32| anchor_of_rank(resolved[object as usize].members[0]);
-    let links = candidates
+    let links = cell_links
         .par_iter()
-        .map(|c| {
+        .map(|l| {
+            let c = &l.pair;
             let (a, b) = (c.a as usize, c.b as usize);
             let (ca, cb) = (sources.catalog[a] as usize, sources.catalog[b] as usize);
-            let (oa, ob) = (object_of_rank[a], object_of_rank[b]);
             Link {
                 catalog_a: ca,
                 row_a: sources.row[a] as usize,
@@ -436,11 +466,11 @@ fn assemble(ctx: &Context, cells: CellOutput) -> MatchResult {
                 norm_dist: c.norm_dist,
                 ln_bayes: c.ln_bayes,
                 probability: posterior(c.ln_bayes, ctx.ln_prior(&[ca, cb])),
-                chosen: oa == ob,
+                chosen: l.object_a == l.object_b,
                 dra_cosdec_arcsec: c.east_arcsec,
                 ddec_arcsec: c.north_arcsec,
-                object_a: anchor_of(oa),
-                object_b: anchor_of(ob),
+                object_a: anchor_of_rank(l.object_a),
+                object_b: anchor_of_rank(l.object_b),
             }
         })
         .collect();

@@ -32,6 +32,7 @@
 pub mod bayes;
 pub mod blends;
 pub mod candidates;
+pub mod cell_io;
 pub mod cells;
 pub mod config;
 pub mod density;

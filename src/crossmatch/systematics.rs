@@ -194,26 +194,45 @@ pub fn match_with_offsets(
     reference: usize,
     correct: bool,
 ) -> Result<(MatchResult, Vec<CatalogOffset>, Vec<SourceTable>)> {
-    let mut working: Vec<SourceTable> = tables.to_vec();
-    let mut applied = vec![(0.0, 0.0); tables.len()];
-    let (initial, mut floors) = measure_offsets(&working, config, reference)?;
+    let (offsets, moved) = correct_offsets(tables, config, reference, correct)?;
+    let working = moved.unwrap_or_else(|| tables.to_vec());
+    let result = run_match_with_area(&working, config, area_sr)?;
+    Ok((result, offsets, working))
+}
+
+/// The offsets of every catalog against `reference` and, when any catalog was
+/// moved, the tables to match: with `correct`, each catalog worth correcting is
+/// moved by minus its offset and measured again, until no offset is worth
+/// correcting.
+///
+/// # Errors
+/// As [`super::engine::run_match`].
+pub fn correct_offsets(
+    tables: &[SourceTable],
+    config: &MatchConfig,
+    reference: usize,
+    correct: bool,
+) -> Result<(Vec<CatalogOffset>, Option<Vec<SourceTable>>)> {
+    let (initial, mut floors) = measure_offsets(tables, config, reference)?;
     let mut residual = initial.clone();
+    let mut applied = vec![(0.0, 0.0); tables.len()];
+    let mut working: Option<Vec<SourceTable>> = None;
     if correct {
         for _ in 0..MAX_PASSES {
             if !residual.iter().flatten().any(worth_correcting) {
                 break;
             }
+            let moved = working.get_or_insert_with(|| tables.to_vec());
             for (c, m) in residual.iter().enumerate() {
                 if let Some(m) = m.filter(worth_correcting) {
-                    shift_table(&mut working[c], -m.dra_cosdec_arcsec, -m.ddec_arcsec);
+                    shift_table(&mut moved[c], -m.dra_cosdec_arcsec, -m.ddec_arcsec);
                     applied[c].0 -= m.dra_cosdec_arcsec;
                     applied[c].1 -= m.ddec_arcsec;
                 }
             }
-            (residual, floors) = measure_offsets(&working, config, reference)?;
+            (residual, floors) = measure_offsets(moved, config, reference)?;
         }
     }
-    let result = run_match_with_area(&working, config, area_sr)?;
     let offsets = (0..tables.len())
         .filter(|&c| c != reference)
         .map(|catalog| CatalogOffset {
@@ -224,5 +243,5 @@ pub fn match_with_offsets(
             floor: floors[catalog],
         })
         .collect();
-    Ok((result, offsets, working))
+    Ok((offsets, working))
 }

@@ -4,6 +4,8 @@
 pub mod atomic;
 pub mod csv;
 pub mod fits;
+pub mod journal;
+pub mod merge;
 pub mod parquet;
 pub mod run_record;
 pub mod staging;

@@ -79,6 +79,22 @@ pub struct RunRecord {
     pub sed_points: Vec<SedRecord>,
     /// Files written (run.json itself aside).
     pub outputs: Vec<OutputRecord>,
+    /// The part of the sky written, when a run wrote only some cells.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub subset: Option<SubsetRecord>,
+}
+
+/// The sky cells a subset run wrote, for `fluxloom merge` to check the parts.
+#[derive(Debug, Clone, PartialEq, Serialize, serde::Deserialize)]
+pub struct SubsetRecord {
+    /// HEALPix order of the cells.
+    pub order: u8,
+    /// The cells asked for (NESTED indices), ascending.
+    pub cells: Vec<u64>,
+    /// Of those, the cells holding sources.
+    pub cells_with_sources: usize,
+    /// Cells holding sources in the whole input.
+    pub cells_with_sources_in_all: usize,
 }
 
 impl RunRecord {
@@ -108,6 +124,7 @@ impl RunRecord {
             false_matches,
             sed_points,
             outputs,
+            subset: None,
         }
     }
 
@@ -116,6 +133,9 @@ impl RunRecord {
     /// # Errors
     /// A usage error if serialization fails (it does not for these types).
     pub fn to_json(&self) -> Result<String> {
-        serde_json::to_string_pretty(self).map_err(|e| Error::Usage(e.to_string()))
+        // Through a JSON value, so keys come in one (sorted) order whether the
+        // record is written by a build or joined by `fluxloom merge`.
+        let value = serde_json::to_value(self).map_err(|e| Error::Usage(e.to_string()))?;
+        serde_json::to_string_pretty(&value).map_err(|e| Error::Usage(e.to_string()))
     }
 }

@@ -543,8 +543,18 @@ pub fn hard_sources_batch(
     for (s, object) in linked {
         rows.entry(s).or_insert(object);
     }
+    // Rank order (catalog, then source identifier) of object, then source: the
+    // order of the objects table, so that parts of the sky merge by sorting.
+    let id = |r: &SourceRef| tables[r.catalog as usize].source_id[r.row as usize].as_str();
     let mut order: Vec<(SourceRef, SourceRef)> = rows.into_iter().map(|(s, o)| (o, s)).collect();
-    order.sort_unstable();
+    order.sort_unstable_by(|x, y| {
+        (x.0.catalog, id(&x.0), x.1.catalog, id(&x.1)).cmp(&(
+            y.0.catalog,
+            id(&y.0),
+            y.1.catalog,
+            id(&y.1),
+        ))
+    });
     let fields = vec![
         field("object_id", DataType::Utf8, false, None),
         field("catalog", DataType::Utf8, false, None),
