@@ -465,9 +465,12 @@ fn figures_hold_their_marks() {
     let gaia = fs::read_to_string(dir.join("cmd_gaia_bp-gaia_rp_gaia_g.svg")).unwrap();
     let e = svg_elements(&gaia);
     assert_eq!(count(&e, "detection-limit"), 1);
+    // The ask schema gives `depth` (the limit of its non-detections) but no
+    // `depth_mag`, so the line is the inferred depth, and the legend says so.
     assert!(
         e.iter()
-            .any(|x| x.1 == "legend-text" && x.2.ends_with("depth 20.50 mag")),
+            .any(|x| x.1 == "legend-text"
+                && x.2.starts_with("G depth 20.50 mag (inferred: limit of ")),
         "{gaia}"
     );
 
@@ -515,4 +518,185 @@ fn science_names_a_bad_window() {
         stderr,
         "fluxloom: error: --alpha-window: expected \"SHORTEST,LONGEST\" in µm with 0 < SHORTEST < LONGEST, found \"24,2\"\n"
     );
+}
+
+#[test]
+fn run_json_lists_the_science_table_build_wrote() {
+    let out = built();
+    let run: serde_json::Value =
+        serde_json::from_str(&fs::read_to_string(out.join("run.json")).unwrap()).unwrap();
+    let outputs = run["outputs"].as_array().unwrap();
+    let science = outputs
+        .iter()
+        .find(|o| o["file"] == "science.parquet")
+        .unwrap_or_else(|| panic!("science.parquet not in {outputs:?}"));
+    let rows = read_parquet(&out.join("objects.parquet")).num_rows() as u64;
+    assert_eq!(science["rows"].as_u64(), Some(rows));
+    // Every file listed is in the folder.
+    for o in outputs {
+        assert!(out.join(o["file"].as_str().unwrap()).is_file(), "{o}");
+    }
+}
+
+/// A one-catalog field whose schema states a Ks depth of 14.3 mag at S/N 10.
+fn tiny_field(dir: &Path) -> PathBuf {
+    let schema = r#"survey = "tiny"
+format = "csv"
+id = "id"
+
+[position]
+ra = "ra"
+dec = "dec"
+error = { kind = "fixed", arcsec = 0.1 }
+
+[epoch]
+year = 2010.0
+
+[[band]]
+band = "tmass_h"
+value = "h"
+unit = "vega_mag"
+error = "e_h"
+
+[[band]]
+band = "tmass_ks"
+value = "k"
+unit = "vega_mag"
+error = "e_k"
+depth_mag = 14.3
+depth_snr = 10
+"#;
+    let mut csv = String::from("id,ra,dec,h,e_h,k,e_k\n");
+    for i in 0..6 {
+        let ks = 10.0 + 0.7 * i as f64;
+        csv.push_str(&format!(
+            "s{i},{:.6},{:.6},{:.3},0.02,{:.3},0.02\n",
+            150.0 + 0.01 * i as f64,
+            2.0 + 0.005 * i as f64,
+            ks + 0.1 + 0.05 * i as f64,
+            ks
+        ));
+    }
+    let plan = r#"[field]
+name = "tiny"
+reference_epoch = 2010.0
+
+[match]
+tolerance = { kind = "sigma", k = 3.0, max_arcsec = 4.0 }
+
+[[catalog]]
+file = "tiny.csv"
+schema = "tiny.toml"
+
+[output]
+folder = "out"
+
+[science]
+"#;
+    fs::write(dir.join("tiny.toml"), schema).unwrap();
+    fs::write(dir.join("tiny.csv"), csv).unwrap();
+    fs::write(dir.join("plan.toml"), plan).unwrap();
+    dir.join("plan.toml")
+}
+
+#[test]
+fn a_schema_depth_travels_to_the_band_table_and_the_limit_line() {
+    let dir = tempfile::tempdir().unwrap();
+    let plan = tiny_field(dir.path());
+    let out = dir.path().join("out");
+    let (code, _, stderr) = fluxloom(&[
+        "build",
+        plan.to_str().unwrap(),
+        "--out",
+        out.to_str().unwrap(),
+        "--quiet",
+    ]);
+    assert_eq!(code, 0, "{stderr}");
+    // The band table of objects.parquet carries the depth of the band that has one.
+    let meta = fluxloom::output::parquet::read_metadata(&out.join("objects.parquet")).unwrap();
+    let bands: serde_json::Value =
+        serde_json::from_str(&meta.iter().find(|(k, _)| k == "fluxloom.bands").unwrap().1).unwrap();
+    let band = |id: &str| {
+        bands
+            .as_array()
+            .unwrap()
+            .iter()
+            .find(|b| b["id"] == id)
+            .unwrap()
+            .clone()
+    };
+    assert_eq!(band("tmass_ks")["depth_mag"], 14.3);
+    assert_eq!(band("tmass_ks")["depth_snr"], 10.0);
+    assert_eq!(band("tmass_ks")["depth_catalog"], "tiny");
+    assert!(band("tmass_h").get("depth_mag").is_none());
+    // run.json lists the science table of this build too.
+    let run: serde_json::Value =
+        serde_json::from_str(&fs::read_to_string(out.join("run.json")).unwrap()).unwrap();
+    assert!(
+        run["outputs"]
+            .as_array()
+            .unwrap()
+            .iter()
+            .any(|o| o["file"] == "science.parquet" && o["rows"] == 6),
+        "{}",
+        run["outputs"]
+    );
+    let (code, _, stderr) = fluxloom(&[
+        "draw",
+        out.to_str().unwrap(),
+        "--colour-magnitude",
+        "tmass_h-tmass_ks,tmass_ks",
+    ]);
+    assert_eq!(code, 0, "{stderr}");
+    let svg = fs::read_to_string(out.join("figures/cmd_tmass_h-tmass_ks_tmass_ks.svg")).unwrap();
+    let e = svg_elements(&svg);
+    assert_eq!(count(&e, "detection-limit"), 1);
+    assert!(
+        e.iter()
+            .any(|x| x.1 == "legend-text" && x.2 == "Ks depth 14.30 mag (10σ, schema of tiny)"),
+        "{svg}"
+    );
+    // The line is horizontal at Ks = 14.3 on the page: the page height of a
+    // magnitude follows from two labelled ticks of the (linear) y axis.
+    let ticks: Vec<(f64, f64)> = svg
+        .lines()
+        .filter(|l| l.contains("class=\"y-tick-label\""))
+        .map(|l| {
+            let y: f64 = attr(l, "y").parse().unwrap();
+            let text = &l[l.find('>').unwrap() + 1..];
+            let value: f64 = text[..text.find('<').unwrap()]
+                .replace('\u{2212}', "-")
+                .parse()
+                .unwrap();
+            (value, y)
+        })
+        .collect();
+    assert!(ticks.len() >= 2, "{svg}");
+    let ((v0, y0), (v1, y1)) = (ticks[0], ticks[ticks.len() - 1]);
+    // Tick labels sit 0.35 font sizes below their tick; only differences matter.
+    let want = y0 + (14.3 - v0) * (y1 - y0) / (v1 - v0);
+    let line = svg
+        .lines()
+        .find(|l| l.contains("class=\"detection-limit\""))
+        .unwrap();
+    let d = attr(line, "d");
+    let ys: Vec<f64> = d
+        .split(['M', 'L'])
+        .filter(|p| !p.is_empty())
+        .map(|p| p.split(' ').nth(1).unwrap().parse().unwrap())
+        .collect();
+    let label_offset = 12.0 * 0.35;
+    for y in ys {
+        assert!(
+            (y + label_offset - want).abs() < 0.02,
+            "{y} vs {want}: {line}"
+        );
+    }
+}
+
+/// The value of attribute `name` in one SVG element's line.
+fn attr<'a>(line: &'a str, name: &str) -> &'a str {
+    let key = format!(" {name}=\"");
+    let start = line.find(&key).unwrap() + key.len();
+    &line[start..start + line[start..].find('"').unwrap()]
 }

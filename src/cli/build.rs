@@ -356,6 +356,19 @@ pub fn build_with(plan: &Plan, out_dir: &Path, run: RunOptions) -> Result<BuildO
             outputs.push(OutputRecord { file, rows });
         }
     }
+    // The science table reads the SED tables just staged; a build that writes
+    // only some tables (e.g. links alone) does not make it.
+    if let Some(s) = plan
+        .science
+        .as_ref()
+        .filter(|_| which.objects && which.photometry)
+    {
+        let rows = crate::science::write_into(&mut staging, s)?;
+        outputs.push(OutputRecord {
+            file: crate::science::table::SCIENCE_FILE.to_string(),
+            rows,
+        });
+    }
     let record = RunRecord::new(
         plan,
         read.iter()
@@ -375,16 +388,9 @@ pub fn build_with(plan: &Plan, out_dir: &Path, run: RunOptions) -> Result<BuildO
         sed_counts(&slots, &status_counts),
         outputs.clone(),
     );
-    // The science table and the report read the SED tables; a build that writes
-    // only some tables (e.g. links alone) makes neither.
+    // The report reads the SED tables; a build that writes only some tables
+    // (e.g. links alone) does not make it.
     let all_tables = which.objects && which.photometry && which.links;
-    if let Some(s) = plan
-        .science
-        .as_ref()
-        .filter(|_| which.objects && which.photometry)
-    {
-        crate::science::write_into(&mut staging, s)?;
-    }
     let run_json = staging.path("run.json");
     std::fs::write(&run_json, record.to_json()? + "\n").map_err(|e| Error::io(&run_json, e))?;
     let report = (plan.report && all_tables)
@@ -455,13 +461,39 @@ fn file_digest(path: &Path) -> Result<(String, u64)> {
 }
 
 /// Parquet key-value metadata: field, plan, bands, flag legend.
+///
+/// The band table (`fluxloom.bands`) holds each band of the library once, and
+/// where a survey schema states the band's limiting magnitude, `depth_mag`,
+/// `depth_snr` (null when not stated) and `depth_catalog`; when several
+/// catalogs give the band, the deepest depth is kept (the SED of the field
+/// reaches it where that catalog covers the field).
 fn table_metadata(plan: &Plan, slots: &[BandSlot]) -> Result<Vec<(String, String)>> {
-    let mut bands: Vec<&crate::photometry::Band> = Vec::new();
+    let mut bands: Vec<(&crate::photometry::Band, Option<&BandSlot>)> = Vec::new();
     for s in slots {
-        if !bands.iter().any(|b| b.id == s.spec.band.id) {
-            bands.push(&s.spec.band);
+        let depth = s.spec.depth_mag.map(|_| s);
+        match bands.iter_mut().find(|(b, _)| b.id == s.spec.band.id) {
+            None => bands.push((&s.spec.band, depth)),
+            Some((_, kept)) => {
+                if let Some(d) = s.spec.depth_mag
+                    && kept.and_then(|k| k.spec.depth_mag).is_none_or(|k| d > k)
+                {
+                    *kept = Some(s);
+                }
+            }
         }
     }
+    let bands: Vec<serde_json::Value> = bands
+        .into_iter()
+        .map(|(band, depth)| {
+            let mut v = serde_json::to_value(band).map_err(|e| Error::Usage(e.to_string()))?;
+            if let (Some(slot), Some(map)) = (depth, v.as_object_mut()) {
+                map.insert("depth_mag".into(), serde_json::json!(slot.spec.depth_mag));
+                map.insert("depth_snr".into(), serde_json::json!(slot.spec.depth_snr));
+                map.insert("depth_catalog".into(), serde_json::json!(slot.catalog_name));
+            }
+            Ok(v)
+        })
+        .collect::<Result<_>>()?;
     let legend: Vec<serde_json::Value> = crate::crossmatch::flags::ALL
         .iter()
         .map(|(bit, name)| serde_json::json!({ "bit": bit, "name": name }))
