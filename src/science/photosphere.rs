@@ -89,7 +89,9 @@ impl Photosphere {
                 match field {
                     None => String::new(),
                     Some(StellarKey::TeffK(t)) => format!("; field T_eff = {t} K"),
-                    Some(StellarKey::Spt(c)) => format!("; field spectral type {c}"),
+                    Some(StellarKey::Spt(c)) => {
+                        format!("; field spectral type {c} on that scale")
+                    }
                 }
             ),
         }
