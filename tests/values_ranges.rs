@@ -122,6 +122,16 @@ fn impossible_schema_values_name_their_line() {
             "depth = 21.0\nquality = [{ column = \"q\", reject = [\"X\"], char = 0 }]",
             "s.toml:20: char counts from 1",
         ),
+        (
+            "depth = 21.0",
+            "depth = 21.0\ndepth_mag = -1.0",
+            "s.toml:20: depth_mag must be a magnitude in [0, 40] (the survey's limit in the band's own system), found -1",
+        ),
+        (
+            "depth = 21.0",
+            "depth = 21.0\ndepth_mag = 21.0\ndepth_snr = inf",
+            "s.toml:21: depth_snr must lie in (0, 1000], found inf",
+        ),
     ];
     for (from, to, want) in cases {
         let text = SCHEMA.replace(from, to);

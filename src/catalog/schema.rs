@@ -44,6 +44,9 @@ pub const MAX_POSITION_ERROR_ARCSEC: f64 = 3600.0;
 pub const MAX_OFFSET_MAG: f64 = 20.0;
 /// Largest accepted signal-to-noise threshold or sigma multiple of an `snr` limit.
 pub const MAX_SIGMA_MULTIPLE: f64 = 1000.0;
+/// Accepted survey depths `depth_mag`, magnitudes in the band's own system
+/// (brighter than 0 or fainter than 40 is no survey's limit; common practice).
+pub const DEPTH_MAG_RANGE: std::ops::RangeInclusive<f64> = 0.0..=40.0;
 /// Accepted fixed epochs, Julian years.
 pub const EPOCH_RANGE_YR: std::ops::RangeInclusive<f64> = 1800.0..=2200.0;
 
@@ -305,6 +308,13 @@ pub struct BandColumns {
     pub quality: Vec<QualityRule>,
     /// The survey's limiting depth in the value unit (used for "not detected" limits).
     pub depth: Option<f64>,
+    /// The survey's stated limiting magnitude in the band's own system (Vega or
+    /// AB, as in the band library), for the output metadata and the figures'
+    /// detection-limit lines; it changes no value.
+    pub depth_mag: Option<f64>,
+    /// The signal-to-noise ratio at which `depth_mag` is stated (e.g. 5 for a
+    /// 5σ limit), when the survey says.
+    pub depth_snr: Option<f64>,
     /// Schema line of this band's entry, for messages.
     pub line: usize,
 }
@@ -582,6 +592,8 @@ struct RawBand {
     #[serde(default)]
     quality: Vec<Spanned<RawQuality>>,
     depth: Option<Spanned<f64>>,
+    depth_mag: Option<Spanned<f64>>,
+    depth_snr: Option<Spanned<f64>>,
 }
 
 #[derive(Deserialize)]
@@ -992,8 +1004,40 @@ impl Validator<'_> {
             limit,
             quality,
             depth: None,
+            depth_mag: None,
+            depth_snr: None,
             line: self.line(raw.span()),
         };
+        if let Some(d) = &b.depth_mag {
+            let v = *d.get_ref();
+            if !DEPTH_MAG_RANGE.contains(&v) {
+                return Err(self.err(
+                    d.span(),
+                    format!(
+                        "depth_mag must be a magnitude in [{}, {}] (the survey's limit in the band's own system), found {v}",
+                        DEPTH_MAG_RANGE.start(),
+                        DEPTH_MAG_RANGE.end()
+                    ),
+                ));
+            }
+            columns.depth_mag = Some(v);
+        }
+        if let Some(n) = &b.depth_snr {
+            let v = *n.get_ref();
+            if columns.depth_mag.is_none() {
+                return Err(self.err(
+                    n.span(),
+                    "depth_snr is the signal-to-noise ratio of depth_mag; give depth_mag too",
+                ));
+            }
+            if !(v > 0.0 && v <= MAX_SIGMA_MULTIPLE) {
+                return Err(self.err(
+                    n.span(),
+                    format!("depth_snr must lie in (0, {MAX_SIGMA_MULTIPLE}], found {v}"),
+                ));
+            }
+            columns.depth_snr = Some(v);
+        }
         if let Some(d) = &b.depth {
             let v = *d.get_ref();
             let out = if v.is_finite() {
@@ -1321,6 +1365,39 @@ quality = [{ column = "cc", reject = ["D", "H"] }]
         );
         let err = parse(&text).unwrap_err().to_string();
         assert!(err.contains("has no zero point"), "{err}");
+    }
+
+    #[test]
+    fn depth_mag_and_its_snr_are_read_and_checked() {
+        let with = |extra: &str| GOOD.replace("e_kmag\"\n", &format!("e_kmag\"\n{extra}"));
+        let s = parse(&with("depth_mag = 14.3\ndepth_snr = 10\n")).unwrap();
+        assert_eq!(s.bands[1].depth_mag, Some(14.3));
+        assert_eq!(s.bands[1].depth_snr, Some(10.0));
+        assert_eq!(s.bands[0].depth_mag, None);
+        let s = parse(&with("depth_mag = 14.3\n")).unwrap();
+        assert_eq!(
+            (s.bands[1].depth_mag, s.bands[1].depth_snr),
+            (Some(14.3), None)
+        );
+        // Lines 22-26 are the Ks band; the new key is line 26.
+        assert_eq!(
+            parse(&with("depth_mag = 41.0\n")).unwrap_err().to_string(),
+            "s.toml:26: depth_mag must be a magnitude in [0, 40] (the survey's limit in the band's own system), found 41"
+        );
+        assert_eq!(
+            parse(&with("depth_mag = nan\n")).unwrap_err().to_string(),
+            "s.toml:26: depth_mag must be a magnitude in [0, 40] (the survey's limit in the band's own system), found NaN"
+        );
+        assert_eq!(
+            parse(&with("depth_snr = 5\n")).unwrap_err().to_string(),
+            "s.toml:26: depth_snr is the signal-to-noise ratio of depth_mag; give depth_mag too"
+        );
+        assert_eq!(
+            parse(&with("depth_mag = 14.3\ndepth_snr = 0\n"))
+                .unwrap_err()
+                .to_string(),
+            "s.toml:27: depth_snr must lie in (0, 1000], found 0"
+        );
     }
 
     #[test]

@@ -366,6 +366,7 @@ pub fn build_with(plan: &Plan, out_dir: &Path, run: RunOptions) -> Result<BuildO
         });
     }
     outputs.extend(write_exports(&mut staging, plan, &objects, &photometry)?);
+    outputs.extend(write_science(&mut staging, plan)?);
     let mut record = RunRecord::new(
         plan,
         read.iter()
@@ -465,27 +466,41 @@ pub(crate) fn write_exports(
     Ok(outputs)
 }
 
-/// Writes the science table and the report (when the plan and the tables
-/// written allow) and `run_json` as run.json into `staging`, and commits the folder.
+/// Writes the science table into `staging` when the plan asks for it and the
+/// SED tables it reads were written.
 ///
 /// # Errors
-/// Science, report and write errors.
+/// Science errors.
+pub(crate) fn write_science(staging: &mut Staging, plan: &Plan) -> Result<Option<OutputRecord>> {
+    let which = plan.tables;
+    let Some(s) = plan
+        .science
+        .as_ref()
+        .filter(|_| which.objects && which.photometry)
+    else {
+        return Ok(None);
+    };
+    let rows = crate::science::write_into(staging, s)?;
+    Ok(Some(OutputRecord {
+        file: crate::science::table::SCIENCE_FILE.to_string(),
+        rows,
+    }))
+}
+
+/// Writes `run_json` as run.json and the report (when the plan and the tables
+/// written allow) into `staging`, and commits the folder.
+///
+/// # Errors
+/// Report and write errors.
 pub(crate) fn finish_folder(
     mut staging: Staging,
     plan: &Plan,
     run_json: &str,
 ) -> Result<(Vec<PathBuf>, Option<Vec<crate::report::warnings::Warning>>)> {
     let which = plan.tables;
-    // The science table and the report read the SED tables; a build that writes
-    // only some tables (e.g. links alone) makes neither.
+    // The report reads the SED tables; a build that writes only some tables
+    // (e.g. links alone) does not make it.
     let all_tables = which.objects && which.photometry && which.links;
-    if let Some(s) = plan
-        .science
-        .as_ref()
-        .filter(|_| which.objects && which.photometry)
-    {
-        crate::science::write_into(&mut staging, s)?;
-    }
     let path = staging.path("run.json");
     std::fs::write(&path, format!("{run_json}\n")).map_err(|e| Error::io(&path, e))?;
     let report = (plan.report && all_tables)
@@ -643,12 +658,7 @@ fn file_digest(path: &Path) -> Result<(String, u64)> {
 
 /// Parquet key-value metadata: field, plan, bands, flag legend.
 fn table_metadata(plan: &Plan, slots: &[BandSlot]) -> Result<Vec<(String, String)>> {
-    let mut bands: Vec<&crate::photometry::Band> = Vec::new();
-    for s in slots {
-        if !bands.iter().any(|b| b.id == s.spec.band.id) {
-            bands.push(&s.spec.band);
-        }
-    }
+    let bands = band_table(slots);
     let legend: Vec<serde_json::Value> = crate::crossmatch::flags::ALL
         .iter()
         .map(|(bit, name)| serde_json::json!({ "bit": bit, "name": name }))
@@ -663,6 +673,56 @@ fn table_metadata(plan: &Plan, slots: &[BandSlot]) -> Result<Vec<(String, String
         ("fluxloom.bands".into(), to_json(&bands)?),
         ("fluxloom.flags".into(), to_json(&legend)?),
     ])
+}
+
+/// One band of the band table: the library's fields, then the stated depth.
+#[derive(serde::Serialize)]
+struct BandEntry<'a> {
+    #[serde(flatten)]
+    band: &'a crate::photometry::Band,
+    #[serde(flatten)]
+    depth: Option<BandDepth<'a>>,
+}
+
+/// The depth a survey schema states for a band, and which schema.
+#[derive(serde::Serialize)]
+struct BandDepth<'a> {
+    depth_mag: f64,
+    depth_snr: Option<f64>,
+    depth_catalog: &'a str,
+}
+
+/// The band table (`fluxloom.bands`): each band of the library once, and
+/// where a survey schema states the band's limiting magnitude, `depth_mag`,
+/// `depth_snr` (null when not stated) and `depth_catalog`; when several
+/// catalogs give the band, the deepest depth is kept (the SED of the field
+/// reaches it where that catalog covers the field).
+fn band_table(slots: &[BandSlot]) -> Vec<BandEntry<'_>> {
+    let mut bands: Vec<BandEntry> = Vec::new();
+    for s in slots {
+        let depth = s.spec.depth_mag.map(|depth_mag| BandDepth {
+            depth_mag,
+            depth_snr: s.spec.depth_snr,
+            depth_catalog: &s.catalog_name,
+        });
+        match bands.iter_mut().find(|b| b.band.id == s.spec.band.id) {
+            None => bands.push(BandEntry {
+                band: &s.spec.band,
+                depth,
+            }),
+            Some(kept) => {
+                if let Some(d) = depth
+                    && kept
+                        .depth
+                        .as_ref()
+                        .is_none_or(|k| d.depth_mag > k.depth_mag)
+                {
+                    kept.depth = Some(d);
+                }
+            }
+        }
+    }
+    bands
 }
 
 fn to_json<T: serde::Serialize>(value: &T) -> Result<String> {
@@ -835,6 +895,57 @@ mod tests {
             median_d_after: 1.177_41,
             median_stated_sigma_arcsec,
         }
+    }
+
+    #[test]
+    fn the_band_table_keeps_the_deepest_stated_depth() {
+        let lib = crate::photometry::BandLibrary::builtin();
+        let schema = |survey: &str, ks_extra: &str| {
+            let text = format!(
+                "survey = \"{survey}\"\nformat = \"csv\"\n[position]\nra = \"ra\"\ndec = \"dec\"\nerror = {{ kind = \"fixed\", arcsec = 0.1 }}\n[epoch]\nyear = 2010.0\n[[band]]\nband = \"tmass_h\"\nvalue = \"h\"\nunit = \"vega_mag\"\n[[band]]\nband = \"tmass_ks\"\nvalue = \"k\"\nunit = \"vega_mag\"\n{ks_extra}"
+            );
+            crate::catalog::schema::SurveySchema::from_str(&text, Path::new("s.toml"), &lib)
+                .unwrap()
+        };
+        let catalogs = [
+            schema("shallow", "depth_mag = 14.3\ndepth_snr = 10\n"),
+            schema("deep", "depth_mag = 15.1\n"),
+            schema("none", ""),
+        ];
+        let slots: Vec<BandSlot> = catalogs
+            .iter()
+            .enumerate()
+            .flat_map(|(k, c)| {
+                c.bands.iter().map(move |b| BandSlot {
+                    catalog: k,
+                    catalog_name: c.survey.clone(),
+                    spec: b.clone(),
+                })
+            })
+            .collect();
+        let table = serde_json::to_value(band_table(&slots)).unwrap();
+        let table = table.as_array().unwrap();
+        assert_eq!(table.len(), 2);
+        let (h, ks) = (&table[0], &table[1]);
+        assert_eq!(
+            (h["id"].as_str(), ks["id"].as_str()),
+            (Some("tmass_h"), Some("tmass_ks"))
+        );
+        assert!(h.get("depth_mag").is_none());
+        assert_eq!(ks["depth_mag"], 15.1);
+        assert_eq!(ks["depth_snr"], serde_json::Value::Null);
+        assert_eq!(ks["depth_catalog"], "deep");
+        // The band's library fields are still there, first and in their order.
+        assert_eq!(ks["zero_point_jy"], 666.7);
+        let text = serde_json::to_string(&band_table(&slots)).unwrap();
+        assert!(
+            text.starts_with("[{\"id\":\"tmass_h\",\"system\":\"vega\""),
+            "{text}"
+        );
+        assert!(
+            text.contains("\"depth_mag\":15.1,\"depth_snr\":null,\"depth_catalog\":\"deep\"}]"),
+            "{text}"
+        );
     }
 
     #[test]

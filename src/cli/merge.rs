@@ -10,7 +10,7 @@ use arrow::datatypes::Schema;
 use clap::Args;
 use parquet::arrow::arrow_reader::ParquetRecordBatchReaderBuilder;
 
-use super::build::{WRITE_CHUNK_OBJECTS, finish_folder, write_exports};
+use super::build::{WRITE_CHUNK_OBJECTS, finish_folder, write_exports, write_science};
 use crate::error::{Error, Result};
 use crate::output::merge::{
     Ranker, TableKind, check_subsets, join_records, join_table, read_records,
@@ -131,6 +131,7 @@ pub fn run(args: &MergeArgs) -> Result<()> {
         });
     }
     outputs.extend(write_exports(&mut staging, &plan, &objects, &photometry)?);
+    outputs.extend(write_science(&mut staging, &plan)?);
     let outputs_json = serde_json::to_value(&outputs).map_err(|e| Error::Usage(e.to_string()))?;
     let record = join_records(&args.parts, &records, outputs_json)?;
     let text = serde_json::to_string_pretty(&record).map_err(|e| Error::Usage(e.to_string()))?;

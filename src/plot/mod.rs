@@ -389,6 +389,12 @@ pub struct Figure {
     pub font_px: f64,
     /// Where the legend is drawn.
     pub legend_place: LegendPlace,
+    /// Name of the figure inside a page: its clip path gets the element id
+    /// `clip-<id>`. Empty (the default): `clip-` and 16 hexadecimal digits of a
+    /// 64-bit FNV-1a hash of the figure's own SVG, so different figures inlined
+    /// in one HTML page never share an id and the same figure always gets the
+    /// same one. Set it to a name unique in the page to choose the id yourself.
+    pub id: String,
     marks: Vec<Mark>,
     legend: Vec<(String, LegendKey)>,
 }
@@ -407,6 +413,23 @@ pub fn xml_escape(text: &str) -> String {
         }
     }
     out
+}
+
+/// Stands for the clip-path id while the SVG is written. It cannot come from
+/// a title, label or legend text: those go through [`xml_escape`], which
+/// writes every `<` as `&lt;`.
+const CLIP_PLACEHOLDER: &str = "<clip-id>";
+
+/// 64-bit FNV-1a hash (Fowler, Noll & Vo; offset basis 0xcbf29ce484222325,
+/// prime 0x100000001b3, from the authors' published parameters, from memory):
+/// small, stable across platforms and releases, unlike `std`'s hasher.
+fn fnv1a_64(bytes: &[u8]) -> u64 {
+    let mut h: u64 = 0xcbf2_9ce4_8422_2325;
+    for &b in bytes {
+        h ^= u64::from(b);
+        h = h.wrapping_mul(0x0000_0100_0000_01b3);
+    }
+    h
 }
 
 /// A number written compactly for SVG coordinates (two decimals).
@@ -432,6 +455,7 @@ impl Figure {
             y_axis: Axis::linear("", 0.0, 1.0),
             font_px: 12.0,
             legend_place: LegendPlace::TopRight,
+            id: String::new(),
             marks: Vec::new(),
             legend: Vec::new(),
         }
@@ -584,7 +608,7 @@ impl Figure {
         let (l, t, aw, ah) = self.area();
         let _ = writeln!(
             s,
-            r#"<defs><clipPath id="plot-area"><rect x="{}" y="{}" width="{}" height="{}"/></clipPath></defs>"#,
+            r#"<defs><clipPath id="{CLIP_PLACEHOLDER}"><rect x="{}" y="{}" width="{}" height="{}"/></clipPath></defs>"#,
             n(l),
             n(t),
             n(aw),
@@ -597,7 +621,7 @@ impl Figure {
             n(h)
         );
         self.write_axes(&mut s);
-        s.push_str("<g clip-path=\"url(#plot-area)\">\n");
+        let _ = writeln!(s, "<g clip-path=\"url(#{CLIP_PLACEHOLDER})\">");
         for mark in &self.marks {
             self.write_mark(&mut s, mark);
         }
@@ -622,7 +646,18 @@ impl Figure {
             );
         }
         s.push_str("</svg>\n");
-        s
+        s.replace(CLIP_PLACEHOLDER, &self.clip_id(&s))
+    }
+
+    /// The element id of the clip path: `clip-<id>`, or `clip-` and the
+    /// FNV-1a hash of `svg` (the document with the placeholder id) when the
+    /// figure has no [`Figure::id`].
+    fn clip_id(&self, svg: &str) -> String {
+        if self.id.is_empty() {
+            format!("clip-{:016x}", fnv1a_64(svg.as_bytes()))
+        } else {
+            format!("clip-{}", xml_escape(&self.id))
+        }
     }
 
     fn write_tick_label(s: &mut String, x: f64, y: f64, anchor: &str, tick: &Tick, class: &str) {
@@ -1053,6 +1088,61 @@ mod tests {
         assert!((a.min + 1.0).abs() < 1e-12 && (a.max - 11.0).abs() < 1e-12);
         let a = Axis::covering("x", Scale::Log10, &[1.0, 100.0, -5.0], 0.0);
         assert!((a.min - 1.0).abs() < 1e-9 && (a.max - 100.0).abs() < 1e-9);
+    }
+
+    /// The clip-path id and the one reference to it in `svg`.
+    fn clip_ids(svg: &str) -> (String, String) {
+        let def = svg.split("<clipPath id=\"").nth(1).unwrap();
+        let used = svg.split("clip-path=\"url(#").nth(1).unwrap();
+        (
+            def[..def.find('"').unwrap()].to_string(),
+            used[..used.find(')').unwrap()].to_string(),
+        )
+    }
+
+    #[test]
+    fn clip_ids_differ_between_figures_and_repeat_for_the_same_figure() {
+        let figure = |title: &str| {
+            let mut fig = Figure::new(400.0, 300.0);
+            fig.title = title.to_string();
+            fig.points(&[(0.5, 0.5)], &PointStyle::default(), "p");
+            fig
+        };
+        let (a_def, a_use) = clip_ids(&figure("SED of a:1").to_svg());
+        let (b_def, b_use) = clip_ids(&figure("SED of a:2").to_svg());
+        // Each document refers to its own clip path...
+        assert_eq!(a_def, a_use);
+        assert_eq!(b_def, b_use);
+        // ...and two figures inlined in one page do not share it.
+        assert_ne!(a_def, b_def);
+        assert!(
+            a_def.starts_with("clip-") && a_def.len() == 5 + 16,
+            "{a_def}"
+        );
+        assert!(!figure("x").to_svg().contains("plot-area"));
+        // Reproducible: the same figure gives the same document, byte for byte.
+        assert_eq!(figure("SED of a:1").to_svg(), figure("SED of a:1").to_svg());
+        // A title holding the placeholder text is escaped, not replaced.
+        let svg = figure("<clip-id>").to_svg();
+        assert!(svg.contains("&lt;clip-id&gt;"), "{svg}");
+        // A figure with an id uses it.
+        let mut named = figure("x");
+        named.id = "offsets-ask".into();
+        assert_eq!(
+            clip_ids(&named.to_svg()),
+            (
+                "clip-offsets-ask".to_string(),
+                "clip-offsets-ask".to_string()
+            )
+        );
+    }
+
+    #[test]
+    fn fnv1a_matches_the_published_test_vectors() {
+        // FNV-1a 64-bit of "" is the offset basis and of "a" is 0xaf63dc4c8601ec8c
+        // (test vectors of the FNV reference code, from memory).
+        assert_eq!(fnv1a_64(b""), 0xcbf2_9ce4_8422_2325);
+        assert_eq!(fnv1a_64(b"a"), 0xaf63_dc4c_8601_ec8c);
     }
 
     #[test]

@@ -1,8 +1,8 @@
 //! The report's figures, drawn with [`crate::plot`] and inlined as SVG.
 //!
 //! Each function returns one `<figure>` element (SVG and caption). Figures
-//! inlined in one page must not share element ids, so every figure's clip
-//! path is renamed after the figure's own id.
+//! inlined in one page must not share element ids, so every figure is drawn
+//! with its own page id as [`Figure::id`] (clip path `clip-<id>`).
 
 use std::collections::BTreeMap;
 
@@ -20,12 +20,11 @@ use crate::plot::{Anchor, Axis, Colour, Figure, LegendKey, LineStyle, Marker, Po
 const P: [Colour; 8] = Colour::PALETTE;
 const LIGHT: Colour = Colour(200, 200, 200);
 
-/// The SVG of `fig` with ids made unique by `id`, in a `<figure>` with a caption.
+/// The SVG of `fig` drawn with the page id `id`, in a `<figure>` with a caption.
 fn wrap(fig: &Figure, id: &str, caption: &str) -> String {
-    let svg = fig
-        .to_svg()
-        .replace("id=\"plot-area\"", &format!("id=\"clip-{id}\""))
-        .replace("url(#plot-area)", &format!("url(#clip-{id})"));
+    let mut fig = fig.clone();
+    fig.id = id.to_string();
+    let svg = fig.to_svg();
     format!(
         "<figure id=\"{}\">\n{svg}<figcaption>{}</figcaption>\n</figure>\n",
         esc(id),

@@ -103,6 +103,7 @@ mod tests {
             name: id.into(),
             wavelength_um: l,
             zero_point_jy: f0,
+            ..BandInfo::default()
         }
     }
 

@@ -10,7 +10,9 @@ use std::path::Path;
 
 use super::alpha::{AlphaFit, SedPoint, YsoClass, alpha_bounds, fit_alpha};
 use super::colour::{Colour, colour, colour_from_mags};
-use super::photosphere::{Photosphere, excess};
+use super::photosphere::{
+    ColourTable, Photosphere, StellarKey, excess, flux_from_colour_jy, spectral_type_code,
+};
 use super::sed_table::{BandInfo, BandValue, FieldSeds};
 use super::settings::{AvSource, ScienceSettings};
 use crate::error::{Error, Result};
@@ -114,6 +116,28 @@ pub fn colour_pairs(seds: &FieldSeds, settings: &ScienceSettings) -> Result<Vec<
 
 /// Reads a CSV with columns `object_id` and `value_column` (numbers).
 fn read_object_table(path: &Path, value_column: &str) -> Result<HashMap<String, f64>> {
+    read_object_values(path, value_column, "a number", |t| t.parse().ok())
+}
+
+/// Reads a CSV with columns `object_id` and `spt` (spectral types, as numbers
+/// of [`spectral_type_code`]).
+fn read_spt_table(path: &Path) -> Result<HashMap<String, f64>> {
+    read_object_values(
+        path,
+        "spt",
+        "a spectral type such as K5 or M2.5",
+        spectral_type_code,
+    )
+}
+
+/// Reads a CSV with columns `object_id` and `value_column`, each value read by
+/// `parse` (`None`: an error saying `expected`).
+fn read_object_values(
+    path: &Path,
+    value_column: &str,
+    expected: &str,
+    parse: impl Fn(&str) -> Option<f64>,
+) -> Result<HashMap<String, f64>> {
     let text = std::fs::read_to_string(path).map_err(|e| Error::io(path, e))?;
     let mut lines = text.lines();
     let header: Vec<&str> = lines
@@ -141,11 +165,11 @@ fn read_object_table(path: &Path, value_column: &str) -> Result<HashMap<String, 
         }
         let f: Vec<&str> = line.split(',').map(str::trim).collect();
         let text = f.get(ca).copied().unwrap_or("");
-        let v: f64 = text.parse().map_err(|_| Error::BadValue {
+        let v: f64 = parse(text).ok_or_else(|| Error::BadValue {
             path: path.to_path_buf(),
             row: row as u64 + 1,
             column: value_column.into(),
-            expected: "a number".into(),
+            expected: expected.into(),
             found: text.into(),
         })?;
         out.insert(f.get(ci).copied().unwrap_or("").to_string(), v);
@@ -237,6 +261,48 @@ pub fn compute(seds: &FieldSeds, settings: &ScienceSettings) -> Result<Science> 
         Some(p) => Some(read_object_table(p, "teff_k")?),
         None => None,
     };
+    let colour_table = match (&settings.photosphere, &settings.colour_table) {
+        (Photosphere::ColourTable { .. }, Some(p)) => Some(ColourTable::read(p, &settings.anchor)?),
+        (Photosphere::ColourTable { .. }, None) => {
+            return Err(Error::Usage(
+                "photosphere = \"colour_table\" needs colour_table".into(),
+            ));
+        }
+        _ => None,
+    };
+    let spt_table = match (&colour_table, &settings.spt_table) {
+        (Some(_), Some(p)) => Some(read_spt_table(p)?),
+        _ => None,
+    };
+    if let Some(t) = &colour_table {
+        let wants_spt = spt_table.is_some()
+            || matches!(
+                settings.photosphere,
+                Photosphere::ColourTable {
+                    field: Some(StellarKey::Spt(_))
+                }
+            );
+        let wants_teff = teff_table.is_some()
+            || matches!(
+                settings.photosphere,
+                Photosphere::ColourTable {
+                    field: Some(StellarKey::TeffK(_))
+                }
+            );
+        for (wanted, rows, column) in [
+            (wants_spt, &t.by_spt, "spt"),
+            (wants_teff, &t.by_teff, "teff_k"),
+        ] {
+            if wanted && rows.is_empty() {
+                return Err(Error::format(
+                    &t.path,
+                    format!(
+                        "the settings look objects up by {column}, but the colour table has no {column} column (or no value in it)"
+                    ),
+                ));
+            }
+        }
+    }
     let strom = ["strom_u", "strom_v", "strom_b", "strom_y"].map(|b| seds.band_index(b));
     let halpha = match &settings.halpha {
         Some(h) => Some((need(&h.r)?, need(&h.halpha)?, need(&h.i)?)),
@@ -304,6 +370,20 @@ pub fn compute(seds: &FieldSeds, settings: &ScienceSettings) -> Result<Science> 
             (Photosphere::Blackbody { teff_k }, Some(t)) => Some(Photosphere::Blackbody {
                 teff_k: t.get(id).copied().unwrap_or(teff_k),
             }),
+            (Photosphere::ColourTable { field }, _) => {
+                // The object's own spectral type, then its own T_eff, then the field's.
+                let own = spt_table
+                    .as_ref()
+                    .and_then(|t| t.get(id))
+                    .map(|c| StellarKey::Spt(*c))
+                    .or_else(|| {
+                        teff_table
+                            .as_ref()
+                            .and_then(|t| t.get(id))
+                            .map(|t| StellarKey::TeffK(*t))
+                    });
+                own.or(field).map(|k| Photosphere::ColourTable { field: Some(k) })
+            }
             (p, _) => Some(p),
         }
         .filter(|p| !matches!(p, Photosphere::Blackbody { teff_k } if teff_k.is_nan() || *teff_k <= 0.0));
@@ -317,12 +397,23 @@ pub fn compute(seds: &FieldSeds, settings: &ScienceSettings) -> Result<Science> 
                 if k == a {
                     continue;
                 }
-                let Some(phot) = photosphere.flux_jy(
-                    (ab.wavelength_um, ab.zero_point_jy, fa),
-                    b.wavelength_um,
-                    b.zero_point_jy,
-                    b.system == "vega",
-                ) else {
+                let phot = match (photosphere, &colour_table) {
+                    (Photosphere::ColourTable { field: Some(key) }, Some(table)) => {
+                        match (ab.zero_point_jy, b.zero_point_jy) {
+                            (Some(f0a), Some(f0b)) => table
+                                .band_minus_anchor_mag(key, &b.id)
+                                .map(|c| flux_from_colour_jy(f0a, fa, f0b, c)),
+                            _ => None,
+                        }
+                    }
+                    _ => photosphere.flux_jy(
+                        (ab.wavelength_um, ab.zero_point_jy, fa),
+                        b.wavelength_um,
+                        b.zero_point_jy,
+                        b.system == "vega",
+                    ),
+                };
+                let Some(phot) = phot else {
                     continue;
                 };
                 bands[k].phot_jy = Some(phot);
@@ -426,6 +517,7 @@ mod tests {
             name: id.into(),
             wavelength_um: l,
             zero_point_jy: f0,
+            ..BandInfo::default()
         }
     }
 
@@ -547,6 +639,79 @@ mod tests {
         let ks_obs = seds.values[0][9].flux_jy.unwrap();
         let ks_dered = o.bands[9].dered_flux_jy.unwrap();
         assert!((ks_dered / ks_obs - 10f64.powf(0.4 * 2.0 * law.ks)).abs() < 1e-12);
+    }
+
+    #[test]
+    fn a_colour_table_photosphere_follows_each_objects_key() {
+        let dir = tempfile::tempdir().unwrap();
+        let write = |name: &str, text: &str| {
+            let p = dir.path().join(name);
+            std::fs::write(&p, text).unwrap();
+            p
+        };
+        // Colours invented for this test.
+        let table = write(
+            "colours.csv",
+            "# invented\nspt,teff_k,tmass_j-tmass_ks,tmass_ks-wise_w1\nK7,4000,0.80,0.10\nK2,5000,0.60,0.04\n",
+        );
+        let teff = write("teff.csv", "object_id,teff_k\na:1,4250\n");
+        let spt = write("spt.csv", "object_id,spt\na:2,K4.5\n");
+        let bands = vec![
+            band("tmass_j", "vega", 1.235, Some(1594.0)),
+            band("tmass_ks", "vega", 2.159, Some(666.7)),
+            band("wise_w1", "vega", 3.3526, Some(309.540)),
+        ];
+        let one = vec![flux(1594.0, 10.8), flux(666.7, 10.0), flux(309.540, 9.0)];
+        let seds = FieldSeds {
+            path: "objects.parquet".into(),
+            bands,
+            object_id: vec!["a:1".into(), "a:2".into(), "a:3".into()],
+            values: vec![one.clone(), one.clone(), one],
+            metadata: Vec::new(),
+        };
+        let settings = ScienceSettings {
+            photosphere: Photosphere::ColourTable { field: None },
+            colour_table: Some(table),
+            teff_table: Some(teff),
+            spt_table: Some(spt),
+            ..ScienceSettings::default()
+        };
+        let sci = compute(&seds, &settings).unwrap();
+        let phot_mjy = |o: usize, b: usize| sci.objects[o].bands[b].phot_jy.map(|f| f * 1e3);
+        // Ks = 10 → 66.67 mJy (FIELD §7.1). a:1 at 4250 K, a quarter of the way
+        // from 4000 K to 5000 K: J − Ks = 0.80 − 0.25 × 0.20 = 0.75, so
+        // F_J = 1594 Jy × 10^(−0.4 × 10.75) = 79.889 mJy; Ks − W1 = 0.10 − 0.25 × 0.06
+        // = 0.085, so W1 = 9.915 and F_W1 = 309.54 Jy × 10^(−0.4 × 9.915) = 33.475 mJy.
+        assert!((phot_mjy(0, 0).unwrap() - 79.889).abs() < 1e-3);
+        assert!((phot_mjy(0, 1).unwrap() - 66.67).abs() < 1e-9);
+        assert!((phot_mjy(0, 2).unwrap() - 33.475).abs() < 1e-3);
+        // a:2 is K4.5 (54.5), half way from K2 (52) to K7 (57): Ks − W1 = 0.07,
+        // F_W1 = 309.54 Jy × 10^(−0.4 × 9.93) = 33.015 mJy.
+        assert!((phot_mjy(1, 2).unwrap() - 33.015).abs() < 1e-3);
+        // a:3 is in neither table and the field has no key: no photosphere.
+        assert_eq!(phot_mjy(2, 2), None);
+        assert_eq!(sci.objects[2].bands[2].excess_mag, None);
+        // W1 observed at 9.0 against 9.915: excess 0.915 mag, flagged.
+        let w1 = sci.objects[0].bands[2];
+        assert!((w1.excess_mag.unwrap() - 0.915).abs() < 1e-9);
+        assert!(w1.flagged);
+        // A table without spt values cannot serve an spt_table.
+        let no_spt = write("teff_only.csv", "teff_k,tmass_ks-wise_w1\n4000,0.1\n");
+        let e = compute(
+            &seds,
+            &ScienceSettings {
+                colour_table: Some(no_spt.clone()),
+                ..settings.clone()
+            },
+        )
+        .unwrap_err();
+        assert_eq!(
+            e.to_string(),
+            format!(
+                "{}: the settings look objects up by spt, but the colour table has no spt column (or no value in it)",
+                no_spt.display()
+            )
+        );
     }
 
     #[test]

@@ -7,9 +7,10 @@
 //!   to the left, magnitudes bright at the top, points styled by class and
 //!   excess flag, the reddening vector of the law for a chosen A_V, a reference
 //!   locus when given, and on a colour–magnitude diagram the detection limits of
-//!   the bands: the survey depth, recognised as the upper limit shared by the
-//!   band's non-detections (written by `build` when the schema gives a depth);
-//!   without one no limit line is drawn.
+//!   the bands ([`band_depth`]): the `depth_mag` a survey schema states for the
+//!   band (carried in the band table of `objects.parquet`), or else the depth
+//!   inferred from the upper limit shared by the band's non-detections; the
+//!   legend says which. Without either no limit line is drawn.
 
 use super::alpha::YsoClass;
 use super::compute::{ObjectScience, Science};
@@ -307,10 +308,79 @@ pub fn colour_colour_figure(
     fig
 }
 
+/// Where a band's detection limit comes from.
+#[derive(Debug, Clone, PartialEq)]
+pub enum DepthSource {
+    /// The `depth_mag` of a survey schema, with its S/N when stated.
+    Schema {
+        /// The catalog whose schema states it.
+        catalog: Option<String>,
+        /// The signal-to-noise ratio of the depth.
+        snr: Option<f64>,
+    },
+    /// The upper limit shared by this many non-detections ([`depth_mag`]).
+    Inferred {
+        /// How many non-detections share it.
+        count: usize,
+    },
+}
+
+/// A band's detection limit, magnitudes in the band's own system.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Depth {
+    /// The limiting magnitude.
+    pub mag: f64,
+    /// Where it comes from.
+    pub source: DepthSource,
+}
+
+impl Depth {
+    /// The legend text of the limit line of band `name`.
+    pub fn legend(&self, name: &str) -> String {
+        let how = match &self.source {
+            DepthSource::Schema { catalog, snr } => {
+                let snr = snr.map_or(String::new(), |n| format!("{n}σ, "));
+                match catalog {
+                    Some(c) => format!("{snr}schema of {c}"),
+                    None => format!("{snr}survey schema"),
+                }
+            }
+            DepthSource::Inferred { count } => {
+                format!("inferred: limit of {count} non-detections")
+            }
+        };
+        format!("{name} depth {:.2} mag ({how})", self.mag)
+    }
+}
+
+/// The detection limit of band `b`: the schema's `depth_mag` when the band
+/// table has one, else the depth inferred from repeated upper limits.
+pub fn band_depth(seds: &FieldSeds, b: usize) -> Option<Depth> {
+    let band = &seds.bands[b];
+    if let Some(mag) = band.depth_mag {
+        return Some(Depth {
+            mag,
+            source: DepthSource::Schema {
+                catalog: band.depth_catalog.clone(),
+                snr: band.depth_snr,
+            },
+        });
+    }
+    inferred_depth(seds, b).map(|(mag, count)| Depth {
+        mag,
+        source: DepthSource::Inferred { count },
+    })
+}
+
 /// The survey depth of band `b` as a magnitude: the upper limit most often
 /// repeated exactly (at least 3 times), which is how `build` marks a catalog's
 /// depth for its non-detections.
 pub fn depth_mag(seds: &FieldSeds, b: usize) -> Option<f64> {
+    inferred_depth(seds, b).map(|d| d.0)
+}
+
+/// [`depth_mag`] and the number of non-detections at it.
+fn inferred_depth(seds: &FieldSeds, b: usize) -> Option<(f64, usize)> {
     let mut counts: Vec<(u64, usize, f64)> = Vec::new();
     for v in &seds.values {
         if v[b].flux_jy.is_some() || v[b].mag.is_some() {
@@ -328,7 +398,7 @@ pub fn depth_mag(seds: &FieldSeds, b: usize) -> Option<f64> {
         .into_iter()
         .filter(|c| c.1 >= 3)
         .max_by_key(|c| c.1)
-        .map(|c| c.2)
+        .map(|c| (c.2, c.1))
 }
 
 /// Colour–magnitude diagram: band `m` (bright at the top) against colour `x`.
@@ -352,11 +422,16 @@ pub fn colour_magnitude_figure(
     fig.title = format!("{} objects", pts.len());
     let mut xs: Vec<f64> = pts.iter().map(|p| p.1).collect();
     let mut ys: Vec<f64> = pts.iter().map(|p| p.2).collect();
-    let depths: Vec<(usize, f64)> = [x.0, x.1, m]
+    // The magnitude band is often one of the colour's: each band's limit once.
+    let mut limit_bands = vec![x.0, x.1];
+    if !limit_bands.contains(&m) {
+        limit_bands.push(m);
+    }
+    let depths: Vec<(usize, Depth)> = limit_bands
         .into_iter()
-        .filter_map(|b| depth_mag(seds, b).map(|d| (b, d)))
+        .filter_map(|b| band_depth(seds, b).map(|d| (b, d)))
         .collect();
-    ys.extend(depths.iter().filter(|d| d.0 == m).map(|d| d.1));
+    ys.extend(depths.iter().filter(|d| d.0 == m).map(|d| d.1.mag));
     if let Some(l) = locus {
         xs.extend(l.iter().map(|p| p.0));
         ys.extend(l.iter().map(|p| p.1));
@@ -376,7 +451,8 @@ pub fn colour_magnitude_figure(
         fig.legend_entry("reference locus", LegendKey::Line(style));
     }
     let (x_lo, x_hi) = (fig.x_axis.min, fig.x_axis.max);
-    for (b, d) in &depths {
+    for (b, depth) in &depths {
+        let d = &depth.mag;
         let style = LineStyle::dashed(Colour::BLUE);
         // y = m. Depth in m: y = d. Depth in the other colour band: if m is the
         // colour's red band, m_blue = d gives y = d − x; if m is its blue band,
@@ -392,14 +468,140 @@ pub fn colour_magnitude_figure(
         };
         if let Some(line) = line {
             fig.polyline(&line, &style, "detection-limit");
-            fig.legend_entry(
-                &format!("{} depth {d:.2} mag", seds.bands[*b].name),
-                LegendKey::Line(style),
-            );
+            fig.legend_entry(&depth.legend(&seds.bands[*b].name), LegendKey::Line(style));
         }
     }
     grouped_points(&mut fig, seds, sci, &pts);
     let dy = sci.a_over_av[m];
     add_vector(&mut fig, sci, reddening(sci, x), dy, av_mag);
     fig
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::science::ScienceSettings;
+    use crate::science::compute::compute;
+    use crate::science::sed_table::{BandInfo, BandValue};
+
+    /// Five objects with H and Ks detected and three whose Ks is an upper limit
+    /// at Ks = 15.0 (a depth that can be inferred); `ks_depth` is the schema's.
+    fn field(ks_depth: Option<f64>) -> FieldSeds {
+        let band = |id: &str, name: &str, l: f64, f0: f64| BandInfo {
+            id: id.into(),
+            system: "vega".into(),
+            name: name.into(),
+            wavelength_um: l,
+            zero_point_jy: Some(f0),
+            ..BandInfo::default()
+        };
+        let mut ks = band("tmass_ks", "Ks", 2.159, 666.7);
+        ks.depth_mag = ks_depth;
+        ks.depth_snr = ks_depth.map(|_| 10.0);
+        ks.depth_catalog = ks_depth.map(|_| "tiny".to_string());
+        let bands = vec![band("tmass_h", "H", 1.662, 1024.0), ks];
+        let det = |f0: f64, m: f64| {
+            let f = f0 * 10f64.powf(-0.4 * m);
+            BandValue {
+                flux_jy: Some(f),
+                flux_err_jy: Some(0.02 * f),
+                ..BandValue::default()
+            }
+        };
+        let mut values: Vec<Vec<BandValue>> = (0..5)
+            .map(|k| {
+                let ks = 11.0 + k as f64;
+                vec![det(1024.0, ks + 0.2), det(666.7, ks)]
+            })
+            .collect();
+        for _ in 0..3 {
+            values.push(vec![
+                det(1024.0, 15.5),
+                BandValue {
+                    ulim_jy: Some(666.7 * 10f64.powf(-0.4 * 15.0)),
+                    ..BandValue::default()
+                },
+            ]);
+        }
+        FieldSeds {
+            path: "objects.parquet".into(),
+            bands,
+            object_id: (0..values.len()).map(|k| format!("t:{k}")).collect(),
+            values,
+            metadata: Vec::new(),
+        }
+    }
+
+    /// The page y of every vertex of the `detection-limit` paths of `svg`.
+    fn limit_line_ys(svg: &str) -> Vec<f64> {
+        svg.lines()
+            .filter(|l| l.contains("class=\"detection-limit\""))
+            .flat_map(|l| {
+                let d = l.split(" d=\"").nth(1).unwrap();
+                let d = &d[..d.find('"').unwrap()];
+                d.split(['M', 'L'])
+                    .filter(|p| !p.is_empty())
+                    .map(|p| p.split(' ').nth(1).unwrap().parse::<f64>().unwrap())
+                    .collect::<Vec<_>>()
+            })
+            .collect()
+    }
+
+    fn legend_texts(svg: &str) -> Vec<String> {
+        svg.lines()
+            .filter(|l| l.contains("class=\"legend-text\""))
+            .map(|l| {
+                let t = &l[l.find('>').unwrap() + 1..];
+                t[..t.find('<').unwrap()].to_string()
+            })
+            .collect()
+    }
+
+    #[test]
+    fn a_schema_depth_draws_the_limit_line_at_its_value() {
+        let seds = field(Some(14.3));
+        let sci = compute(&seds, &ScienceSettings::default()).unwrap();
+        let fig = colour_magnitude_figure(&seds, &sci, (0, 1), 1, 1.0, None);
+        let svg = fig.to_svg();
+        // One horizontal line, at the page height of Ks = 14.3 (not at the 15.0
+        // the non-detections share: the schema's depth comes first).
+        let want = fig.to_page(0.0, 14.3).unwrap().1;
+        let ys = limit_line_ys(&svg);
+        assert_eq!(ys.len(), 2, "{svg}");
+        for y in ys {
+            assert!((y - want).abs() < 0.006, "{y} vs {want}");
+        }
+        assert!(
+            legend_texts(&svg).contains(&"Ks depth 14.30 mag (10σ, schema of tiny)".to_string()),
+            "{:?}",
+            legend_texts(&svg)
+        );
+    }
+
+    #[test]
+    fn without_a_schema_depth_the_inferred_one_is_drawn_and_named() {
+        let seds = field(None);
+        let sci = compute(&seds, &ScienceSettings::default()).unwrap();
+        let fig = colour_magnitude_figure(&seds, &sci, (0, 1), 1, 1.0, None);
+        let svg = fig.to_svg();
+        let want = fig.to_page(0.0, 15.0).unwrap().1;
+        let ys = limit_line_ys(&svg);
+        assert_eq!(ys.len(), 2, "{svg}");
+        for y in ys {
+            assert!((y - want).abs() < 0.006, "{y} vs {want}");
+        }
+        assert!(
+            legend_texts(&svg)
+                .contains(&"Ks depth 15.00 mag (inferred: limit of 3 non-detections)".to_string()),
+            "{:?}",
+            legend_texts(&svg)
+        );
+        // Two repeats are not a depth: no line at all.
+        let mut seds = field(None);
+        seds.values.pop();
+        seds.object_id.pop();
+        let sci = compute(&seds, &ScienceSettings::default()).unwrap();
+        let svg = colour_magnitude_figure(&seds, &sci, (0, 1), 1, 1.0, None).to_svg();
+        assert!(limit_line_ys(&svg).is_empty());
+    }
 }

@@ -13,11 +13,26 @@
 //!   F_ν(band) = F0(band)·F_ν(anchor)/F0(anchor). This is the photospheric
 //!   colour of A–K stars in the infrared (≈ 0 mag, FIELD §4.5); it is wrong in
 //!   the optical for anything but A0V stars, and AB bands get no value.
+//! - [`Photosphere::ColourTable`]: the intrinsic colour with the anchor that a
+//!   user's [`ColourTable`] gives for the object's T_eff or spectral type,
+//!   m(band) = m(anchor) + (m(band) − m(anchor))₀, so
+//!   F_ν(band) = F0(band)·(F_ν(anchor)/F0(anchor))·10^(−0.4 (m(band) − m(anchor))₀)
+//!   ([`flux_from_colour_jy`]). Assumes the table describes the object's kind of
+//!   star (dwarfs, giants...) and that the anchor is photospheric; interpolated
+//!   linearly between rows, never extrapolated (an object outside the table's
+//!   range gets no photosphere in that band). As good as the table: a
+//!   published one (e.g. Pecaut & Mamajek 2013, ApJS 208, 9, Table 5 (from
+//!   memory)) includes the molecular bands of cool stars that a blackbody
+//!   misses.
 //!
 //! Excess per band: E = m_phot − m_obs (positive = brighter than the
 //! photosphere), χ = (F_obs − F_phot)/sqrt(σ_obs² + σ_phot²) (FIELD §4.5), with
 //! σ_phot the anchor's relative error times F_phot plus a relative model
 //! uncertainty in quadrature.
+
+use std::path::{Path, PathBuf};
+
+use crate::error::{Error, Result};
 
 /// Planck constant × c / k_B = 14387.77 µm K (second radiation constant, CODATA 2018:
 /// h c / k = 1.438776877e-2 m K).
@@ -35,6 +50,22 @@ pub enum Photosphere {
     },
     /// Vega colours relative to the anchor are zero.
     ZeroVegaColour,
+    /// Intrinsic colours from a [`ColourTable`] at each object's T_eff or
+    /// spectral type; `field` is the key of objects the per-object tables do
+    /// not list (`None`: such objects get no photosphere).
+    ColourTable {
+        /// The field's T_eff or spectral type.
+        field: Option<StellarKey>,
+    },
+}
+
+/// What a colour table is looked up by.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub enum StellarKey {
+    /// Effective temperature, K.
+    TeffK(f64),
+    /// Spectral type on the numeric scale of [`spectral_type_code`].
+    Spt(f64),
 }
 
 impl Photosphere {
@@ -53,6 +84,16 @@ impl Photosphere {
             Photosphere::ZeroVegaColour => {
                 "zero Vega colour with the anchor (A-K photospheres in the infrared; no value for AB bands)".to_string()
             }
+            Photosphere::ColourTable { field } => format!(
+                "intrinsic colours with the anchor from a colour table, interpolated linearly in T_eff or in the numeric spectral type (O0 = 0, B0 = 10, A0 = 20, F0 = 30, G0 = 40, K0 = 50, M0 = 60, L0 = 70, T0 = 80, Y0 = 90), not extrapolated{}",
+                match field {
+                    None => String::new(),
+                    Some(StellarKey::TeffK(t)) => format!("; field T_eff = {t} K"),
+                    Some(StellarKey::Spt(c)) => {
+                        format!("; field spectral type {c} on that scale")
+                    }
+                }
+            ),
         }
     }
 
@@ -78,8 +119,292 @@ impl Photosphere {
                     None
                 }
             }
+            // The colour depends on the object: see `flux_from_colour_jy`.
+            Photosphere::ColourTable { .. } => None,
         }
     }
+}
+
+/// Photospheric flux density in a band from the anchor's zero point and flux
+/// density, the band's zero point and the intrinsic colour
+/// `band_minus_anchor_mag` = (m(band) − m(anchor))₀, each band in its own system:
+/// F_ν(band) = F0(band)·(F_ν(anchor)/F0(anchor))·10^(−0.4 colour).
+pub fn flux_from_colour_jy(
+    anchor_zero_point_jy: f64,
+    anchor_flux_jy: f64,
+    band_zero_point_jy: f64,
+    band_minus_anchor_mag: f64,
+) -> f64 {
+    band_zero_point_jy * anchor_flux_jy / anchor_zero_point_jy
+        * 10f64.powf(-0.4 * band_minus_anchor_mag)
+}
+
+/// The spectral classes in temperature order, ten units apart on the numeric
+/// scale (common practice: O0 = 0 … M0 = 60, L0 = 70, T0 = 80, Y0 = 90).
+const SPECTRAL_CLASSES: &str = "OBAFGKMLTY";
+
+/// A spectral type on a numeric scale: 10 × (place of the class letter in
+/// O B A F G K M L T Y) + subtype, e.g. "A0" → 20, "K5" → 55, "M2.5" → 62.5,
+/// "K5V" → 55. The subtype is a number in [0, 10) with optional decimals; a
+/// luminosity class after it (letters I, V, a, b, possibly after a space) is
+/// accepted and ignored, so the table must be one for the objects' class.
+/// `None` for anything else.
+pub fn spectral_type_code(text: &str) -> Option<f64> {
+    let t = text.trim();
+    let mut chars = t.chars();
+    let letter = chars.next()?.to_ascii_uppercase();
+    let class = SPECTRAL_CLASSES.find(letter)? as f64;
+    let rest = chars.as_str();
+    let digits_end = rest
+        .find(|c: char| !(c.is_ascii_digit() || c == '.'))
+        .unwrap_or(rest.len());
+    let (number, suffix) = rest.split_at(digits_end);
+    if number.is_empty() || number.starts_with('.') || number.ends_with('.') {
+        return None;
+    }
+    let subtype: f64 = number.parse().ok()?;
+    if !(0.0..10.0).contains(&subtype) {
+        return None;
+    }
+    let suffix = suffix.trim_start();
+    if !suffix.chars().all(|c| matches!(c, 'I' | 'V' | 'a' | 'b')) {
+        return None;
+    }
+    Some(10.0 * class + subtype)
+}
+
+/// One colour column of a [`ColourTable`]: (m(band) − m(anchor))₀ or its
+/// negative, as the header wrote it.
+#[derive(Debug, Clone, PartialEq)]
+pub struct TableColour {
+    /// The header text, e.g. `tmass_j-tmass_ks`.
+    pub name: String,
+    /// The band that is not the anchor.
+    pub band: String,
+    /// True for `anchor-band` columns, false for `band-anchor`.
+    pub anchor_first: bool,
+}
+
+/// Intrinsic photospheric colours per T_eff and/or spectral type, read from a CSV:
+///
+/// ```text
+/// # lines starting with '#' are comments (name the source of the values here)
+/// spt,teff_k,tmass_j-tmass_ks,tmass_h-tmass_ks,tmass_ks-wise_w1
+/// K5,4450,0.72,0.13,0.09
+/// M0,3850,0.83,0.19,0.12
+/// ```
+///
+/// A `teff_k` column (K, > 0) and/or an `spt` column (e.g. `K5`, `M2.5`; see
+/// [`spectral_type_code`]); every other column is a colour of two band ids
+/// joined by `-`, one of them the anchor band, bluer minus redder as written
+/// (each band in its own system). Empty cells are unknown colours. Rows need
+/// not be sorted; a key value may not repeat.
+#[derive(Debug, Clone, PartialEq)]
+pub struct ColourTable {
+    /// The file read.
+    pub path: PathBuf,
+    /// The colour columns.
+    pub colours: Vec<TableColour>,
+    /// Rows by T_eff: (T_eff, colours), sorted by T_eff.
+    pub by_teff: Vec<(f64, Vec<Option<f64>>)>,
+    /// Rows by spectral type: (numeric type, colours), sorted.
+    pub by_spt: Vec<(f64, Vec<Option<f64>>)>,
+}
+
+impl ColourTable {
+    /// Reads the table at `path` for the anchor band `anchor`.
+    ///
+    /// # Errors
+    /// I/O errors; format errors naming the file, row and column.
+    pub fn read(path: &Path, anchor: &str) -> Result<ColourTable> {
+        let text = std::fs::read_to_string(path).map_err(|e| Error::io(path, e))?;
+        ColourTable::parse(&text, path, anchor)
+    }
+
+    /// Parses the table `text` (`path` is used in messages).
+    ///
+    /// # Errors
+    /// As [`ColourTable::read`].
+    pub fn parse(text: &str, path: &Path, anchor: &str) -> Result<ColourTable> {
+        let mut lines = text
+            .lines()
+            .enumerate()
+            .filter(|(_, l)| !l.trim_start().starts_with('#') && !l.trim().is_empty());
+        let Some((_, header)) = lines.next() else {
+            return Err(Error::format(
+                path,
+                "no header line; expected teff_k and/or spt, then colour columns such as tmass_j-tmass_ks",
+            ));
+        };
+        let names: Vec<&str> = header.split(',').map(str::trim).collect();
+        let (mut teff_col, mut spt_col) = (None, None);
+        let mut colours = Vec::new();
+        let mut colour_cols = Vec::new();
+        for (i, name) in names.iter().enumerate() {
+            match *name {
+                "teff_k" => teff_col = Some(i),
+                "spt" => spt_col = Some(i),
+                other => {
+                    let parts = other.split_once('-');
+                    let colour = match parts {
+                        Some((a, b)) if a == anchor && !b.is_empty() && b != anchor => {
+                            TableColour {
+                                name: other.to_string(),
+                                band: b.to_string(),
+                                anchor_first: true,
+                            }
+                        }
+                        Some((a, b)) if b == anchor && !a.is_empty() && a != anchor => {
+                            TableColour {
+                                name: other.to_string(),
+                                band: a.to_string(),
+                                anchor_first: false,
+                            }
+                        }
+                        _ => {
+                            return Err(Error::format(
+                                path,
+                                format!(
+                                    "column \"{other}\": expected teff_k, spt or a colour \"band-{anchor}\" / \"{anchor}-band\" with the anchor band {anchor}"
+                                ),
+                            ));
+                        }
+                    };
+                    colours.push(colour);
+                    colour_cols.push(i);
+                }
+            }
+        }
+        if teff_col.is_none() && spt_col.is_none() {
+            return Err(Error::format(
+                path,
+                format!(
+                    "expected a teff_k or an spt column, found \"{}\"",
+                    names.join(",")
+                ),
+            ));
+        }
+        if colours.is_empty() {
+            return Err(Error::format(
+                path,
+                format!(
+                    "no colour columns (such as tmass_j-{anchor}) in \"{}\"",
+                    names.join(",")
+                ),
+            ));
+        }
+        let mut table = ColourTable {
+            path: path.to_path_buf(),
+            colours,
+            by_teff: Vec::new(),
+            by_spt: Vec::new(),
+        };
+        for (data_row, (_, text)) in lines.enumerate() {
+            let row = data_row as u64 + 1;
+            let cells: Vec<&str> = text.split(',').map(str::trim).collect();
+            let bad = |column: &str, expected: &str, found: &str| Error::BadValue {
+                path: path.to_path_buf(),
+                row,
+                column: column.into(),
+                expected: expected.into(),
+                found: found.into(),
+            };
+            if cells.len() != names.len() {
+                return Err(Error::format(
+                    path,
+                    format!(
+                        "row {row}: expected {} fields as in the header, found {}",
+                        names.len(),
+                        cells.len()
+                    ),
+                ));
+            }
+            let mut values = Vec::with_capacity(colour_cols.len());
+            for &c in &colour_cols {
+                let cell = cells[c];
+                values.push(if cell.is_empty() {
+                    None
+                } else {
+                    Some(
+                        cell.parse::<f64>()
+                            .ok()
+                            .filter(|v| v.is_finite())
+                            .ok_or_else(|| bad(names[c], "a colour in mag, or nothing", cell))?,
+                    )
+                });
+            }
+            let teff = match teff_col.map(|c| cells[c]).filter(|t| !t.is_empty()) {
+                Some(t) => Some(
+                    t.parse::<f64>()
+                        .ok()
+                        .filter(|v| v.is_finite() && *v > 0.0)
+                        .ok_or_else(|| bad("teff_k", "a temperature in K above 0", t))?,
+                ),
+                None => None,
+            };
+            let spt = match spt_col.map(|c| cells[c]).filter(|t| !t.is_empty()) {
+                Some(t) => Some(
+                    spectral_type_code(t)
+                        .ok_or_else(|| bad("spt", "a spectral type such as K5 or M2.5", t))?,
+                ),
+                None => None,
+            };
+            if teff.is_none() && spt.is_none() {
+                return Err(bad("teff_k", "a teff_k or an spt value", ""));
+            }
+            for (key, column, rows) in [
+                (teff, "teff_k", &mut table.by_teff),
+                (spt, "spt", &mut table.by_spt),
+            ] {
+                if let Some(k) = key {
+                    if rows.iter().any(|r| r.0 == k) {
+                        let found = names
+                            .iter()
+                            .position(|n| *n == column)
+                            .map_or("", |i| cells[i]);
+                        return Err(bad(column, "a value no other row has", found));
+                    }
+                    rows.push((k, values.clone()));
+                }
+            }
+        }
+        table.by_teff.sort_by(|a, b| a.0.total_cmp(&b.0));
+        table.by_spt.sort_by(|a, b| a.0.total_cmp(&b.0));
+        Ok(table)
+    }
+
+    /// (m(band) − m(anchor))₀ for band `band` at `key`, interpolated linearly
+    /// between the two nearest rows that give this colour; `None` when the
+    /// table has no such colour or the key lies outside its rows.
+    pub fn band_minus_anchor_mag(&self, key: StellarKey, band: &str) -> Option<f64> {
+        let c = self.colours.iter().position(|c| c.band == band)?;
+        let (k, rows) = match key {
+            StellarKey::TeffK(t) => (t, &self.by_teff),
+            StellarKey::Spt(s) => (s, &self.by_spt),
+        };
+        let points: Vec<(f64, f64)> = rows
+            .iter()
+            .filter_map(|(x, v)| v[c].map(|y| (*x, y)))
+            .collect();
+        let value = interpolate(&points, k)?;
+        Some(if self.colours[c].anchor_first {
+            -value
+        } else {
+            value
+        })
+    }
+}
+
+/// Linear interpolation in `points` (sorted by x) at `x`; `None` outside
+/// [first x, last x] or for NaN.
+pub fn interpolate(points: &[(f64, f64)], x: f64) -> Option<f64> {
+    let i = points.iter().position(|p| p.0 >= x)?;
+    let (x1, y1) = points[i];
+    if x1 == x {
+        return Some(y1);
+    }
+    let (x0, y0) = *points.get(i.checked_sub(1)?)?;
+    Some(y0 + (y1 - y0) * (x - x0) / (x1 - x0))
 }
 
 /// B_ν(T) up to a constant: ν³ / (exp(hν/kT) − 1) with ν ∝ 1/λ.
@@ -151,6 +476,155 @@ mod tests {
             .flux_jy(anchor, 23.675, None, true)
             .unwrap();
         assert!(bb > rj * 1.1);
+    }
+
+    #[test]
+    fn spectral_types_map_to_the_numeric_scale() {
+        assert_eq!(spectral_type_code("A0"), Some(20.0));
+        assert_eq!(spectral_type_code("K5"), Some(55.0));
+        assert_eq!(spectral_type_code("M2.5"), Some(62.5));
+        assert_eq!(spectral_type_code(" K5V "), Some(55.0));
+        assert_eq!(spectral_type_code("G2 V"), Some(42.0));
+        assert_eq!(spectral_type_code("k7"), Some(57.0));
+        assert_eq!(spectral_type_code("L3"), Some(73.0));
+        for bad in ["", "K", "Q5", "K10", "K-1", "K5.", "M.5", "K5 dwarf", "5K"] {
+            assert_eq!(spectral_type_code(bad), None, "{bad}");
+        }
+    }
+
+    #[test]
+    fn interpolation_is_linear_inside_and_absent_outside() {
+        let pts = [(3000.0, 1.0), (4000.0, 0.5), (6000.0, 0.1)];
+        assert_eq!(interpolate(&pts, 3000.0), Some(1.0));
+        assert_eq!(interpolate(&pts, 6000.0), Some(0.1));
+        // A quarter of the way from 4000 K to 6000 K: 0.5 + 0.25 × (0.1 − 0.5) = 0.4.
+        assert!((interpolate(&pts, 4500.0).unwrap() - 0.4).abs() < 1e-12);
+        assert_eq!(interpolate(&pts, 2999.0), None);
+        assert_eq!(interpolate(&pts, 6001.0), None);
+        assert_eq!(interpolate(&pts, f64::NAN), None);
+        assert_eq!(interpolate(&[], 1.0), None);
+    }
+
+    const TABLE: &str = "# invented for this test\n\
+        spt,teff_k,tmass_j-tmass_ks,tmass_ks-wise_w1\n\
+        M0,3850,0.83,\n\
+        K5,4450,0.72,0.09\n\
+        ,5000,,0.04\n";
+
+    #[test]
+    fn a_colour_table_reads_both_keys_and_signs_its_colours() {
+        let t = ColourTable::parse(TABLE, Path::new("c.csv"), "tmass_ks").unwrap();
+        assert_eq!(t.by_teff.len(), 3);
+        assert_eq!(t.by_spt.len(), 2);
+        let ks = |key| t.band_minus_anchor_mag(key, "tmass_j");
+        // J − Ks as written; K7 lies 2/5 of the way from K5 (55) to M0 (60):
+        // 0.72 + 0.4 × (0.83 − 0.72) = 0.764.
+        assert!((ks(StellarKey::Spt(57.0)).unwrap() - 0.764).abs() < 1e-12);
+        assert_eq!(ks(StellarKey::Spt(55.0)), Some(0.72));
+        // 5000 K has no J − Ks: 4450 K is the warmest row that gives it.
+        assert_eq!(ks(StellarKey::TeffK(4700.0)), None);
+        // Ks − W1 is anchor minus band: W1 − Ks is its negative. Between 4450 K
+        // (0.09) and 5000 K (0.04) at 4725 K: 0.065, so W1 − Ks = −0.065.
+        let w1 = t
+            .band_minus_anchor_mag(StellarKey::TeffK(4725.0), "wise_w1")
+            .unwrap();
+        assert!((w1 + 0.065).abs() < 1e-12, "{w1}");
+        // M0 has no Ks − W1, and K5 is the only type that has one.
+        assert_eq!(
+            t.band_minus_anchor_mag(StellarKey::Spt(60.0), "wise_w1"),
+            None
+        );
+        assert_eq!(
+            t.band_minus_anchor_mag(StellarKey::TeffK(4450.0), "irac_36"),
+            None
+        );
+    }
+
+    #[test]
+    fn a_bad_colour_table_names_row_and_column() {
+        let err = |text: &str| {
+            ColourTable::parse(text, Path::new("c.csv"), "tmass_ks")
+                .unwrap_err()
+                .to_string()
+        };
+        assert_eq!(
+            err("teff_k,tmass_j-tmass_h\n4000,0.5\n"),
+            "c.csv: column \"tmass_j-tmass_h\": expected teff_k, spt or a colour \"band-tmass_ks\" / \"tmass_ks-band\" with the anchor band tmass_ks"
+        );
+        assert_eq!(
+            err("tmass_j-tmass_ks\n0.5\n"),
+            "c.csv: expected a teff_k or an spt column, found \"tmass_j-tmass_ks\""
+        );
+        assert_eq!(
+            err("# source\nteff_k,tmass_j-tmass_ks\n4000,0.5\n5000,red\n"),
+            "c.csv: row 2, column \"tmass_j-tmass_ks\": expected a colour in mag, or nothing, found \"red\""
+        );
+        assert_eq!(
+            err("spt,tmass_j-tmass_ks\nK5,0.7\nX9,0.8\n"),
+            "c.csv: row 2, column \"spt\": expected a spectral type such as K5 or M2.5, found \"X9\""
+        );
+        assert_eq!(
+            err("teff_k,tmass_j-tmass_ks\n4000,0.5\n4000,0.6\n"),
+            "c.csv: row 2, column \"teff_k\": expected a value no other row has, found \"4000\""
+        );
+        assert_eq!(
+            err("teff_k,tmass_j-tmass_ks\n-40,0.5\n"),
+            "c.csv: row 1, column \"teff_k\": expected a temperature in K above 0, found \"-40\""
+        );
+        assert_eq!(
+            err("teff_k,tmass_j-tmass_ks\n4000\n"),
+            "c.csv: row 1: expected 2 fields as in the header, found 1"
+        );
+    }
+
+    #[test]
+    fn the_demo_colour_table_is_the_blackbody_it_says_it_is() {
+        // demo_catalogs/photosphere_colours_demo.csv is labelled as blackbody
+        // colours through the built-in band library: recompute every value from
+        // the Planck law here and compare (the file rounds to 0.001 mag).
+        let text = include_str!("../../demo_catalogs/photosphere_colours_demo.csv");
+        let t = ColourTable::parse(text, Path::new("demo.csv"), "tmass_ks").unwrap();
+        let lib = crate::photometry::BandLibrary::builtin();
+        let ks = lib.get("tmass_ks").unwrap();
+        let ks_f0 = ks.zero_point_jy.unwrap();
+        assert_eq!((t.by_teff.len(), t.colours.len()), (15, 11));
+        for &(teff_k, _) in &t.by_teff {
+            for c in &t.colours {
+                let b = lib.get(&c.band).unwrap();
+                let f0 = b.zero_point_jy.unwrap();
+                // A Ks = 0 star: F(Ks) = F0(Ks).
+                let f = Photosphere::Blackbody { teff_k }
+                    .flux_jy(
+                        (ks.wavelength_um, Some(ks_f0), ks_f0),
+                        b.wavelength_um,
+                        Some(f0),
+                        true,
+                    )
+                    .unwrap();
+                let want = -2.5 * (f / f0).log10();
+                let got = t
+                    .band_minus_anchor_mag(StellarKey::TeffK(teff_k), &c.band)
+                    .unwrap();
+                assert!(
+                    (got - want).abs() < 6e-4,
+                    "{teff_k} K {}: {got} vs {want}",
+                    c.name
+                );
+            }
+        }
+    }
+
+    #[test]
+    fn a_colour_moves_the_anchor_magnitude() {
+        // Ks = 10 (66.67 mJy, FIELD §7.1) and J − Ks = 0.70: J = 10.70, so
+        // F_J = 1594 Jy × 10^(−0.4 × 10.70) = 83.654 mJy (computed here).
+        let fj = flux_from_colour_jy(666.7, 0.06667, 1594.0, 0.70);
+        assert!((fj * 1e3 - 83.654).abs() < 5e-3, "{fj}");
+        // Zero colour is the zero-Vega-colour photosphere.
+        let zero = Photosphere::ZeroVegaColour
+            .flux_jy((2.159, Some(666.7), 0.06667), 1.235, Some(1594.0), true)
+            .unwrap();
+        assert!((flux_from_colour_jy(666.7, 0.06667, 1594.0, 0.0) / zero - 1.0).abs() < 1e-12);
     }
 
     #[test]

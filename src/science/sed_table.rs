@@ -22,7 +22,7 @@ use crate::error::{Error, Result};
 pub const OBJECTS_FILE: &str = "objects.parquet";
 
 /// One band of the band table carried in the output metadata.
-#[derive(Debug, Clone, PartialEq, Deserialize)]
+#[derive(Debug, Clone, PartialEq, Default, Deserialize)]
 pub struct BandInfo {
     /// Band id, the prefix of its columns.
     pub id: String,
@@ -34,6 +34,13 @@ pub struct BandInfo {
     pub wavelength_um: f64,
     /// Zero-magnitude flux density, Jy; `None` for a magnitude-only band.
     pub zero_point_jy: Option<f64>,
+    /// The limiting magnitude a survey schema states for the band (its own
+    /// system), the deepest when several catalogs give the band.
+    pub depth_mag: Option<f64>,
+    /// The signal-to-noise ratio of `depth_mag`, when stated.
+    pub depth_snr: Option<f64>,
+    /// The catalog whose schema gave `depth_mag`.
+    pub depth_catalog: Option<String>,
 }
 
 /// One band of one object.
@@ -229,6 +236,7 @@ mod tests {
             name: "Ks".into(),
             wavelength_um: 2.159,
             zero_point_jy: Some(666.7),
+            ..BandInfo::default()
         }
     }
 

@@ -7,9 +7,13 @@
 //! alpha_weighting = "inverse_variance"   # or "equal"
 //! alpha_bands = ["tmass_ks", "irac_36"]  # optional: fit only these bands (default: all in the window)
 //! anchor = "tmass_ks"                # photosphere anchor band
-//! photosphere = "zero_vega_colour"   # or "rayleigh_jeans", "blackbody" (needs teff_k)
+//! photosphere = "zero_vega_colour"   # or "rayleigh_jeans", "blackbody" (needs teff_k),
+//!                                    # "colour_table" (needs colour_table)
 //! teff_k = 4000.0
-//! teff_table = "teff.csv"            # blackbody T_eff per object: CSV with object_id, teff_k
+//! teff_table = "teff.csv"            # T_eff per object: CSV with object_id, teff_k
+//! colour_table = "colours.csv"       # intrinsic colours per teff_k / spt (colour_table)
+//! spt = "K5"                         # field spectral type (colour_table)
+//! spt_table = "spt.csv"              # spectral type per object: CSV with object_id, spt
 //! photosphere_error = 0.1            # relative model uncertainty of the photosphere
 //! excess_sigma = 3.0                 # χ threshold for an excess flag
 //! excess_floor_mag = 0.3             # and the excess must exceed this
@@ -32,7 +36,7 @@ use toml::Spanned;
 
 use super::alpha::Weighting;
 use super::extinction::{ExtinctionLaw, InfraredLaw, OpticalLaw};
-use super::photosphere::Photosphere;
+use super::photosphere::{Photosphere, StellarKey, spectral_type_code};
 use crate::error::{Error, Result, line_of_offset};
 
 /// Where A_V comes from.
@@ -82,9 +86,14 @@ pub struct ScienceSettings {
     pub anchor: String,
     /// Photosphere assumption (a blackbody with T_eff NaN: T_eff only from `teff_table`).
     pub photosphere: Photosphere,
-    /// Per-object blackbody T_eff (CSV with object_id, teff_k); used with a
-    /// blackbody photosphere, objects not in it fall back to `teff_k` if given.
+    /// Per-object T_eff (CSV with object_id, teff_k); used with a blackbody or
+    /// colour-table photosphere, objects not in it fall back to the field's value.
     pub teff_table: Option<PathBuf>,
+    /// The intrinsic colours of a colour-table photosphere.
+    pub colour_table: Option<PathBuf>,
+    /// Per-object spectral type (CSV with object_id, spt) for a colour-table
+    /// photosphere; it comes before `teff_table` for an object in both.
+    pub spt_table: Option<PathBuf>,
     /// Relative model uncertainty of the photosphere.
     pub photosphere_error: f64,
     /// χ threshold of an excess flag.
@@ -111,6 +120,8 @@ impl Default for ScienceSettings {
             anchor: "tmass_ks".to_string(),
             photosphere: Photosphere::ZeroVegaColour,
             teff_table: None,
+            colour_table: None,
+            spt_table: None,
             photosphere_error: 0.1,
             excess_sigma: 3.0,
             excess_floor_mag: 0.3,
@@ -154,6 +165,9 @@ struct RawScience {
     photosphere: Option<Spanned<String>>,
     teff_k: Option<Spanned<f64>>,
     teff_table: Option<String>,
+    colour_table: Option<Spanned<String>>,
+    spt: Option<Spanned<String>>,
+    spt_table: Option<Spanned<String>>,
     photosphere_error: Option<Spanned<f64>>,
     excess_sigma: Option<Spanned<f64>>,
     excess_floor_mag: Option<Spanned<f64>>,
@@ -274,15 +288,59 @@ impl ScienceSettings {
                             )
                         })?,
                 },
+                "colour_table" => {
+                    let Some(table) = &raw.colour_table else {
+                        return Err(err(
+                            p.span(),
+                            "photosphere = \"colour_table\" needs colour_table (a CSV of intrinsic colours per teff_k or spt)".to_string(),
+                        ));
+                    };
+                    s.colour_table = Some(resolve(table.get_ref()));
+                    s.spt_table = raw.spt_table.as_ref().map(|t| resolve(t.get_ref()));
+                    let field = match &raw.spt {
+                        Some(t) => Some(StellarKey::Spt(
+                            spectral_type_code(t.get_ref()).ok_or_else(|| {
+                                err(
+                                    t.span(),
+                                    format!(
+                                        "spt must be a spectral type such as \"K5\" or \"M2.5\", found \"{}\"",
+                                        t.get_ref()
+                                    ),
+                                )
+                            })?,
+                        )),
+                        None => teff.map(StellarKey::TeffK),
+                    };
+                    if field.is_none() && s.teff_table.is_none() && s.spt_table.is_none() {
+                        return Err(err(
+                            p.span(),
+                            "photosphere = \"colour_table\" needs a key to look the table up by: spt, teff_k, spt_table or teff_table".to_string(),
+                        ));
+                    }
+                    Photosphere::ColourTable { field }
+                }
                 other => {
                     return Err(err(
                         p.span(),
                         format!(
-                            "photosphere must be \"zero_vega_colour\", \"rayleigh_jeans\" or \"blackbody\", found \"{other}\""
+                            "photosphere must be \"zero_vega_colour\", \"rayleigh_jeans\", \"blackbody\" or \"colour_table\", found \"{other}\""
                         ),
                     ));
                 }
             };
+        }
+        if !matches!(s.photosphere, Photosphere::ColourTable { .. }) {
+            let stray = [
+                ("colour_table", raw.colour_table.as_ref()),
+                ("spt", raw.spt.as_ref()),
+                ("spt_table", raw.spt_table.as_ref()),
+            ];
+            if let Some((key, v)) = stray.iter().find_map(|(k, v)| v.map(|v| (k, v))) {
+                return Err(err(
+                    v.span(),
+                    format!("{key} is used only with photosphere = \"colour_table\""),
+                ));
+            }
         }
         if let Some(v) = positive(&raw.photosphere_error, "photosphere_error", true)? {
             s.photosphere_error = v;
@@ -410,8 +468,15 @@ impl ScienceSettings {
             (
                 "fluxloom.science.photosphere".into(),
                 format!(
-                    "{}{}; anchor {}; relative model error {}",
+                    "{}{}{}{}; anchor {}; relative model error {}",
                     self.photosphere.describe(),
+                    self.colour_table
+                        .as_ref()
+                        .map_or(String::new(), |t| format!("; colours from {}", t.display())),
+                    self.spt_table.as_ref().map_or(String::new(), |t| format!(
+                        "; spectral type per object from {}",
+                        t.display()
+                    )),
                     self.teff_table.as_ref().map_or(String::new(), |t| format!(
                         "; T_eff per object from {}",
                         t.display()
@@ -453,6 +518,30 @@ mod tests {
     }
 
     #[test]
+    fn a_colour_table_photosphere_takes_its_keys() {
+        let s = parse(
+            "[science]\nphotosphere = \"colour_table\"\ncolour_table = \"c.csv\"\nspt = \"M2.5\"\nspt_table = \"s.csv\"\n",
+        )
+        .unwrap()
+        .unwrap();
+        assert_eq!(
+            s.photosphere,
+            Photosphere::ColourTable {
+                field: Some(StellarKey::Spt(62.5))
+            }
+        );
+        assert_eq!(s.colour_table, Some(PathBuf::from("c.csv")));
+        assert_eq!(s.spt_table, Some(PathBuf::from("s.csv")));
+        let s = parse(
+            "[science]\nphotosphere = \"colour_table\"\ncolour_table = \"c.csv\"\nteff_table = \"t.csv\"\n",
+        )
+        .unwrap()
+        .unwrap();
+        assert_eq!(s.photosphere, Photosphere::ColourTable { field: None });
+        assert_eq!(s.teff_table, Some(PathBuf::from("t.csv")));
+    }
+
+    #[test]
     fn bad_values_name_the_line() {
         let e = parse("[science]\n\nalpha_window_um = [24.0, 2.0]\n").unwrap_err();
         assert_eq!(
@@ -468,6 +557,33 @@ mod tests {
         assert_eq!(
             e.to_string(),
             "plan.toml:3: give only one of av_mag, av_table and av_from_colour"
+        );
+        let e = parse("[science]\nphotosphere = \"colour_table\"\nteff_k = 4000.0\n").unwrap_err();
+        assert_eq!(
+            e.to_string(),
+            "plan.toml:2: photosphere = \"colour_table\" needs colour_table (a CSV of intrinsic colours per teff_k or spt)"
+        );
+        let e = parse("[science]\nphotosphere = \"colour_table\"\ncolour_table = \"c.csv\"\n")
+            .unwrap_err();
+        assert_eq!(
+            e.to_string(),
+            "plan.toml:2: photosphere = \"colour_table\" needs a key to look the table up by: spt, teff_k, spt_table or teff_table"
+        );
+        let e = parse(
+            "[science]\nphotosphere = \"colour_table\"\ncolour_table = \"c.csv\"\nspt = \"Q5\"\n",
+        )
+        .unwrap_err();
+        assert_eq!(
+            e.to_string(),
+            "plan.toml:4: spt must be a spectral type such as \"K5\" or \"M2.5\", found \"Q5\""
+        );
+        let e = parse(
+            "[science]\nphotosphere = \"blackbody\"\nteff_k = 4000.0\nspt_table = \"s.csv\"\n",
+        )
+        .unwrap_err();
+        assert_eq!(
+            e.to_string(),
+            "plan.toml:4: spt_table is used only with photosphere = \"colour_table\""
         );
         let e = parse("[science]\ncolour = []\n").unwrap_err();
         assert!(e.to_string().contains("unknown field `colour`"), "{e}");
