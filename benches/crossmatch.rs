@@ -76,7 +76,7 @@ fn write_parquet(path: &Path, t: &SourceTable) {
     );
     let schema = Arc::new(Schema::new(fields));
     let columns: Vec<ArrayRef> = vec![
-        Arc::new(StringArray::from(t.source_id.clone())),
+        Arc::new(StringArray::from_iter_values(t.source_id.iter())),
         f(&t.ra_deg),
         f(&t.dec_deg),
         f(&t.epoch_yr),

@@ -143,7 +143,7 @@ fn summarize(tables: &[SourceTable], result: &MatchResult) -> Vec<Summary> {
                 .map(|m| {
                     format!(
                         "{}:{}",
-                        tables[m.catalog].name, tables[m.catalog].source_id[m.row]
+                        tables[m.catalog].name, &tables[m.catalog].source_id[m.row]
                     )
                 })
                 .collect();
@@ -232,7 +232,7 @@ fn the_scene_resolves_into_the_expected_objects_after_offset_correction() {
     let o1_links: Vec<_> = result
         .links
         .iter()
-        .filter(|l| l.catalog_a == 0 && l.catalog_b == 1 && tables[0].source_id[l.row_a] == "O1")
+        .filter(|l| l.catalog_a == 0 && l.catalog_b == 1 && &tables[0].source_id[l.row_a] == "O1")
         .collect();
     let chosen: Vec<bool> = o1_links.iter().map(|l| l.chosen).collect();
     assert_eq!(chosen.len(), 2, "{o1_links:?}");

@@ -225,10 +225,13 @@ pub fn build_with(plan: &Plan, out_dir: &Path, run: RunOptions) -> Result<BuildO
     };
     bar.finish_and_clear();
 
+    // Coverage decides "not detected" against "not covered": only SEDs need it.
+    let seds_written = plan.tables.objects || plan.tables.photometry;
     let coverage: Vec<Coverage> = plan
         .catalogs
         .iter()
         .zip(tables)
+        .filter(|_| seds_written)
         .map(|(c, t)| match &c.coverage {
             Some(path) => Coverage::from_moc_file(path),
             None => {
@@ -252,7 +255,9 @@ pub fn build_with(plan: &Plan, out_dir: &Path, run: RunOptions) -> Result<BuildO
         })
         .collect();
     let normalized: Vec<RecordBatch> = read.iter().map(|r| r.normalized.clone()).collect();
-    let assembler = SedAssembler::new(&slots, &result.objects, &normalized, &coverage)?;
+    let assembler = seds_written
+        .then(|| SedAssembler::new(&slots, &result.objects, &normalized, &coverage))
+        .transpose()?;
 
     let bar = spinner("writing", quiet);
     let mut staging = Staging::new(out_dir)?;
@@ -296,7 +301,9 @@ pub fn build_with(plan: &Plan, out_dir: &Path, run: RunOptions) -> Result<BuildO
     if which.objects || which.photometry {
         for start in (0..n_objects).step_by(chunk_objects) {
             let range = start..(start + chunk_objects).min(n_objects);
-            let seds = assembler.seds(range.clone())?;
+            let seds = assembler
+                .as_ref()
+                .map_or_else(|| Ok(Vec::new()), |a| a.seds(range.clone()))?;
             for sed in &seds {
                 for (k, p) in sed.points.iter().enumerate() {
                     status_counts[k][p.status as usize] += 1;

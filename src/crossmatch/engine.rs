@@ -153,7 +153,7 @@ impl SourceRef {
     /// The identifier `<catalog>:<source id>` of the object anchored on this source.
     pub fn object_id(&self, tables: &[SourceTable]) -> String {
         let t = &tables[self.catalog as usize];
-        format!("{}:{}", t.name, t.source_id[self.row as usize])
+        format!("{}:{}", t.name, &t.source_id[self.row as usize])
     }
 }
 
@@ -360,8 +360,9 @@ fn assemble(ctx: &Context, cells: CellOutput) -> MatchResult {
             row: sources.row[r],
         }
     };
+    // Consumed as they are assembled, so the cells' objects are freed on the way.
     let mut objects: Vec<MatchedObject> = resolved
-        .par_iter()
+        .into_par_iter()
         .map(|o| {
             let anchor = o.members[0] as usize;
             let healpix29 = home_cell(29, sources.ra_deg[anchor], sources.dec_deg[anchor]);

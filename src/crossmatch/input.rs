@@ -15,7 +15,7 @@ pub struct SourceTable {
     /// Catalog name.
     pub name: String,
     /// Source identifiers (unique within the catalog).
-    pub source_id: Vec<String>,
+    pub source_id: SourceIds,
     /// Right ascension at `epoch_yr`, degrees.
     pub ra_deg: Vec<f64>,
     /// Declination at `epoch_yr`, degrees.
@@ -75,7 +75,7 @@ impl SourceTable {
         ellipse: (f64, f64, f64),
         pm: Option<(f64, f64)>,
     ) {
-        self.source_id.push(id.to_string());
+        self.source_id.push(id);
         self.ra_deg.push(ra_deg);
         self.dec_deg.push(dec_deg);
         self.epoch_yr.push(epoch_yr);
@@ -119,8 +119,9 @@ impl SourceTable {
                 .ok_or_else(|| {
                     Error::format(origin, "normalized table lacks a text column \"source_id\"")
                 })?;
-            t.source_id
-                .extend(ids.iter().map(|s| s.unwrap_or_default().to_string()));
+            for id in ids.iter() {
+                t.source_id.push(id.unwrap_or_default());
+            }
             let opt = |a: &arrow::array::PrimitiveArray<Float64Type>, out: &mut Vec<f64>| {
                 out.extend((0..a.len()).map(|i| if a.is_null(i) { f64::NAN } else { a.value(i) }));
             };
@@ -134,5 +135,79 @@ impl SourceTable {
             opt(f64s("pmdec_masyr")?, &mut t.pmdec_masyr);
         }
         Ok(t)
+    }
+}
+
+/// The source identifiers of one catalog, in one text buffer: no allocation
+/// per source, and `ids[i]` is the `&str` of source `i`.
+#[derive(Debug, Clone, Default, PartialEq, Eq)]
+pub struct SourceIds {
+    text: String,
+    /// End of each identifier in `text`.
+    ends: Vec<usize>,
+}
+
+impl SourceIds {
+    /// Number of identifiers.
+    pub fn len(&self) -> usize {
+        self.ends.len()
+    }
+
+    /// True when there are none.
+    pub fn is_empty(&self) -> bool {
+        self.ends.is_empty()
+    }
+
+    /// Appends one identifier.
+    pub fn push(&mut self, id: &str) {
+        self.text.push_str(id);
+        self.ends.push(self.text.len());
+    }
+
+    /// Identifier `i`.
+    ///
+    /// # Panics
+    /// If `i` is out of range.
+    pub fn get(&self, i: usize) -> &str {
+        let start = if i == 0 { 0 } else { self.ends[i - 1] };
+        &self.text[start..self.ends[i]]
+    }
+
+    /// The identifiers in order.
+    pub fn iter(&self) -> impl ExactSizeIterator<Item = &str> + '_ {
+        (0..self.len()).map(|i| self.get(i))
+    }
+}
+
+impl std::ops::Index<usize> for SourceIds {
+    type Output = str;
+
+    fn index(&self, i: usize) -> &str {
+        self.get(i)
+    }
+}
+
+impl<S: AsRef<str>> FromIterator<S> for SourceIds {
+    fn from_iter<I: IntoIterator<Item = S>>(iter: I) -> SourceIds {
+        let mut ids = SourceIds::default();
+        for id in iter {
+            ids.push(id.as_ref());
+        }
+        ids
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn identifiers_come_back_as_pushed() {
+        let ids: SourceIds = ["a1", "", "ß-7"].into_iter().collect();
+        assert_eq!(ids.len(), 3);
+        assert_eq!(&ids[0], "a1");
+        assert_eq!(&ids[1], "");
+        assert_eq!(&ids[2], "ß-7");
+        assert_eq!(ids.iter().collect::<Vec<_>>(), ["a1", "", "ß-7"]);
     }
 }

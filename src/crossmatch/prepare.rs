@@ -103,7 +103,7 @@ impl Sources {
                 return Err(Error::Usage(format!(
                     "catalog \"{}\": source identifier \"{}\" appears twice (sources {} and {}); identifiers must be unique within a catalog",
                     table.name,
-                    table.source_id[a],
+                    &table.source_id[a],
                     a + 1,
                     b + 1
                 )));
@@ -115,7 +115,7 @@ impl Sources {
                 if !(ra.is_finite() && dec.is_finite()) {
                     return Err(Error::Usage(format!(
                         "catalog \"{}\": source \"{}\" has no finite position",
-                        table.name, table.source_id[i]
+                        table.name, &table.source_id[i]
                     )));
                 }
                 let (mut pmra, mut pmdec) = (table.pmra_cosdec_masyr[i], table.pmdec_masyr[i]);

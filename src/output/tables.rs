@@ -178,7 +178,7 @@ pub fn objects_batch(
         columns.push(Arc::new(StringArray::from(
             objects
                 .iter()
-                .map(|o| o.member(c).map(|m| table.source_id[m.row].as_str()))
+                .map(|o| o.member(c).map(|m| &table.source_id[m.row]))
                 .collect::<Vec<_>>(),
         )));
         columns.push(f64s(
@@ -278,7 +278,7 @@ pub fn photometry_batch(
             catalog.push(slot.catalog_name.as_str());
             source_id.push(
                 o.member(slot.catalog)
-                    .map(|m| tables[slot.catalog].source_id[m.row].as_str()),
+                    .map(|m| &tables[slot.catalog].source_id[m.row]),
             );
             band.push(slot.id());
             system.push(slot.spec.band.system.as_str());
@@ -427,7 +427,7 @@ pub fn links_batch(links: &[Link], tables: &[SourceTable]) -> Result<RecordBatch
         Arc::new(StringArray::from_iter_values(
             links
                 .iter()
-                .map(|l| tables[l.catalog_a].source_id[l.row_a].as_str()),
+                .map(|l| &tables[l.catalog_a].source_id[l.row_a]),
         )),
         Arc::new(StringArray::from_iter_values(
             links.iter().map(|l| tables[l.catalog_b].name.as_str()),
@@ -435,7 +435,7 @@ pub fn links_batch(links: &[Link], tables: &[SourceTable]) -> Result<RecordBatch
         Arc::new(StringArray::from_iter_values(
             links
                 .iter()
-                .map(|l| tables[l.catalog_b].source_id[l.row_b].as_str()),
+                .map(|l| &tables[l.catalog_b].source_id[l.row_b]),
         )),
         Arc::new(Float64Array::from_iter_values(
             links.iter().map(|l| l.sep_arcsec),
@@ -545,7 +545,7 @@ pub fn hard_sources_batch(
     }
     // Rank order (catalog, then source identifier) of object, then source: the
     // order of the objects table, so that parts of the sky merge by sorting.
-    let id = |r: &SourceRef| tables[r.catalog as usize].source_id[r.row as usize].as_str();
+    let id = |r: &SourceRef| &tables[r.catalog as usize].source_id[r.row as usize];
     let mut order: Vec<(SourceRef, SourceRef)> = rows.into_iter().map(|(s, o)| (o, s)).collect();
     order.sort_unstable_by(|x, y| {
         (x.0.catalog, id(&x.0), x.1.catalog, id(&x.1)).cmp(&(
@@ -589,7 +589,7 @@ pub fn hard_sources_batch(
                 .map(|(_, s)| tables[s.catalog as usize].name.as_str()),
         )),
         Arc::new(StringArray::from_iter_values(order.iter().map(|(_, s)| {
-            tables[s.catalog as usize].source_id[s.row as usize].as_str()
+            &tables[s.catalog as usize].source_id[s.row as usize]
         }))),
         Arc::new(Float64Array::from_iter_values(
             order.iter().map(|(_, s)| position(s).0),

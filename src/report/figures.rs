@@ -20,6 +20,26 @@ use crate::plot::{Anchor, Axis, Colour, Figure, LegendKey, LineStyle, Marker, Po
 const P: [Colour; 8] = Colour::PALETTE;
 const LIGHT: Colour = Colour(200, 200, 200);
 
+/// Most points one scatter layer draws; past it every k-th point is drawn (k
+/// the smallest that fits), so that the figures of a million objects stay small
+/// enough for a browser. Legends keep the counts of all points.
+pub const MAX_LAYER_POINTS: usize = 20_000;
+
+/// Every k-th point of `points`, at most [`MAX_LAYER_POINTS`] of them, and k.
+fn thinned(points: &[(f64, f64)]) -> (Vec<(f64, f64)>, usize) {
+    let step = points.len().div_ceil(MAX_LAYER_POINTS).max(1);
+    (points.iter().step_by(step).copied().collect(), step)
+}
+
+/// The caption's note on thinned layers (empty when none was thinned).
+fn thinning_note(step: usize) -> String {
+    if step > 1 {
+        format!(" Layers of more than {MAX_LAYER_POINTS} points show one point in {step} or fewer.")
+    } else {
+        String::new()
+    }
+}
+
 /// The SVG of `fig` drawn with the page id `id`, in a `<figure>` with a caption.
 fn wrap(fig: &Figure, id: &str, caption: &str) -> String {
     let mut fig = fig.clone();
@@ -167,8 +187,10 @@ pub fn pair_offsets(p: &PairReport, before: &OffsetCloud, after: &OffsetCloud) -
         size_px: 3.0,
         ..PointStyle::filled(Marker::Circle, c)
     };
-    fig.points(&before.points, &small(LIGHT), "offset-before");
-    fig.points(&after.points, &small(P[0]), "offset-after");
+    let (before_points, step_before) = thinned(&before.points);
+    let (after_points, step_after) = thinned(&after.points);
+    fig.points(&before_points, &small(LIGHT), "offset-before");
+    fig.points(&after_points, &small(P[0]), "offset-after");
     centre(&mut fig, before, Colour::GREY, "centre-before");
     centre(&mut fig, after, P[1], "centre-after");
     fig.legend_entry("before correction", LegendKey::Point(small(LIGHT)));
@@ -178,7 +200,7 @@ pub fn pair_offsets(p: &PairReport, before: &OffsetCloud, after: &OffsetCloud) -
         &fig,
         &format!("fig-off-{}", slug(p)),
         &format!(
-            "Offsets of {} from {} per chosen pair (east to the left); bars: median ± 1.4826·MAD. As matched: ({:+.3}, {:+.3})″ ± ({:.3}, {:.3})″; before correction: ({:+.3}, {:+.3})″.",
+            "Offsets of {} from {} per chosen pair (east to the left); bars: median ± 1.4826·MAD. As matched: ({:+.3}, {:+.3})″ ± ({:.3}, {:.3})″; before correction: ({:+.3}, {:+.3})″.{}",
             p.catalog_b,
             p.catalog_a,
             after.dra_cosdec_arcsec,
@@ -186,7 +208,8 @@ pub fn pair_offsets(p: &PairReport, before: &OffsetCloud, after: &OffsetCloud) -
             after.width_ra_arcsec,
             after.width_dec_arcsec,
             before.dra_cosdec_arcsec,
-            before.ddec_arcsec
+            before.ddec_arcsec,
+            thinning_note(step_before.max(step_after))
         ),
     )
 }
@@ -487,6 +510,7 @@ pub fn sky(out: &OutputFolder) -> Result<Vec<String>> {
     let mut figs = Vec::new();
     let mut fig = Figure::new(560.0, 520.0);
     axes(&mut fig);
+    let mut step = 1;
     for (k, (name, marker, colour)) in SKY_CLASSES.iter().enumerate().rev() {
         let pts: Vec<(f64, f64)> = pos
             .iter()
@@ -497,14 +521,19 @@ pub fn sky(out: &OutputFolder) -> Result<Vec<String>> {
             size_px: if k == 4 { 3.5 } else { 6.0 },
             ..PointStyle::filled(*marker, *colour)
         };
-        fig.points(&pts, &style, name);
+        let (shown, k_step) = thinned(&pts);
+        step = step.max(k_step);
+        fig.points(&shown, &style, name);
         fig.legend_entry(&format!("{name} ({})", pts.len()), LegendKey::Point(style));
     }
     fig.title = "Objects by flag".into();
     figs.push(wrap(
         &fig,
         "fig-sky",
-        "Objects at the reference epoch, by flag (east to the left).",
+        &format!(
+            "Objects at the reference epoch, by flag (east to the left).{}",
+            thinning_note(step)
+        ),
     ));
 
     let plan_file = std::path::PathBuf::from(out.run["plan_file"].as_str().unwrap_or(""));
@@ -545,14 +574,16 @@ pub fn sky(out: &OutputFolder) -> Result<Vec<String>> {
             size_px: 2.5,
             ..PointStyle::filled(Marker::Circle, P[k % 7])
         };
-        fig.points(&seen, &dot, "member");
+        let (shown, step) = thinned(&seen);
+        fig.points(&shown, &dot, "member");
         fig.title = format!("{catalog}: {} objects", seen.len());
         figs.push(wrap(
             &fig,
             &format!("fig-foot-{catalog}"),
             &format!(
-                "Footprint of {catalog} (shaded: {}) and the objects it has a member in.",
-                f.source
+                "Footprint of {catalog} (shaded: {}) and the objects it has a member in.{}",
+                f.source,
+                thinning_note(step)
             ),
         ));
     }
@@ -689,4 +720,24 @@ pub fn card_chart(c: &Card) -> String {
             "Sources at the common epoch with their 1σ error ellipses, coloured by the object they ended in; lines are candidate pairs (grey: chosen, red dashed: not chosen) labelled with their probability (the highest, where pairs coincide)."
         },
     )
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn layers_past_the_cap_are_thinned_evenly() {
+        let pts: Vec<(f64, f64)> = (0..(2 * MAX_LAYER_POINTS + 1))
+            .map(|i| (i as f64, 0.0))
+            .collect();
+        let (shown, step) = thinned(&pts);
+        assert_eq!(step, 3);
+        assert!(shown.len() <= MAX_LAYER_POINTS);
+        assert_eq!(shown[1], (3.0, 0.0));
+        let (all, one) = thinned(&pts[..MAX_LAYER_POINTS]);
+        assert_eq!((all.len(), one), (MAX_LAYER_POINTS, 1));
+        assert!(thinning_note(1).is_empty());
+        assert!(thinning_note(3).contains("one point in 3"));
+    }
 }

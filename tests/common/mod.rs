@@ -32,7 +32,7 @@ pub fn fingerprint(tables: &[SourceTable], r: &MatchResult) -> Vec<String> {
                 .map(|m| {
                     format!(
                         "{}:{}:{:.12}:{:.12}",
-                        m.catalog, tables[m.catalog].source_id[m.row], m.sep_arcsec, m.probability
+                        m.catalog, &tables[m.catalog].source_id[m.row], m.sep_arcsec, m.probability
                     )
                 })
                 .collect();
@@ -52,9 +52,9 @@ pub fn fingerprint(tables: &[SourceTable], r: &MatchResult) -> Vec<String> {
         format!(
             "{}:{} {}:{} {:.12} {:.12} {} {} {}",
             l.catalog_a,
-            tables[l.catalog_a].source_id[l.row_a],
+            &tables[l.catalog_a].source_id[l.row_a],
             l.catalog_b,
-            tables[l.catalog_b].source_id[l.row_b],
+            &tables[l.catalog_b].source_id[l.row_b],
             l.sep_arcsec,
             l.probability,
             l.chosen,
