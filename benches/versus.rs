@@ -328,7 +328,8 @@ fn run_report(exe: &str, out: &Path) -> f64 {
     start.elapsed().as_secs_f64()
 }
 
-/// Seconds of a fresh `fluxloom build` process, and the peak memory it reports.
+/// Seconds of a fresh `fluxloom build` process, and the peak memory it
+/// reports; prints the build's own time per phase.
 fn run_build(exe: &str, plan: &Path, out: &Path) -> (f64, f64) {
     let start = Instant::now();
     let o = Command::new(exe)
@@ -341,6 +342,13 @@ fn run_build(exe: &str, plan: &Path, out: &Path) -> (f64, f64) {
     let t = start.elapsed().as_secs_f64();
     assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
     let text = String::from_utf8_lossy(&o.stdout);
+    if let Some(phases) = text.lines().find_map(|l| l.strip_prefix("time     ")) {
+        println!(
+            "{:>10} {}: {phases}",
+            "",
+            plan.file_name().unwrap_or_default().to_string_lossy()
+        );
+    }
     let mb: f64 = text
         .lines()
         .find_map(|l| l.strip_prefix("memory   peak "))

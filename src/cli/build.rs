@@ -181,7 +181,10 @@ pub fn build_with(plan: &Plan, out_dir: &Path, run: RunOptions) -> Result<BuildO
     if let Some(order) = run.cell_order {
         matching.partition_order = order;
     }
+    let started = std::time::Instant::now();
+    let mut clock = PhaseClock::default();
     let prepared = prepare(plan, &matching, quiet)?;
+    clock.read = started.elapsed().as_secs_f64();
     let matched_tables = prepared.matched();
     let Prepared {
         read,
@@ -217,6 +220,7 @@ pub fn build_with(plan: &Plan, out_dir: &Path, run: RunOptions) -> Result<BuildO
             on_complete: Some(&record_cell),
         },
     )?;
+    clock.matching = started.elapsed().as_secs_f64() - clock.read;
     bar.set_message("estimating false matches");
     let false_matches: Vec<FalseMatchEstimate> = if plan.false_matches {
         estimate_false_matches(matched_tables, &matching)?
@@ -225,6 +229,7 @@ pub fn build_with(plan: &Plan, out_dir: &Path, run: RunOptions) -> Result<BuildO
     };
     bar.finish_and_clear();
 
+    clock.false_matches = started.elapsed().as_secs_f64() - clock.read - clock.matching;
     // Coverage decides "not detected" against "not covered": only SEDs need it.
     let seds_written = plan.tables.objects || plan.tables.photometry;
     let coverage: Vec<Coverage> = plan
@@ -399,11 +404,15 @@ pub fn build_with(plan: &Plan, out_dir: &Path, run: RunOptions) -> Result<BuildO
         cells_with_sources: result.stats.cells.emitted,
         cells_with_sources_in_all: result.stats.cells.cells,
     });
+    clock.write =
+        started.elapsed().as_secs_f64() - clock.read - clock.matching - clock.false_matches;
     let (files, report) = finish_folder(staging, plan, &record.to_json()?)?;
+    clock.total = started.elapsed().as_secs_f64();
     journal.remove()?;
     bar.finish_and_clear();
     Ok(BuildOutcome {
         summary: summary(plan, out_dir, read, &record, &outputs)
+            + &clock.line(&result.stats.seconds)
             + &crate::report::warnings::build_lines(report.as_deref()),
         files,
     })
@@ -766,6 +775,38 @@ fn floor_lines(name: &str, reference: &str, f: &FloorEstimate) -> String {
         ));
     }
     s
+}
+
+/// Wall-clock seconds of a build's stages, for the summary.
+#[derive(Debug, Default)]
+struct PhaseClock {
+    /// Reading, normalizing, offsets and the match set-up.
+    read: f64,
+    /// Matching the cells and assembling objects and links.
+    matching: f64,
+    /// The false-match estimate.
+    false_matches: f64,
+    /// SEDs, tables, exports and the science table.
+    write: f64,
+    /// Everything, run.json, the report and the commit included.
+    total: f64,
+}
+
+impl PhaseClock {
+    /// The summary's `time` line (not in run.json, which stays reproducible).
+    fn line(&self, m: &crate::crossmatch::engine::PhaseSeconds) -> String {
+        format!(
+            "time     read and prepare {:.2} s, match {:.2} s (cells {:.2} s, assemble {:.2} s), false matches {:.2} s, write {:.2} s, report and commit {:.2} s, total {:.2} s\n",
+            self.read,
+            self.matching,
+            m.candidates,
+            m.assemble,
+            self.false_matches,
+            self.write,
+            self.total - self.read - self.matching - self.false_matches - self.write,
+            self.total
+        )
+    }
 }
 
 fn summary(
