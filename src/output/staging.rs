@@ -208,6 +208,24 @@ fn is_partial(name: &str) -> bool {
         .is_some_and(|(file, pid)| LEGACY_NAMES.contains(&file) && pid.parse::<u32>().is_ok())
 }
 
+/// Files that fluxloom's commands add to a committed output folder afterwards
+/// (`report`, `science`): they go with the folder like its own files.
+const ADDED_BY_COMMANDS: [&str; 3] = ["report.html", "report.json", "science.parquet"];
+
+/// Whether `path` is the `figures` folder `draw` writes by default: only SVG
+/// and PNG files in it.
+fn is_figures_folder(path: &Path) -> bool {
+    path.file_name().is_some_and(|n| n == "figures")
+        && std::fs::read_dir(path).is_ok_and(|entries| {
+            entries.into_iter().all(|e| {
+                e.is_ok_and(|e| {
+                    let name = e.file_name().to_string_lossy().into_owned();
+                    e.path().is_file() && (name.ends_with(".svg") || name.ends_with(".png"))
+                })
+            })
+        })
+}
+
 /// The first entry of the output folder `target` that fluxloom did not write.
 fn foreign_entry(target: &Path) -> Result<Option<String>> {
     let entries = match std::fs::read_dir(target) {
@@ -226,6 +244,8 @@ fn foreign_entry(target: &Path) -> Result<Option<String>> {
             || name == COMPLETE_MARKER
             || listed.contains(&name)
             || LEGACY_NAMES.contains(&name.as_str())
+            || ADDED_BY_COMMANDS.contains(&name.as_str())
+            || is_figures_folder(&entry.path())
             || is_partial(&name)
             || is_legacy_staging(&entry.path());
         if !ours {
@@ -515,5 +535,27 @@ mod tests {
             std::fs::read_to_string(out.join("notes.txt")).unwrap(),
             "mine"
         );
+    }
+
+    #[test]
+    fn files_our_commands_add_later_go_with_the_folder() {
+        let dir = tempfile::tempdir().unwrap();
+        let out = dir.path().join("out");
+        commit_set(&out, &[("objects.parquet", "old")]);
+        // As `fluxloom report`, `science` and `draw` leave them.
+        std::fs::write(out.join("report.html"), "<html>").unwrap();
+        std::fs::write(out.join("science.parquet"), "x").unwrap();
+        std::fs::create_dir(out.join("figures")).unwrap();
+        std::fs::write(out.join("figures").join("sed_a.svg"), "<svg/>").unwrap();
+        commit_set(&out, &[("objects.parquet", "new")]);
+        assert_eq!(content(&out), "new");
+        assert!(!out.join("report.html").exists());
+
+        // A figures folder holding anything else is the user's.
+        commit_set(&out, &[("objects.parquet", "newer")]);
+        std::fs::create_dir(out.join("figures")).unwrap();
+        std::fs::write(out.join("figures").join("notes.txt"), "mine").unwrap();
+        let err = Staging::new(&out).err().unwrap().to_string();
+        assert!(err.contains("holds \"figures\""), "{err}");
     }
 }
