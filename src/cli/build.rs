@@ -290,7 +290,7 @@ pub fn build_with(plan: &Plan, out_dir: &Path, run: RunOptions) -> Result<BuildO
         )?),
         false => None,
     };
-    let mut links_out = match which.links {
+    let links_out = match which.links {
         true => Some(create(
             &mut staging,
             "links.parquet",
@@ -303,34 +303,60 @@ pub fn build_with(plan: &Plan, out_dir: &Path, run: RunOptions) -> Result<BuildO
     let (mut objects, mut photometry) = (Vec::new(), Vec::new());
     let n_objects = result.objects.len();
     let chunk_objects = run.write_chunk.unwrap_or(WRITE_CHUNK_OBJECTS);
-    if which.objects || which.photometry {
-        for start in (0..n_objects).step_by(chunk_objects) {
-            let range = start..(start + chunk_objects).min(n_objects);
-            let seds = assembler
-                .as_ref()
-                .map_or_else(|| Ok(Vec::new()), |a| a.seds(range.clone()))?;
-            for sed in &seds {
-                for (k, p) in sed.points.iter().enumerate() {
-                    status_counts[k][p.status as usize] += 1;
+    // Each table has its own writer: links are written on a thread of their
+    // own while objects and photometry are, chunk by chunk, side by side.
+    let links = &result.links;
+    let links_out = std::thread::scope(|scope| -> Result<Option<ParquetOutput>> {
+        let links_writer = links_out.map(|mut w| {
+            scope.spawn(move || -> Result<ParquetOutput> {
+                for chunk in links.chunks(chunk_objects) {
+                    w.write(&links_batch(chunk, tables)?)?;
                 }
-            }
-            let chunk = &result.objects[range];
-            if let Some(w) = objects_out.as_mut() {
-                let ob = objects_batch(chunk, &seds, &slots, tables, epoch)?;
-                w.write(&ob)?;
-                if exporting {
+                Ok(w)
+            })
+        });
+        if which.objects || which.photometry {
+            for start in (0..n_objects).step_by(chunk_objects) {
+                let range = start..(start + chunk_objects).min(n_objects);
+                let seds = assembler
+                    .as_ref()
+                    .map_or_else(|| Ok(Vec::new()), |a| a.seds(range.clone()))?;
+                for sed in &seds {
+                    for (k, p) in sed.points.iter().enumerate() {
+                        status_counts[k][p.status as usize] += 1;
+                    }
+                }
+                let chunk = &result.objects[range];
+                let (ob, pb) = rayon::join(
+                    || -> Result<Option<RecordBatch>> {
+                        let Some(w) = objects_out.as_mut() else {
+                            return Ok(None);
+                        };
+                        let ob = objects_batch(chunk, &seds, &slots, tables, epoch)?;
+                        w.write(&ob)?;
+                        Ok(Some(ob))
+                    },
+                    || -> Result<Option<RecordBatch>> {
+                        let Some(w) = photometry_out.as_mut() else {
+                            return Ok(None);
+                        };
+                        let pb = photometry_batch(chunk, &seds, &slots, tables)?;
+                        w.write(&pb)?;
+                        Ok(Some(pb))
+                    },
+                );
+                if let (Some(ob), true) = (ob?, exporting) {
                     objects.push(for_export(&ob)?);
                 }
-            }
-            if let Some(w) = photometry_out.as_mut() {
-                let pb = photometry_batch(chunk, &seds, &slots, tables)?;
-                w.write(&pb)?;
-                if exporting {
+                if let (Some(pb), true) = (pb?, exporting) {
                     photometry.push(for_export(&pb)?);
                 }
             }
         }
-    }
+        links_writer
+            .map(|h| h.join().expect("the links writer does not panic"))
+            .transpose()
+    })?;
     if n_objects == 0 && exporting {
         if which.objects {
             objects.push(for_export(&objects_batch(
@@ -343,11 +369,6 @@ pub fn build_with(plan: &Plan, out_dir: &Path, run: RunOptions) -> Result<BuildO
         }
         if which.photometry {
             photometry.push(for_export(&photometry_batch(&[], &[], &slots, tables)?)?);
-        }
-    }
-    if let Some(w) = links_out.as_mut() {
-        for chunk in result.links.chunks(chunk_objects) {
-            w.write(&links_batch(chunk, tables)?)?;
         }
     }
     let mut outputs: Vec<OutputRecord> = Vec::new();
