@@ -4,6 +4,7 @@
 use std::path::{Path, PathBuf};
 
 use clap::Args;
+use rayon::prelude::*;
 
 use super::science::ScienceArgs;
 use crate::error::{Error, Result};
@@ -143,16 +144,23 @@ pub fn run(args: &DrawArgs) -> Result<()> {
         })?;
         wanted.push(k);
     }
-    for k in wanted {
-        let fig = sed_figure(&seds, &sci, k);
-        save(
-            &fig,
-            &dir,
-            &format!("sed_{}", file_stem(&seds.object_id[k])),
-            args.png,
-            &mut written,
-        )?;
-    }
+    // One figure per object, drawn in parallel; the files listed in order.
+    let per_object: Vec<Vec<PathBuf>> = wanted
+        .par_iter()
+        .map(|&k| {
+            let fig = sed_figure(&seds, &sci, k);
+            let mut files = Vec::new();
+            save(
+                &fig,
+                &dir,
+                &format!("sed_{}", file_stem(&seds.object_id[k])),
+                args.png,
+                &mut files,
+            )?;
+            Ok(files)
+        })
+        .collect::<Result<_>>()?;
+    written.extend(per_object.into_iter().flatten());
     for spec in &args.colour_colour {
         let (y, x) = spec.split_once(',').ok_or_else(|| {
             Error::Usage(format!(
