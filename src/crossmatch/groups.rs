@@ -96,7 +96,7 @@ impl UnionFind {
 /// # Panics
 ///
 /// Panics if an edge names a node `>= n`, or if `n > u32::MAX`.
-pub fn connected_groups(n: usize, edges: impl IntoIterator<Item = (u32, u32)>) -> Vec<Vec<u32>> {
+pub fn connected_groups(n: usize, edges: impl IntoIterator<Item = (u32, u32)>) -> Groups {
     let mut sets = UnionFind::new(n);
     for (a, b) in edges {
         assert!(
@@ -106,18 +106,72 @@ pub fn connected_groups(n: usize, edges: impl IntoIterator<Item = (u32, u32)>) -
         sets.union(a as usize, b as usize);
     }
     // Visiting nodes in increasing order numbers the groups by their smallest
-    // node and fills each group already sorted.
+    // node and fills each group already sorted; two passes over the nodes lay
+    // the groups out one after another in one array.
     let mut group_of_root = vec![u32::MAX; n];
-    let mut groups: Vec<Vec<u32>> = Vec::new();
-    for node in 0..n {
+    let mut group_of = vec![0u32; n];
+    let mut sizes: Vec<u32> = Vec::new();
+    for (node, group) in group_of.iter_mut().enumerate() {
         let root = sets.find(node);
         if group_of_root[root] == u32::MAX {
-            group_of_root[root] = groups.len() as u32;
-            groups.push(Vec::new());
+            group_of_root[root] = sizes.len() as u32;
+            sizes.push(0);
         }
-        groups[group_of_root[root] as usize].push(node as u32);
+        *group = group_of_root[root];
+        sizes[*group as usize] += 1;
     }
-    groups
+    let mut starts = Vec::with_capacity(sizes.len() + 1);
+    starts.push(0u32);
+    for size in &sizes {
+        starts.push(starts[starts.len() - 1] + size);
+    }
+    let mut next = starts.clone();
+    let mut members = vec![0u32; n];
+    for (node, &g) in group_of.iter().enumerate() {
+        members[next[g as usize] as usize] = node as u32;
+        next[g as usize] += 1;
+    }
+    Groups { starts, members }
+}
+
+/// Connected groups, numbered by their smallest node, each sorted ascending,
+/// laid out one after another in one array (no allocation per group).
+#[derive(Debug, Clone, Default, PartialEq, Eq)]
+pub struct Groups {
+    /// Where each group starts in `members`, plus the total at the end.
+    starts: Vec<u32>,
+    members: Vec<u32>,
+}
+
+impl Groups {
+    /// Number of groups.
+    pub fn len(&self) -> usize {
+        self.starts.len().saturating_sub(1)
+    }
+
+    /// True when there are none.
+    pub fn is_empty(&self) -> bool {
+        self.len() == 0
+    }
+
+    /// The groups in order.
+    pub fn iter(&self) -> impl ExactSizeIterator<Item = &[u32]> + '_ {
+        (0..self.len()).map(|g| &self[g])
+    }
+}
+
+impl std::ops::Index<usize> for Groups {
+    type Output = [u32];
+
+    fn index(&self, g: usize) -> &[u32] {
+        &self.members[self.starts[g] as usize..self.starts[g + 1] as usize]
+    }
+}
+
+impl PartialEq<Vec<Vec<u32>>> for Groups {
+    fn eq(&self, other: &Vec<Vec<u32>>) -> bool {
+        self.len() == other.len() && self.iter().zip(other).all(|(a, b)| a == &b[..])
+    }
 }
 
 #[cfg(test)]
