@@ -5,6 +5,10 @@
 use std::path::Path;
 use std::process::Command;
 
+mod common;
+
+use common::{assert_same_files, output_files};
+
 fn build(out: &Path, extra: &[&str]) {
     let status = Command::new(env!("CARGO_BIN_EXE_fluxloom"))
         .args(["--quiet", "build", "demo_catalogs/fl1/plan.toml", "--out"])
@@ -19,30 +23,12 @@ fn build(out: &Path, extra: &[&str]) {
     );
 }
 
-/// The output files of a folder with their bytes, without the hidden markers of
-/// the output commit.
-fn files(dir: &Path) -> Vec<(String, Vec<u8>)> {
-    let mut v: Vec<(String, Vec<u8>)> = std::fs::read_dir(dir)
-        .unwrap()
-        .map(|e| e.unwrap().path())
-        .filter(|p| !p.file_name().unwrap().to_string_lossy().starts_with('.'))
-        .map(|p| {
-            (
-                p.file_name().unwrap().to_string_lossy().into_owned(),
-                std::fs::read(&p).unwrap(),
-            )
-        })
-        .collect();
-    v.sort();
-    v
-}
-
 #[test]
 fn outputs_are_identical_for_any_cell_order_and_thread_count() {
     let dir = tempfile::tempdir().unwrap();
     let reference = dir.path().join("reference");
     build(&reference, &[]);
-    let expected = files(&reference);
+    let expected = output_files(&reference);
     assert!(
         expected.len() >= 4,
         "{:?}",
@@ -59,15 +45,7 @@ fn outputs_are_identical_for_any_cell_order_and_thread_count() {
     ] {
         let out = dir.path().join(name);
         build(&out, &extra);
-        let got = files(&out);
-        assert_eq!(
-            got.iter().map(|f| &f.0).collect::<Vec<_>>(),
-            expected.iter().map(|f| &f.0).collect::<Vec<_>>(),
-            "{name}"
-        );
-        for ((file, a), (_, b)) in got.iter().zip(&expected) {
-            assert!(a == b, "{name}: {file} differs from the reference build");
-        }
+        assert_same_files(&out, &reference, name);
     }
 }
 
@@ -107,7 +85,7 @@ fn a_links_only_plan_writes_the_same_links_and_nothing_else() {
         "{}",
         String::from_utf8_lossy(&status.stderr)
     );
-    let names: Vec<String> = files(&only).into_iter().map(|f| f.0).collect();
+    let names: Vec<String> = output_files(&only).into_iter().map(|f| f.0).collect();
     assert_eq!(names, ["links.parquet", "run.json"]);
     let read = |p: &Path| {
         let f = std::fs::File::open(p).unwrap();

@@ -4,6 +4,10 @@
 use std::path::{Path, PathBuf};
 use std::process::{Command, Stdio};
 
+mod common;
+
+use common::assert_same_files;
+
 use fluxloom::cli::build::prepare;
 use fluxloom::crossmatch::cell_io::read_output;
 use fluxloom::crossmatch::cells::{CellRun, match_by_cells};
@@ -32,35 +36,6 @@ fn build(out: &Path, extra: &[&str]) -> String {
     args.push(out);
     args.extend_from_slice(extra);
     String::from_utf8(fluxloom(&args).stdout).unwrap()
-}
-
-/// The output files of a folder with their bytes, without the hidden markers.
-fn files(dir: &Path) -> Vec<(String, Vec<u8>)> {
-    let mut v: Vec<(String, Vec<u8>)> = std::fs::read_dir(dir)
-        .unwrap()
-        .map(|e| e.unwrap().path())
-        .filter(|p| !p.file_name().unwrap().to_string_lossy().starts_with('.'))
-        .map(|p| {
-            (
-                p.file_name().unwrap().to_string_lossy().into_owned(),
-                std::fs::read(&p).unwrap(),
-            )
-        })
-        .collect();
-    v.sort();
-    v
-}
-
-fn assert_same_files(got: &Path, expected: &Path, what: &str) {
-    let (got, expected) = (files(got), files(expected));
-    assert_eq!(
-        got.iter().map(|f| &f.0).collect::<Vec<_>>(),
-        expected.iter().map(|f| &f.0).collect::<Vec<_>>(),
-        "{what}"
-    );
-    for ((file, a), (_, b)) in got.iter().zip(&expected) {
-        assert!(a == b, "{what}: {file} differs from the single build");
-    }
 }
 
 /// The cells of the demo field at `ORDER` that hold sources, from `fluxloom cells`.

@@ -611,11 +611,7 @@ pub fn prepare(
     for c in &plan.catalogs {
         read.push(read_catalog(&c.file, &c.schema, options, quiet)?);
     }
-    let mut tables: Vec<SourceTable> = Vec::with_capacity(read.len());
-    for r in &mut read {
-        tables.push(std::mem::take(&mut r.1));
-    }
-    let read: Vec<ReadCatalog> = read.into_iter().map(|r| r.0).collect();
+    let (read, tables): (Vec<ReadCatalog>, Vec<SourceTable>) = read.into_iter().unzip();
     let bar = spinner(
         "measuring offsets",
         quiet || plan.astrometric_reference.is_none(),

@@ -25,7 +25,7 @@ pub struct Blend {
     pub under: Vec<u32>,
 }
 
-/// Finds every blend among `sources`.
+/// Finds every blend among `sources`, in the order of their coarse sources.
 pub fn find_blends(sources: &Sources, config: &MatchConfig) -> Vec<Blend> {
     let resolution: Vec<Option<f64>> = config
         .catalogs

@@ -5,7 +5,7 @@
 //! input's rank order — `rank`, `core`, `catalog`, `row`, the stored position
 //! (`ra_deg`, `dec_deg`, `x`, `y`, `z`), `epoch_yr`, proper motion
 //! (`pmra_cosdec_masyr`, `pmdec_masyr`, NaN when unknown), covariance
-//! (`cov_ee`, `cov_nn`, `cov_en`, arcsec²) and `sigma_rad`. The schema's metadata
+//! (`cov_ee_arcsec2`, `cov_nn_arcsec2`, `cov_en_arcsec2`) and `sigma_rad`. The schema's metadata
 //! carries what every cell shares: the cell (`fluxloom.cell.order`,
 //! `fluxloom.cell.id`, `fluxloom.cell.margin_arcsec`), the catalogs' ln
 //! densities and the epoch statistics. Numbers in metadata are written with
@@ -23,10 +23,13 @@ use std::path::Path;
 use std::sync::Arc;
 
 use arrow::array::{
-    ArrayRef, AsArray, BooleanArray, Float64Array, ListArray, RecordBatch, UInt16Array, UInt32Array,
+    ArrayRef, AsArray, BooleanArray, Float64Array, ListArray, PrimitiveArray, RecordBatch,
+    UInt16Array, UInt32Array,
 };
 use arrow::buffer::OffsetBuffer;
-use arrow::datatypes::{DataType, Field, Float64Type, Schema, UInt16Type, UInt32Type};
+use arrow::datatypes::{
+    ArrowPrimitiveType, DataType, Field, Float64Type, Schema, UInt16Type, UInt32Type,
+};
 use arrow::ipc::reader::StreamReader;
 use arrow::ipc::writer::StreamWriter;
 
@@ -70,18 +73,10 @@ fn float_field(name: &str) -> Field {
     Field::new(name, DataType::Float64, false)
 }
 
-fn u32_list_field(name: &str) -> Field {
+fn list_field(name: &str, item: DataType) -> Field {
     Field::new(
         name,
-        DataType::List(Arc::new(Field::new_list_field(DataType::UInt32, false))),
-        false,
-    )
-}
-
-fn f64_list_field(name: &str) -> Field {
-    Field::new(
-        name,
-        DataType::List(Arc::new(Field::new_list_field(DataType::Float64, false))),
+        DataType::List(Arc::new(Field::new_list_field(item, false))),
         false,
     )
 }
@@ -94,30 +89,17 @@ fn u32s(values: impl Iterator<Item = u32>) -> ArrayRef {
     Arc::new(UInt32Array::from_iter_values(values))
 }
 
-fn u32_lists<'a>(lists: impl Iterator<Item = &'a [u32]>) -> ArrayRef {
+/// A list column of `T` values, one list per item of `lists`.
+fn lists<'a, T: ArrowPrimitiveType>(lists: impl Iterator<Item = &'a [T::Native]>) -> ArrayRef {
     let (mut lengths, mut values) = (Vec::new(), Vec::new());
     for l in lists {
         lengths.push(l.len());
         values.extend_from_slice(l);
     }
     Arc::new(ListArray::new(
-        Arc::new(Field::new_list_field(DataType::UInt32, false)),
+        Arc::new(Field::new_list_field(T::DATA_TYPE, false)),
         OffsetBuffer::from_lengths(lengths),
-        Arc::new(UInt32Array::from(values)),
-        None,
-    ))
-}
-
-fn f64_lists<'a>(lists: impl Iterator<Item = &'a [f64]>) -> ArrayRef {
-    let (mut lengths, mut values) = (Vec::new(), Vec::new());
-    for l in lists {
-        lengths.push(l.len());
-        values.extend_from_slice(l);
-    }
-    Arc::new(ListArray::new(
-        Arc::new(Field::new_list_field(DataType::Float64, false)),
-        OffsetBuffer::from_lengths(lengths),
-        Arc::new(Float64Array::from(values)),
+        Arc::new(PrimitiveArray::<T>::from_iter_values(values)),
         None,
     ))
 }
@@ -198,9 +180,9 @@ const FLOAT_INPUT_COLUMNS: [&str; 12] = [
     "epoch_yr",
     "pmra_cosdec_masyr",
     "pmdec_masyr",
-    "cov_ee",
-    "cov_nn",
-    "cov_en",
+    "cov_ee_arcsec2",
+    "cov_nn_arcsec2",
+    "cov_en_arcsec2",
     "sigma_rad",
 ];
 
@@ -243,30 +225,16 @@ impl Columns<'_> {
         Ok(a.values())
     }
 
-    fn lists(&self, name: &str) -> Result<&ListArray> {
-        self.column(name)?
+    /// The lists of a list column of `T` values.
+    fn lists<T: ArrowPrimitiveType>(&self, name: &str) -> Result<Vec<Vec<T::Native>>> {
+        let l = self
+            .column(name)?
             .as_list_opt::<i32>()
-            .ok_or_else(|| self.mistyped(name, "a list"))
-    }
-
-    fn u32_lists(&self, name: &str) -> Result<Vec<Vec<u32>>> {
-        let l = self.lists(name)?;
+            .ok_or_else(|| self.mistyped(name, "a list"))?;
         let values = l
             .values()
-            .as_primitive_opt::<UInt32Type>()
-            .ok_or_else(|| self.mistyped(name, "a list of UInt32"))?;
-        Ok(l.offsets()
-            .windows(2)
-            .map(|w| values.values()[w[0] as usize..w[1] as usize].to_vec())
-            .collect())
-    }
-
-    fn f64_lists(&self, name: &str) -> Result<Vec<Vec<f64>>> {
-        let l = self.lists(name)?;
-        let values = l
-            .values()
-            .as_primitive_opt::<Float64Type>()
-            .ok_or_else(|| self.mistyped(name, "a list of Float64"))?;
+            .as_primitive_opt::<T>()
+            .ok_or_else(|| self.mistyped(name, &format!("a list of {}", T::DATA_TYPE)))?;
         Ok(l.offsets()
             .windows(2)
             .map(|w| values.values()[w[0] as usize..w[1] as usize].to_vec())
@@ -374,9 +342,9 @@ pub fn input_from_batch(batch: &RecordBatch, origin: &Path) -> Result<CellInput>
     }
     let (x, y, z) = (c.floats("x")?, c.floats("y")?, c.floats("z")?);
     let (ee, nn, en) = (
-        c.floats("cov_ee")?,
-        c.floats("cov_nn")?,
-        c.floats("cov_en")?,
+        c.floats("cov_ee_arcsec2")?,
+        c.floats("cov_nn_arcsec2")?,
+        c.floats("cov_en_arcsec2")?,
     );
     let (pmra, pmdec) = (c.floats("pmra_cosdec_masyr")?, c.floats("pmdec_masyr")?);
     let mut sources = Sources {
@@ -431,24 +399,24 @@ pub fn output_batches(out: &CellOutput) -> Result<(RecordBatch, RecordBatch)> {
     .collect();
     let objects_schema = Arc::new(Schema::new_with_metadata(
         vec![
-            u32_list_field("members"),
-            f64_list_field("member_probability"),
+            list_field("members", DataType::UInt32),
+            list_field("member_probability", DataType::Float64),
             float_field("score"),
             float_field("probability"),
             Field::new("flags", DataType::UInt32, false),
-            u32_list_field("related"),
+            list_field("related", DataType::UInt32),
         ],
         metadata,
     ));
     let objects = RecordBatch::try_new(
         objects_schema,
         vec![
-            u32_lists(o.iter().map(|x| &x.members[..])),
-            f64_lists(o.iter().map(|x| &x.member_probability[..])),
+            lists::<UInt32Type>(o.iter().map(|x| &x.members[..])),
+            lists::<Float64Type>(o.iter().map(|x| &x.member_probability[..])),
             floats(o.iter().map(|x| x.score)),
             floats(o.iter().map(|x| x.probability)),
             u32s(o.iter().map(|x| x.flags)),
-            u32_lists(o.iter().map(|x| &x.related[..])),
+            lists::<UInt32Type>(o.iter().map(|x| &x.related[..])),
         ],
     )
     .map_err(|e| Error::Usage(e.to_string()))?;
@@ -495,9 +463,9 @@ pub fn output_from_batches(
         batch: objects,
         origin,
     };
-    let members = c.u32_lists("members")?;
-    let member_probability = c.f64_lists("member_probability")?;
-    let related = c.u32_lists("related")?;
+    let members = c.lists::<UInt32Type>("members")?;
+    let member_probability = c.lists::<Float64Type>("member_probability")?;
+    let related = c.lists::<UInt32Type>("related")?;
     let (score, probability, flags) = (
         c.floats("score")?,
         c.floats("probability")?,

@@ -233,14 +233,10 @@ pub fn match_cell(
         over.extend(b.under.iter().map(|&u| (u, k as u32)));
     }
     over.sort_unstable();
-    let blend_of_source: std::collections::HashMap<u32, usize> = blends
-        .iter()
-        .enumerate()
-        .map(|(k, b)| (b.source, k))
-        .collect();
     for o in &mut out.objects {
         for &m in &o.members {
-            if let Some(&k) = blend_of_source.get(&m) {
+            // `find_blends` gives the blends in source order.
+            if let Ok(k) = blends.binary_search_by_key(&m, |b| b.source) {
                 o.flags |= flags::BLEND;
                 o.related
                     .extend(blends[k].under.iter().map(|&u| anchor_of[u as usize]));

@@ -74,6 +74,24 @@ fn strings<'b>(batch: &'b RecordBatch, name: &str, origin: &Path) -> Result<Vec<
         .collect())
 }
 
+/// The rank of the source named by columns `catalog` and `source_id` of each row.
+fn source_ranks<'b>(
+    batch: &'b RecordBatch,
+    catalog: &str,
+    source_id: &str,
+    ranker: &Ranker,
+    origin: &Path,
+) -> Result<Vec<Rank<'b>>> {
+    let (c, s) = (
+        strings(batch, catalog, origin)?,
+        strings(batch, source_id, origin)?,
+    );
+    c.iter()
+        .zip(s)
+        .map(|(c, s)| Ok((ranker.catalog(c, origin)?, s)))
+        .collect()
+}
+
 /// Which table is being joined, and so which key orders it.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
 pub enum TableKind {
@@ -114,36 +132,18 @@ pub fn join_table(
             order.sort_by_key(|&i| keys[i as usize]);
         }
         TableKind::Links => {
-            let (ca, ia) = (
-                strings(&all, "catalog_a", origin)?,
-                strings(&all, "source_id_a", origin)?,
-            );
-            let (cb, ib) = (
-                strings(&all, "catalog_b", origin)?,
-                strings(&all, "source_id_b", origin)?,
-            );
-            let mut keys: Vec<(Rank, Rank)> = Vec::with_capacity(n);
-            for i in 0..n {
-                keys.push((
-                    (ranker.catalog(ca[i], origin)?, ia[i]),
-                    (ranker.catalog(cb[i], origin)?, ib[i]),
-                ));
-            }
-            order.sort_by_key(|&i| keys[i as usize]);
+            let a = source_ranks(&all, "catalog_a", "source_id_a", ranker, origin)?;
+            let b = source_ranks(&all, "catalog_b", "source_id_b", ranker, origin)?;
+            order.sort_by_key(|&i| (a[i as usize], b[i as usize]));
         }
         TableKind::HardSources => {
             let ids = strings(&all, "object_id", origin)?;
-            let (c, s) = (
-                strings(&all, "catalog", origin)?,
-                strings(&all, "source_id", origin)?,
-            );
-            let mut keys: Vec<(Rank, Rank)> = Vec::with_capacity(n);
-            for i in 0..n {
-                keys.push((
-                    ranker.object(ids[i], origin)?,
-                    (ranker.catalog(c[i], origin)?, s[i]),
-                ));
-            }
+            let objects: Vec<Rank> = ids
+                .iter()
+                .map(|id| ranker.object(id, origin))
+                .collect::<Result<_>>()?;
+            let sources = source_ranks(&all, "catalog", "source_id", ranker, origin)?;
+            let keys: Vec<(Rank, Rank)> = objects.into_iter().zip(sources).collect();
             order.sort_by_key(|&i| keys[i as usize]);
             // A source tied to hard cases of two parts appears in both, alike.
             order.dedup_by_key(|i| keys[*i as usize]);

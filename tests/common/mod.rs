@@ -90,3 +90,34 @@ pub fn read_csv_rows(path: &Path) -> Vec<HashMap<String, String>> {
         })
         .collect()
 }
+
+/// The output files of a folder with their bytes, without the hidden markers
+/// of the output commit.
+pub fn output_files(dir: &Path) -> Vec<(String, Vec<u8>)> {
+    let mut v: Vec<(String, Vec<u8>)> = std::fs::read_dir(dir)
+        .unwrap()
+        .map(|e| e.unwrap().path())
+        .filter(|p| !p.file_name().unwrap().to_string_lossy().starts_with('.'))
+        .map(|p| {
+            (
+                p.file_name().unwrap().to_string_lossy().into_owned(),
+                std::fs::read(&p).unwrap(),
+            )
+        })
+        .collect();
+    v.sort();
+    v
+}
+
+/// Asserts that folder `got` holds the same output files as `expected`, byte for byte.
+pub fn assert_same_files(got: &Path, expected: &Path, what: &str) {
+    let (got, expected) = (output_files(got), output_files(expected));
+    assert_eq!(
+        got.iter().map(|f| &f.0).collect::<Vec<_>>(),
+        expected.iter().map(|f| &f.0).collect::<Vec<_>>(),
+        "{what}"
+    );
+    for ((file, a), (_, b)) in got.iter().zip(&expected) {
+        assert!(a == b, "{what}: {file} differs from the reference build");
+    }
+}
