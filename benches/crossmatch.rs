@@ -163,15 +163,13 @@ fn run(label: &str, tables: Vec<SourceTable>, dir: &Path) {
     for (name, secs) in [
         ("prepare (rank, epochs)", p.prepare),
         ("densities", p.densities),
-        ("index + candidates", p.candidates),
-        ("groups", p.groups),
-        ("resolution", p.resolution),
+        ("cells (candidates, groups)", p.candidates),
         ("assemble", p.assemble),
     ] {
         println!("    {name:<26} {secs:>8.3} s");
     }
     println!(
-        "  candidates {} ({:.0} per second of candidate search); groups {}, largest {}, approximate {}",
+        "  candidates {} ({:.0} per second of matching the cells); groups {}, largest {}, approximate {}",
         s.candidates,
         s.candidates as f64 / p.candidates.max(1e-9),
         s.groups,

@@ -164,12 +164,8 @@ pub struct PhaseSeconds {
     pub prepare: f64,
     /// Density estimates.
     pub densities: f64,
-    /// Partitioning, indexing and the candidate search.
+    /// The cells: partitioning, candidate search, groups and their resolution.
     pub candidates: f64,
-    /// Connected groups.
-    pub groups: f64,
-    /// Group resolution.
-    pub resolution: f64,
     /// Objects and links.
     pub assemble: f64,
 }
