@@ -19,7 +19,7 @@ use crate::catalog::{DEFAULT_BATCH_ROWS, open, prefetch};
 use crate::crossmatch::SourceTable;
 use crate::crossmatch::cells::CellRun;
 use crate::crossmatch::density::footprint_order;
-use crate::crossmatch::engine::MatchSetup;
+use crate::crossmatch::engine::{MatchResult, MatchSetup};
 use crate::crossmatch::false_matches::{FalseMatchEstimate, estimate_false_matches};
 use crate::crossmatch::floors::{FAR_ABOVE_FACTOR, FloorEstimate, far_above_stated};
 use crate::crossmatch::systematics::{CatalogOffset, correct_offsets};
@@ -63,6 +63,20 @@ pub struct BuildArgs {
     /// `fluxloom merge`.
     #[arg(long, value_name = "LIST", value_parser = parse_cell_list)]
     pub cells: Option<CellList>,
+    /// Build within this much memory (e.g. `2G`, `512M`): catalogs are routed to
+    /// sky cells through spill files beside the output folder and matched a
+    /// group of cells at a time. The outputs do not depend on it.
+    #[arg(long, value_name = "SIZE", value_parser = super::stream::parse_memory_size)]
+    pub memory_limit: Option<u64>,
+    /// With `--memory-limit`: rows per group of cells at most (tests; the outputs do not depend on it).
+    #[arg(long, value_name = "N", hide = true, requires = "memory_limit")]
+    pub group_rows: Option<u64>,
+    /// With `--memory-limit`: spill each catalog's routed rows past this many bytes (tests).
+    #[arg(long, value_name = "BYTES", hide = true, requires = "memory_limit")]
+    pub spill_bytes: Option<usize>,
+    /// With `--memory-limit`: routing margin, arcsec, instead of four first-pass margins (tests).
+    #[arg(long, value_name = "ARCSEC", hide = true, requires = "memory_limit")]
+    pub routing_margin: Option<f64>,
     /// Stop (sleep) once this many cells are journaled, to test resuming a killed run.
     #[arg(long, value_name = "N", hide = true)]
     pub pause_after_cells: Option<usize>,
@@ -113,6 +127,12 @@ pub struct RunOptions {
     pub cells: Option<Vec<u64>>,
     /// Sleep once this many cells are journaled (tests of resuming).
     pub pause_after_cells: Option<usize>,
+    /// Rows per group of cells in a build within a memory limit, instead of what the limit gives.
+    pub group_rows: Option<u64>,
+    /// Spill threshold of the routing pass, bytes, instead of what the limit gives.
+    pub spill_bytes: Option<usize>,
+    /// Routing margin, arcsec, instead of four first-pass margins.
+    pub routing_margin: Option<f64>,
 }
 
 /// Everything read from one catalog besides its source table.
@@ -136,14 +156,21 @@ pub fn run(args: &BuildArgs, quiet: bool) -> Result<()> {
         write_chunk: args.write_chunk.map(|n| n as usize),
         cells: args.cells.clone().map(|c| c.0),
         pause_after_cells: args.pause_after_cells,
+        group_rows: args.group_rows,
+        spill_bytes: args.spill_bytes,
+        routing_margin: args.routing_margin,
+    };
+    let build = |plan: &Plan, out_dir: &Path, options: RunOptions| match args.memory_limit {
+        Some(limit) => super::stream::build_within(plan, out_dir, options, limit),
+        None => build_with(plan, out_dir, options),
     };
     let outcome = match args.threads {
         Some(n) => rayon::ThreadPoolBuilder::new()
             .num_threads(usize::from(n))
             .build()
             .map_err(|e| Error::Usage(format!("cannot start {n} threads: {e}")))?
-            .install(|| build_with(&plan, &out_dir, options.clone()))?,
-        None => build_with(&plan, &out_dir, options)?,
+            .install(|| build(&plan, &out_dir, options.clone()))?,
+        None => build(&plan, &out_dir, options)?,
     };
     super::write_stdout(&outcome.summary)
 }
@@ -218,6 +245,7 @@ pub fn build_with(plan: &Plan, out_dir: &Path, run: RunOptions) -> Result<BuildO
             subset: run.cells.clone(),
             finished: journal.finished()?,
             on_complete: Some(&record_cell),
+            ..CellRun::default()
         },
     )?;
     clock.matching = started.elapsed().as_secs_f64() - clock.read;
@@ -247,157 +275,28 @@ pub fn build_with(plan: &Plan, out_dir: &Path, run: RunOptions) -> Result<BuildO
             }
         })
         .collect::<Result<_>>()?;
-    let slots: Vec<BandSlot> = plan
-        .catalogs
-        .iter()
-        .enumerate()
-        .flat_map(|(k, c)| {
-            c.schema.bands.iter().map(move |b| BandSlot {
-                catalog: k,
-                catalog_name: c.name.clone(),
-                spec: b.clone(),
-            })
-        })
-        .collect();
+    let slots = band_slots(plan);
     let normalized: Vec<RecordBatch> = read.iter().map(|r| r.normalized.clone()).collect();
-    let assembler = seds_written
-        .then(|| SedAssembler::new(&slots, &result.objects, &normalized, &coverage))
-        .transpose()?;
-
     let bar = spinner("writing", quiet);
     let mut staging = Staging::new(out_dir)?;
-    let metadata = table_metadata(plan, &slots)?;
-    let epoch = plan.matching.reference_epoch_yr;
-    // The tables are assembled and written a chunk of objects at a time, so only
-    // one chunk of output columns is in memory (plus the exports' copy, if any).
-    let which = plan.tables;
-    let create = |staging: &mut Staging, name: &str, batch: Result<RecordBatch>| {
-        ParquetOutput::create(&staging.path(name), batch?.schema(), metadata.clone())
-    };
-    let mut objects_out = match which.objects {
-        true => Some(create(
-            &mut staging,
-            "objects.parquet",
-            objects_batch(&[], &[], &slots, tables, epoch),
-        )?),
-        false => None,
-    };
-    let mut photometry_out = match which.photometry {
-        true => Some(create(
-            &mut staging,
-            "photometry.parquet",
-            photometry_batch(&[], &[], &slots, tables),
-        )?),
-        false => None,
-    };
-    let links_out = match which.links {
-        true => Some(create(
-            &mut staging,
-            "links.parquet",
-            links_batch(&[], tables),
-        )?),
-        false => None,
-    };
-    let exporting = !plan.exports.is_empty();
-    let mut status_counts = vec![[0u64; SedStatus::ALL.len()]; slots.len()];
-    let (mut objects, mut photometry) = (Vec::new(), Vec::new());
-    let n_objects = result.objects.len();
-    let chunk_objects = run.write_chunk.unwrap_or(WRITE_CHUNK_OBJECTS);
-    // Each table has its own writer: links are written on a thread of their
-    // own while objects and photometry are, chunk by chunk, side by side.
-    let links = &result.links;
-    let links_out = std::thread::scope(|scope| -> Result<Option<ParquetOutput>> {
-        let links_writer = links_out.map(|mut w| {
-            scope.spawn(move || -> Result<ParquetOutput> {
-                for chunk in links.chunks(chunk_objects) {
-                    w.write(&links_batch(chunk, tables)?)?;
-                }
-                Ok(w)
-            })
-        });
-        if which.objects || which.photometry {
-            for start in (0..n_objects).step_by(chunk_objects) {
-                let range = start..(start + chunk_objects).min(n_objects);
-                let seds = assembler
-                    .as_ref()
-                    .map_or_else(|| Ok(Vec::new()), |a| a.seds(range.clone()))?;
-                for sed in &seds {
-                    for (k, p) in sed.points.iter().enumerate() {
-                        status_counts[k][p.status as usize] += 1;
-                    }
-                }
-                let chunk = &result.objects[range];
-                let (ob, pb) = rayon::join(
-                    || -> Result<Option<RecordBatch>> {
-                        let Some(w) = objects_out.as_mut() else {
-                            return Ok(None);
-                        };
-                        let ob = objects_batch(chunk, &seds, &slots, tables, epoch)?;
-                        w.write(&ob)?;
-                        Ok(Some(ob))
-                    },
-                    || -> Result<Option<RecordBatch>> {
-                        let Some(w) = photometry_out.as_mut() else {
-                            return Ok(None);
-                        };
-                        let pb = photometry_batch(chunk, &seds, &slots, tables)?;
-                        w.write(&pb)?;
-                        Ok(Some(pb))
-                    },
-                );
-                if let (Some(ob), true) = (ob?, exporting) {
-                    objects.push(for_export(&ob)?);
-                }
-                if let (Some(pb), true) = (pb?, exporting) {
-                    photometry.push(for_export(&pb)?);
-                }
-            }
-        }
-        links_writer
-            .map(|h| h.join().expect("the links writer does not panic"))
-            .transpose()
-    })?;
-    if n_objects == 0 && exporting {
-        if which.objects {
-            objects.push(for_export(&objects_batch(
-                &[],
-                &[],
-                &slots,
-                tables,
-                epoch,
-            )?)?);
-        }
-        if which.photometry {
-            photometry.push(for_export(&photometry_batch(&[], &[], &slots, tables)?)?);
-        }
-    }
-    let mut outputs: Vec<OutputRecord> = Vec::new();
-    for (file, w) in [
-        ("objects.parquet", objects_out),
-        ("photometry.parquet", photometry_out),
-        ("links.parquet", links_out),
-    ] {
-        let Some(w) = w else { continue };
-        let rows = w.finish()?;
-        outputs.push(OutputRecord {
-            file: file.to_string(),
-            rows,
-        });
-    }
-    if which.objects {
-        // The sources of the hard cases, for the audit's match cards.
-        let hard = hard_sources_batch(&result.objects, &result.links, matched_tables, epoch)?;
-        let mut w = ParquetOutput::create(
-            &staging.path("hard_sources.parquet"),
-            hard.schema(),
-            metadata.clone(),
-        )?;
-        w.write(&hard)?;
-        outputs.push(OutputRecord {
-            file: "hard_sources.parquet".to_string(),
-            rows: w.finish()?,
-        });
-    }
+    let Written {
+        mut outputs,
+        status_counts,
+        objects,
+        photometry,
+    } = write_tables(
+        &mut |name| staging.path(name),
+        &TableInputs {
+            plan,
+            result: &result,
+            tables,
+            matched: matched_tables,
+            normalized: &normalized,
+            coverage: &coverage,
+            slots: &slots,
+            chunk_objects: run.write_chunk.unwrap_or(WRITE_CHUNK_OBJECTS),
+        },
+    )?;
     outputs.extend(write_exports(&mut staging, plan, &objects, &photometry)?);
     outputs.extend(write_science(&mut staging, plan)?);
     let mut record = RunRecord::new(
@@ -432,10 +331,211 @@ pub fn build_with(plan: &Plan, out_dir: &Path, run: RunOptions) -> Result<BuildO
     journal.remove()?;
     bar.finish_and_clear();
     Ok(BuildOutcome {
-        summary: summary(plan, out_dir, read, &record, &outputs)
-            + &clock.line(&result.stats.seconds)
+        summary: summary(
+            plan,
+            out_dir,
+            &read.iter().map(|r| &r.report).collect::<Vec<_>>(),
+            &record,
+            &outputs,
+        ) + &clock.line(&result.stats.seconds)
             + &crate::report::warnings::build_lines(report.as_deref()),
         files,
+    })
+}
+
+/// The SED's band slots: every band of every catalog, in plan order.
+pub(crate) fn band_slots(plan: &Plan) -> Vec<BandSlot> {
+    plan.catalogs
+        .iter()
+        .enumerate()
+        .flat_map(|(k, c)| {
+            c.schema.bands.iter().map(move |b| BandSlot {
+                catalog: k,
+                catalog_name: c.name.clone(),
+                spec: b.clone(),
+            })
+        })
+        .collect()
+}
+
+/// What the tables of a match are written from.
+#[derive(Clone, Copy)]
+pub(crate) struct TableInputs<'a> {
+    /// The plan.
+    pub plan: &'a Plan,
+    /// The match.
+    pub result: &'a MatchResult,
+    /// The source tables as read (identifiers).
+    pub tables: &'a [SourceTable],
+    /// The source tables matched (offsets corrected when they were).
+    pub matched: &'a [SourceTable],
+    /// The normalized catalogs (photometry).
+    pub normalized: &'a [RecordBatch],
+    /// Each catalog's coverage (empty when no SED table is written).
+    pub coverage: &'a [Coverage],
+    /// The band slots of the SEDs.
+    pub slots: &'a [BandSlot],
+    /// Objects per write chunk.
+    pub chunk_objects: usize,
+}
+
+/// What writing the tables gave: their records, the SED status counts per
+/// slot and, when the plan exports, the batches to export.
+pub(crate) struct Written {
+    pub outputs: Vec<OutputRecord>,
+    pub status_counts: Vec<[u64; SedStatus::ALL.len()]>,
+    pub objects: Vec<RecordBatch>,
+    pub photometry: Vec<RecordBatch>,
+}
+
+/// Writes the tables the plan asks for (objects, photometry, links, hard
+/// sources) at the paths `path` gives for their names, a chunk of objects at a time.
+///
+/// # Errors
+/// Assembly and write errors.
+pub(crate) fn write_tables(
+    path: &mut dyn FnMut(&str) -> PathBuf,
+    inputs: &TableInputs,
+) -> Result<Written> {
+    let TableInputs {
+        plan,
+        result,
+        tables,
+        matched: matched_tables,
+        normalized,
+        coverage,
+        slots,
+        chunk_objects,
+    } = *inputs;
+    let seds_written = plan.tables.objects || plan.tables.photometry;
+    let assembler = seds_written
+        .then(|| SedAssembler::new(slots, &result.objects, normalized, coverage))
+        .transpose()?;
+
+    let metadata = table_metadata(plan, slots)?;
+    let epoch = plan.matching.reference_epoch_yr;
+    // The tables are assembled and written a chunk of objects at a time, so only
+    // one chunk of output columns is in memory (plus the exports' copy, if any).
+    let which = plan.tables;
+    let mut create = |name: &str, batch: Result<RecordBatch>| {
+        ParquetOutput::create(&path(name), batch?.schema(), metadata.clone())
+    };
+    let mut objects_out = match which.objects {
+        true => Some(create(
+            "objects.parquet",
+            objects_batch(&[], &[], slots, tables, epoch),
+        )?),
+        false => None,
+    };
+    let mut photometry_out = match which.photometry {
+        true => Some(create(
+            "photometry.parquet",
+            photometry_batch(&[], &[], slots, tables),
+        )?),
+        false => None,
+    };
+    let links_out = match which.links {
+        true => Some(create("links.parquet", links_batch(&[], tables))?),
+        false => None,
+    };
+    let exporting = !plan.exports.is_empty();
+    let mut status_counts = vec![[0u64; SedStatus::ALL.len()]; slots.len()];
+    let (mut objects, mut photometry) = (Vec::new(), Vec::new());
+    let n_objects = result.objects.len();
+    // Each table has its own writer: links are written on a thread of their
+    // own while objects and photometry are, chunk by chunk, side by side.
+    let links = &result.links;
+    let links_out = std::thread::scope(|scope| -> Result<Option<ParquetOutput>> {
+        let links_writer = links_out.map(|mut w| {
+            scope.spawn(move || -> Result<ParquetOutput> {
+                for chunk in links.chunks(chunk_objects) {
+                    w.write(&links_batch(chunk, tables)?)?;
+                }
+                Ok(w)
+            })
+        });
+        if which.objects || which.photometry {
+            for start in (0..n_objects).step_by(chunk_objects) {
+                let range = start..(start + chunk_objects).min(n_objects);
+                let seds = assembler
+                    .as_ref()
+                    .map_or_else(|| Ok(Vec::new()), |a| a.seds(range.clone()))?;
+                for sed in &seds {
+                    for (k, p) in sed.points.iter().enumerate() {
+                        status_counts[k][p.status as usize] += 1;
+                    }
+                }
+                let chunk = &result.objects[range];
+                let (ob, pb) = rayon::join(
+                    || -> Result<Option<RecordBatch>> {
+                        let Some(w) = objects_out.as_mut() else {
+                            return Ok(None);
+                        };
+                        let ob = objects_batch(chunk, &seds, slots, tables, epoch)?;
+                        w.write(&ob)?;
+                        Ok(Some(ob))
+                    },
+                    || -> Result<Option<RecordBatch>> {
+                        let Some(w) = photometry_out.as_mut() else {
+                            return Ok(None);
+                        };
+                        let pb = photometry_batch(chunk, &seds, slots, tables)?;
+                        w.write(&pb)?;
+                        Ok(Some(pb))
+                    },
+                );
+                if let (Some(ob), true) = (ob?, exporting) {
+                    objects.push(for_export(&ob)?);
+                }
+                if let (Some(pb), true) = (pb?, exporting) {
+                    photometry.push(for_export(&pb)?);
+                }
+            }
+        }
+        links_writer
+            .map(|h| h.join().expect("the links writer does not panic"))
+            .transpose()
+    })?;
+    if n_objects == 0 && exporting {
+        if which.objects {
+            objects.push(for_export(&objects_batch(&[], &[], slots, tables, epoch)?)?);
+        }
+        if which.photometry {
+            photometry.push(for_export(&photometry_batch(&[], &[], slots, tables)?)?);
+        }
+    }
+    let mut outputs: Vec<OutputRecord> = Vec::new();
+    for (file, w) in [
+        ("objects.parquet", objects_out),
+        ("photometry.parquet", photometry_out),
+        ("links.parquet", links_out),
+    ] {
+        let Some(w) = w else { continue };
+        let rows = w.finish()?;
+        outputs.push(OutputRecord {
+            file: file.to_string(),
+            rows,
+        });
+    }
+    if which.objects {
+        // The sources of the hard cases, for the audit's match cards.
+        let hard = hard_sources_batch(&result.objects, &result.links, matched_tables, epoch)?;
+        let mut w = ParquetOutput::create(
+            &path("hard_sources.parquet"),
+            hard.schema(),
+            metadata.clone(),
+        )?;
+        w.write(&hard)?;
+        outputs.push(OutputRecord {
+            file: "hard_sources.parquet".to_string(),
+            rows: w.finish()?,
+        });
+    }
+    Ok(Written {
+        outputs,
+        status_counts,
+        objects,
+        photometry,
     })
 }
 
@@ -667,7 +767,7 @@ fn run_key(
 }
 
 /// SHA-256 of a file's bytes (hex) and its size.
-fn file_digest(path: &Path) -> Result<(String, u64)> {
+pub(crate) fn file_digest(path: &Path) -> Result<(String, u64)> {
     use std::io::Read;
     let mut f = std::fs::File::open(path).map_err(|e| Error::io(path, e))?;
     let mut hasher = Sha256::new();
@@ -690,7 +790,7 @@ fn file_digest(path: &Path) -> Result<(String, u64)> {
 }
 
 /// Parquet key-value metadata: field, plan, bands, flag legend.
-fn table_metadata(plan: &Plan, slots: &[BandSlot]) -> Result<Vec<(String, String)>> {
+pub(crate) fn table_metadata(plan: &Plan, slots: &[BandSlot]) -> Result<Vec<(String, String)>> {
     let bands = band_table(slots);
     let legend: Vec<serde_json::Value> = crate::crossmatch::flags::ALL
         .iter()
@@ -763,7 +863,10 @@ fn to_json<T: serde::Serialize>(value: &T) -> Result<String> {
 }
 
 /// SED points per band slot and status, for run.json and the summary.
-fn sed_counts(slots: &[BandSlot], counts: &[[u64; SedStatus::ALL.len()]]) -> Vec<SedRecord> {
+pub(crate) fn sed_counts(
+    slots: &[BandSlot],
+    counts: &[[u64; SedStatus::ALL.len()]],
+) -> Vec<SedRecord> {
     slots
         .iter()
         .zip(counts)
@@ -826,17 +929,16 @@ impl PhaseClock {
     }
 }
 
-fn summary(
+pub(crate) fn summary(
     plan: &Plan,
     out_dir: &Path,
-    read: &[ReadCatalog],
+    reports: &[&NormalizeReport],
     record: &RunRecord,
     outputs: &[OutputRecord],
 ) -> String {
     let mut s = format!("field    {} (plan {})\n", plan.field, plan.path.display());
     s.push_str("\nread\n");
-    for (c, r) in plan.catalogs.iter().zip(read) {
-        let rep = &r.report;
+    for (c, rep) in plan.catalogs.iter().zip(reports) {
         s.push_str(&format!(
             "  {:<10} {:>8} rows read, {:>8} kept, {:>6} skipped   {}\n",
             c.name,

@@ -9,7 +9,9 @@ pub mod make_demo;
 pub mod merge;
 pub mod progress;
 pub mod report;
+pub mod route;
 pub mod science;
+pub mod stream;
 pub mod vet;
 
 use clap::{Parser, Subcommand};

@@ -12,6 +12,8 @@
 //! ([`IndexPoints`]); every pair is then tested at a common epoch ([`test_pair`]).
 //! [`find_candidates_in_cell`] is the per-cell function: sources in, pairs out.
 
+use std::collections::BTreeMap;
+
 use rayon::prelude::*;
 
 use super::bayes::ln_bayes_factor_pair;
@@ -126,6 +128,86 @@ pub struct EpochStats {
     pub max_abs_dt_yr: f64,
     /// Fastest proper motion of any source, arcsec per year.
     pub fastest_arcsec_per_yr: f64,
+}
+
+/// The epoch statistics gathered source by source, as a streaming read meets
+/// them: distinct epochs with their counts (per catalog, sources without proper
+/// motion) and the fastest motion. [`EpochTally::finish`] gives exactly what
+/// [`EpochStats::of`] gives for the same sources.
+#[derive(Debug, Clone, Default)]
+pub struct EpochTally {
+    epochs: Vec<BTreeMap<i64, u64>>,
+    fastest_arcsec_per_yr: f64,
+}
+
+/// A key whose integer order is `f64::total_cmp`'s order.
+fn total_order_key(x: f64) -> i64 {
+    let bits = x.to_bits() as i64;
+    bits ^ ((((bits >> 63) as u64) >> 1) as i64)
+}
+
+fn from_total_order_key(k: i64) -> f64 {
+    f64::from_bits((k ^ ((((k >> 63) as u64) >> 1) as i64)) as u64)
+}
+
+impl EpochTally {
+    /// A tally for `catalogs` catalogs.
+    pub fn new(catalogs: usize) -> EpochTally {
+        EpochTally {
+            epochs: vec![BTreeMap::new(); catalogs],
+            fastest_arcsec_per_yr: 0.0,
+        }
+    }
+
+    /// Counts a source of catalog `c` as [`Sources::prepare`] leaves it: its
+    /// proper motion (NaN when none) and epoch.
+    pub fn add(&mut self, c: usize, pm_masyr: (f64, f64), epoch_yr: f64) {
+        if pm_masyr.0.is_finite() {
+            self.fastest_arcsec_per_yr = self
+                .fastest_arcsec_per_yr
+                .max(pm_masyr.0.hypot(pm_masyr.1) / 1000.0);
+        } else if epoch_yr.is_finite() {
+            *self.epochs[c].entry(total_order_key(epoch_yr)).or_insert(0) += 1;
+        }
+    }
+
+    /// The statistics at `reference_epoch_yr`.
+    pub fn finish(&self, reference_epoch_yr: f64) -> EpochStats {
+        let mut stats = EpochStats {
+            no_motion_epochs: vec![None; self.epochs.len()],
+            fastest_arcsec_per_yr: self.fastest_arcsec_per_yr,
+            ..EpochStats::default()
+        };
+        for (c, counts) in self.epochs.iter().enumerate() {
+            let (Some((&first, _)), Some((&last, _))) =
+                (counts.first_key_value(), counts.last_key_value())
+            else {
+                continue;
+            };
+            let n: u64 = counts.values().sum();
+            let mut seen = 0;
+            let mut median = first;
+            for (&k, &count) in counts {
+                if seen + count > n / 2 {
+                    median = k;
+                    break;
+                }
+                seen += count;
+            }
+            let (lo, hi, median) = (
+                from_total_order_key(first),
+                from_total_order_key(last),
+                from_total_order_key(median),
+            );
+            let spread = (hi - median).max(median - lo);
+            let far = (hi - reference_epoch_yr)
+                .abs()
+                .max((lo - reference_epoch_yr).abs());
+            stats.max_abs_dt_yr = stats.max_abs_dt_yr.max(far);
+            stats.no_motion_epochs[c] = Some((median, spread));
+        }
+        stats
+    }
 }
 
 impl EpochStats {

@@ -312,6 +312,13 @@ pub struct CellStats {
     pub margin_arcsec: f64,
     /// Cells matched again with a wider margin, per doubling.
     pub widened: Vec<usize>,
+    /// Cells left unfinished because they need a margin wider than
+    /// [`CellRun::max_margin_arcsec`] (ascending).
+    #[serde(skip)]
+    pub deferred: Vec<u64>,
+    /// The margin the deferred cells need next, arcsec.
+    #[serde(skip)]
+    pub deferred_margin_arcsec: f64,
 }
 
 /// Called with each cell's index and complete output; an error stops the run.
@@ -326,6 +333,13 @@ pub struct CellRun<'a> {
     pub finished: BTreeMap<u64, CellOutput>,
     /// Told of every cell matched here (e.g. to journal it).
     pub on_complete: Option<OnCellComplete<'a>>,
+    /// Margin of the first pass instead of [`first_margin_arcsec`] (a cell
+    /// taken up again where an earlier run deferred it).
+    pub first_margin_arcsec: Option<f64>,
+    /// The widest margin the sources given hold around every selected cell;
+    /// cells needing more are deferred, not matched (`None`: the sources are
+    /// the whole input).
+    pub max_margin_arcsec: Option<f64>,
 }
 
 /// Matches every cell of `sources` (the whole input, rank order) at
@@ -362,9 +376,11 @@ pub fn match_by_cells(
         subset,
         mut finished,
         on_complete,
+        first_margin_arcsec,
+        max_margin_arcsec,
     } = run;
     let mut pending: Option<Vec<u64>> = None;
-    let mut margin_arcsec = base_margin_arcsec;
+    let mut margin_arcsec = first_margin_arcsec.unwrap_or(base_margin_arcsec);
     loop {
         // Past a margin this wide, the cells left hold every source.
         let everything = margin_arcsec > WIDEST_MARGIN_DEG * 3600.0;
@@ -397,6 +413,11 @@ pub fn match_by_cells(
                     .as_ref()
                     .is_some_and(|p| p.binary_search(&c.id).is_ok())
             });
+        }
+        if max_margin_arcsec.is_some_and(|max| margin_arcsec > max) {
+            stats.deferred = todo.iter().map(|c| c.id).collect();
+            stats.deferred_margin_arcsec = margin_arcsec;
+            break;
         }
         let results: Vec<(u64, Option<CellOutput>)> = todo
             .par_iter()

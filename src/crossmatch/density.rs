@@ -24,9 +24,7 @@ pub fn footprint_area_sr(ra_deg: &[f64], dec_deg: &[f64]) -> f64 {
     if ra_deg.is_empty() {
         return 0.0;
     }
-    let cells = Occupancy::new(ra_deg, dec_deg);
-    let order = cells.footprint_order();
-    cells.occupied(order) as f64 * cell_area_sr(order)
+    Occupancy::new(ra_deg, dec_deg).footprint_area_sr()
 }
 
 /// The HEALPix order at which a catalog's occupied cells trace its footprint:
@@ -37,20 +35,50 @@ pub fn footprint_order(ra_deg: &[f64], dec_deg: &[f64]) -> u8 {
 }
 
 /// The sources' cells at [`MAX_ORDER`], sorted, from which the occupied cells of
-/// every coarser order follow by shifting (NESTED parents are p >> 2).
-struct Occupancy {
+/// every coarser order follow by shifting (NESTED parents are p >> 2). A
+/// streaming read collects them batch by batch ([`Occupancy::from_cells`]).
+pub struct Occupancy {
     cells: Vec<u64>,
 }
 
 impl Occupancy {
-    fn new(ra_deg: &[f64], dec_deg: &[f64]) -> Occupancy {
-        let mut cells: Vec<u64> = ra_deg
-            .iter()
-            .zip(dec_deg)
-            .map(|(&ra, &dec)| home_cell(MAX_ORDER, ra, dec))
-            .collect();
+    /// The occupancy of a set of positions.
+    pub fn new(ra_deg: &[f64], dec_deg: &[f64]) -> Occupancy {
+        Occupancy::from_cells(
+            ra_deg
+                .iter()
+                .zip(dec_deg)
+                .map(|(&ra, &dec)| home_cell(MAX_ORDER, ra, dec))
+                .collect(),
+        )
+    }
+
+    /// The occupancy of sources whose cells at [`MAX_ORDER`] are `cells` (any order).
+    pub fn from_cells(mut cells: Vec<u64>) -> Occupancy {
         cells.sort_unstable();
         Occupancy { cells }
+    }
+
+    /// The footprint area, steradians (0 without sources).
+    pub fn footprint_area_sr(&self) -> f64 {
+        if self.cells.is_empty() {
+            return 0.0;
+        }
+        let order = self.footprint_order();
+        self.occupied(order) as f64 * cell_area_sr(order)
+    }
+
+    /// The distinct occupied cells at `order` (at most [`MAX_ORDER`]), ascending.
+    pub fn cells_at(&self, order: u8) -> impl Iterator<Item = u64> + '_ {
+        let shift = 2 * u32::from(MAX_ORDER - order.min(MAX_ORDER));
+        let mut last = None;
+        self.cells.iter().filter_map(move |&c| {
+            let parent = c >> shift;
+            (last != Some(parent)).then(|| {
+                last = Some(parent);
+                parent
+            })
+        })
     }
 
     /// Distinct cells at `order` (at least 1).
@@ -68,7 +96,8 @@ impl Occupancy {
         count.max(1)
     }
 
-    fn footprint_order(&self) -> u8 {
+    /// See [`footprint_order`].
+    pub fn footprint_order(&self) -> u8 {
         let n = self.cells.len() as f64;
         let dense_enough = |order: u8| n / self.occupied(order) as f64 >= MIN_MEAN_OCCUPANCY;
         if !dense_enough(0) {

@@ -239,6 +239,16 @@ pub fn run_match_with_area(
     setup.run(config, CellRun::default())
 }
 
+/// A catalog's surface density for the prior: `rows` over `area_sr` (1 per
+/// steradian for an empty footprint, so its logarithm stays finite).
+pub fn density_per_sr(rows: usize, area_sr: f64) -> f64 {
+    if area_sr > 0.0 {
+        rows as f64 / area_sr
+    } else {
+        1.0
+    }
+}
+
 /// What every cell shares: the sources of the whole input in rank order, each
 /// catalog's density and the epoch statistics. Cells matched apart (a subset of
 /// the sky, a worker process, a resumed run) use the same setup, so they agree.
@@ -279,11 +289,7 @@ impl MatchSetup {
                 let area = area_sr.unwrap_or_else(|| {
                     footprint_area_sr(&sources.ra_deg[range.clone()], &sources.dec_deg[range])
                 });
-                if area > 0.0 {
-                    sources.catalog_len(c) as f64 / area
-                } else {
-                    1.0
-                }
+                density_per_sr(sources.catalog_len(c), area)
             })
             .collect();
         seconds.densities = t.elapsed().as_secs_f64();
@@ -293,6 +299,35 @@ impl MatchSetup {
             density_per_sr,
             epochs,
             rows: tables.iter().map(SourceTable::len).collect(),
+            sources,
+            seconds,
+        })
+    }
+
+    /// Ranks the sources of `tables`, a part of the input, with the densities,
+    /// epoch statistics and row counts of the whole input measured beforehand
+    /// (a streaming build's first pass).
+    ///
+    /// # Errors
+    /// As [`run_match`].
+    pub fn with_statistics(
+        tables: &[SourceTable],
+        config: &MatchConfig,
+        density_per_sr: Vec<f64>,
+        epochs: EpochStats,
+        rows: Vec<usize>,
+    ) -> Result<MatchSetup> {
+        let t = Instant::now();
+        let sources = Sources::prepare(tables, config)?;
+        let seconds = PhaseSeconds {
+            prepare: t.elapsed().as_secs_f64(),
+            ..PhaseSeconds::default()
+        };
+        Ok(MatchSetup {
+            ln_density_per_sr: density_per_sr.iter().map(|d| d.ln()).collect(),
+            density_per_sr,
+            epochs,
+            rows,
             sources,
             seconds,
         })

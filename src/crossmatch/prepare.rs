@@ -118,14 +118,14 @@ impl Sources {
                         table.name, &table.source_id[i]
                     )));
                 }
-                let (mut pmra, mut pmdec) = (table.pmra_cosdec_masyr[i], table.pmdec_masyr[i]);
                 let epoch = table.epoch_yr[i];
-                if !(pmra.is_finite() && pmdec.is_finite() && epoch.is_finite()) {
-                    (pmra, pmdec) = (f64::NAN, f64::NAN);
-                } else if epoch != config.reference_epoch_yr {
-                    (ra, dec) =
-                        propagate_deg(ra, dec, pmra, pmdec, config.reference_epoch_yr - epoch);
-                }
+                let (pmra, pmdec);
+                ((ra, dec), (pmra, pmdec)) = at_reference_epoch(
+                    (ra, dec),
+                    (table.pmra_cosdec_masyr[i], table.pmdec_masyr[i]),
+                    epoch,
+                    config.reference_epoch_yr,
+                );
                 let (a, b, pa) = (
                     table.err_major_arcsec[i],
                     table.err_minor_arcsec[i],
@@ -229,5 +229,26 @@ impl Sources {
     /// Number of sources of catalog `c`.
     pub fn catalog_len(&self, c: usize) -> usize {
         self.catalog_start[c + 1] - self.catalog_start[c]
+    }
+}
+
+/// A source's position at `reference_epoch_yr` and its proper motion: carried
+/// by its motion when it has one and a finite epoch, else where it was seen
+/// (and the motion NaN). Matching, partitioning and routing all place a source here.
+pub fn at_reference_epoch(
+    (ra, dec): (f64, f64),
+    (pmra, pmdec): (f64, f64),
+    epoch_yr: f64,
+    reference_epoch_yr: f64,
+) -> ((f64, f64), (f64, f64)) {
+    if !(pmra.is_finite() && pmdec.is_finite() && epoch_yr.is_finite()) {
+        ((ra, dec), (f64::NAN, f64::NAN))
+    } else if epoch_yr != reference_epoch_yr {
+        (
+            propagate_deg(ra, dec, pmra, pmdec, reference_epoch_yr - epoch_yr),
+            (pmra, pmdec),
+        )
+    } else {
+        ((ra, dec), (pmra, pmdec))
     }
 }

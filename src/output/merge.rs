@@ -34,7 +34,8 @@ impl<'a> Ranker<'a> {
         Ranker { names }
     }
 
-    fn catalog(&self, name: &str, origin: &Path) -> Result<usize> {
+    /// The plan position of catalog `name`.
+    pub(crate) fn catalog(&self, name: &str, origin: &Path) -> Result<usize> {
         self.names.iter().position(|n| n == name).ok_or_else(|| {
             Error::format(
                 origin,
@@ -44,7 +45,7 @@ impl<'a> Ranker<'a> {
     }
 
     /// The rank of `<catalog>:<source id>` (the longest catalog name that prefixes it).
-    fn object<'b>(&self, object_id: &'b str, origin: &Path) -> Result<Rank<'b>> {
+    pub(crate) fn object<'b>(&self, object_id: &'b str, origin: &Path) -> Result<Rank<'b>> {
         self.names
             .iter()
             .enumerate()

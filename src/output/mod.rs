@@ -5,6 +5,7 @@ pub mod atomic;
 pub mod csv;
 pub mod fits;
 pub mod journal;
+pub mod kway;
 pub mod merge;
 pub mod parquet;
 pub mod run_record;

@@ -1,0 +1,643 @@
+//! `build --memory-limit`: the build in bounded memory.
+//!
+//! 1. *Route* ([`super::route`]): every catalog is read batch by batch; rows go
+//!    to the sky cells (at the partition order) of their position at the
+//!    reference epoch, plus a copy to every cell within the routing margin `w`,
+//!    spilled to Arrow IPC files; row counts, footprints and epoch statistics
+//!    are gathered on the way.
+//! 2. *Match in groups*: runs of consecutive cells (NESTED order) holding up to
+//!    a row budget are read back with their margins and matched with the whole
+//!    input's densities and epoch statistics; each group writes its objects,
+//!    photometry, links and hard cases as a part, as `build --cells` would. A
+//!    cell whose groups of candidates reach past `w` is matched again from the
+//!    core rows of every cell within its wider margin, doubling until complete,
+//!    so it comes out as in a run holding everything.
+//! 3. *Join*: the parts are merged on the whole run's keys
+//!    ([`crate::output::kway`]), a chunk at a time, into the output files —
+//!    identical to those of a build without a limit.
+//!
+//! Not yet available with a limit (refused, naming the setting): astrometric
+//! offsets, false-match estimates and exports, which still need every row at once.
+
+use std::path::{Path, PathBuf};
+use std::sync::Arc;
+use std::time::Instant;
+
+use arrow::array::RecordBatch;
+use arrow::datatypes::Schema;
+
+use super::build::{
+    BuildOutcome, RunOptions, TableInputs, WRITE_CHUNK_OBJECTS, Written, band_slots, finish_folder,
+    sed_counts, summary, table_metadata, write_science, write_tables,
+};
+use super::progress::spinner;
+use super::route::{Routed, route};
+use crate::crossmatch::SourceTable;
+use crate::crossmatch::candidates::EpochStats;
+use crate::crossmatch::cells::{CellContext, CellRun, WIDEST_MARGIN_DEG, first_margin_arcsec};
+use crate::crossmatch::density::Occupancy;
+use crate::crossmatch::engine::{MatchResult, MatchSetup, MatchStats, density_per_sr};
+use crate::error::{Error, Result};
+use crate::output::kway::merge_parts;
+use crate::output::merge::{Ranker, TableKind};
+use crate::output::parquet::ParquetOutput;
+use crate::output::run_record::{InputRecord, OutputRecord, RunRecord};
+use crate::output::staging::Staging;
+use crate::plan::Plan;
+use crate::sed::SedStatus;
+use crate::sky::coverage::Coverage;
+
+/// Bytes of memory a row of a matched group takes at most, all structures and
+/// output buffers included (measured on the versus benchmark: about 0.7 kB per
+/// input row at the peak of a build holding everything; twice that for safety).
+const BYTES_PER_GROUP_ROW: u64 = 1400;
+
+/// Memory kept aside for the program, the first pass's gathered statistics and
+/// the merge's buffers, bytes.
+const FIXED_BYTES: u64 = 200 << 20;
+
+/// Parses a memory size: bytes, or a number with K, M, G or T (powers of 1024).
+///
+/// # Errors
+/// A message naming what is not a size.
+pub fn parse_memory_size(text: &str) -> std::result::Result<u64, String> {
+    let t = text.trim();
+    let bad = || format!("\"{text}\" is not a memory size like 2G, 512M or 3000000000");
+    let (number, scale) = match t.char_indices().last() {
+        Some((k, c)) if c.is_ascii_alphabetic() => {
+            let scale: u64 = match c.to_ascii_uppercase() {
+                'K' => 1 << 10,
+                'M' => 1 << 20,
+                'G' => 1 << 30,
+                'T' => 1 << 40,
+                _ => return Err(bad()),
+            };
+            (&t[..k], scale)
+        }
+        _ => (t, 1),
+    };
+    let value: f64 = number.trim().parse().map_err(|_| bad())?;
+    if !(value.is_finite() && value > 0.0) {
+        return Err(bad());
+    }
+    Ok((value * scale as f64) as u64)
+}
+
+/// Refuses plan settings the bounded-memory build does not do yet.
+fn check_supported(plan: &Plan) -> Result<()> {
+    let mut unsupported = Vec::new();
+    if plan.astrometric_reference.is_some() {
+        unsupported.push("an astrometric reference (offsets)");
+    }
+    if plan.false_matches {
+        unsupported.push("false_matches = true");
+    }
+    if !plan.exports.is_empty() {
+        unsupported.push("exports");
+    }
+    if unsupported.is_empty() {
+        return Ok(());
+    }
+    Err(Error::Usage(format!(
+        "plan {}: --memory-limit does not yet support {}; build without a limit, or leave these out of the plan",
+        plan.path.display(),
+        unsupported.join(", ")
+    )))
+}
+
+/// The spill folder beside the output folder, removed when dropped.
+struct SpillDir(PathBuf);
+
+impl SpillDir {
+    fn new(out_dir: &Path) -> Result<SpillDir> {
+        let name = out_dir
+            .file_name()
+            .map(|n| n.to_string_lossy().into_owned())
+            .unwrap_or_else(|| "out".to_string());
+        let parent = out_dir
+            .parent()
+            .filter(|p| !p.as_os_str().is_empty())
+            .unwrap_or(Path::new("."));
+        let dir = parent.join(format!(".{name}.fluxloom-spill"));
+        if dir.exists() {
+            std::fs::remove_dir_all(&dir).map_err(|e| Error::io(&dir, e))?;
+        }
+        std::fs::create_dir_all(&dir).map_err(|e| Error::io(&dir, e))?;
+        Ok(SpillDir(dir))
+    }
+}
+
+impl Drop for SpillDir {
+    fn drop(&mut self) {
+        let _ = std::fs::remove_dir_all(&self.0);
+    }
+}
+
+/// What the groups' matches add up to.
+struct Tally {
+    stats: MatchStats,
+    status_counts: Vec<[u64; SedStatus::ALL.len()]>,
+    parts: Vec<PathBuf>,
+}
+
+/// Runs the build of `plan` into `out_dir` within `limit_bytes` of memory.
+///
+/// # Errors
+/// As [`super::build::build_with`], and plan settings not yet supported.
+pub fn build_within(
+    plan: &Plan,
+    out_dir: &Path,
+    run: RunOptions,
+    limit_bytes: u64,
+) -> Result<BuildOutcome> {
+    check_supported(plan)?;
+    let started = Instant::now();
+    let quiet = run.quiet;
+    let mut matching = plan.matching.clone();
+    if let Some(order) = run.cell_order {
+        matching.partition_order = order;
+    }
+    let spill = SpillDir::new(out_dir)?;
+    let budget = limit_bytes.saturating_sub(FIXED_BYTES).max(64 << 20);
+    // The routing margin holds two doublings of the first pass without epoch
+    // slack; cells needing more are matched again on their own.
+    let margin_arcsec = run.routing_margin.unwrap_or_else(|| {
+        4.0 * first_margin_arcsec(CellContext::influence_radius_arcsec(
+            &matching,
+            &EpochStats::default(),
+        ))
+    });
+    let routed = route(
+        plan,
+        &matching,
+        margin_arcsec,
+        &spill.0,
+        run.spill_bytes.unwrap_or((budget / 4) as usize),
+        quiet,
+    )?;
+    let read_seconds = started.elapsed().as_secs_f64();
+    let rows: Vec<usize> = routed.catalogs.iter().map(|c| c.rows).collect();
+    let densities: Vec<f64> = routed
+        .catalogs
+        .iter()
+        .map(|c| {
+            let area = plan.area_sr.unwrap_or_else(|| {
+                Occupancy::from_cells(c.reference_cells.clone()).footprint_area_sr()
+            });
+            density_per_sr(c.rows, area)
+        })
+        .collect();
+    let epochs = routed.epochs.finish(matching.reference_epoch_yr);
+    let seds_written = plan.tables.objects || plan.tables.photometry;
+    let coverage: Vec<Coverage> = plan
+        .catalogs
+        .iter()
+        .zip(&routed.catalogs)
+        .filter(|_| seds_written)
+        .map(|(c, r)| match &c.coverage {
+            Some(path) => Coverage::from_moc_file(path),
+            None => Ok(coverage_of(c.coverage_order, &r.observed_cells)),
+        })
+        .collect::<Result<_>>()?;
+    let slots = band_slots(plan);
+    let shared = Shared {
+        plan,
+        matching: &matching,
+        routed: &routed,
+        densities,
+        epochs,
+        rows,
+        coverage: &coverage,
+        slots: &slots,
+        chunk_objects: run.write_chunk.unwrap_or(WRITE_CHUNK_OBJECTS),
+        spill: &spill.0,
+    };
+    let mut tally = Tally {
+        stats: MatchStats::default(),
+        status_counts: vec![[0u64; SedStatus::ALL.len()]; slots.len()],
+        parts: Vec::new(),
+    };
+    let group_rows = run
+        .group_rows
+        .unwrap_or((budget / BYTES_PER_GROUP_ROW).max(10_000));
+    let groups = cell_groups(&routed, run.cells.as_deref(), group_rows);
+    let bar = spinner("matching cell groups", quiet);
+    for (k, cells) in groups.iter().enumerate() {
+        bar.set_message(format!("matching cell group {} of {}", k + 1, groups.len()));
+        shared.match_group(cells, &mut tally)?;
+    }
+    bar.finish_and_clear();
+    let match_seconds = started.elapsed().as_secs_f64() - read_seconds;
+
+    let bar = spinner("joining the groups", quiet);
+    let mut staging = Staging::new(out_dir)?;
+    let outputs = join_parts(&mut staging, plan, &slots, &tally.parts)?;
+    bar.finish_and_clear();
+    let mut stats = tally.stats;
+    let base_margin = first_margin_arcsec(CellContext::influence_radius_arcsec(
+        &matching,
+        &shared.epochs,
+    ));
+    stats.sources = shared.rows.clone();
+    stats.density_per_deg2 = shared
+        .densities
+        .iter()
+        .map(|d| d / crate::crossmatch::engine::DEG2_PER_SR)
+        .collect();
+    stats.cells.order = matching.partition_order;
+    stats.cells.margin_arcsec = base_margin;
+    stats.cells.cells = routed.cell_rows.values().filter(|r| r.0 > 0).count();
+    stats.cells.emitted = match &run.cells {
+        Some(subset) => routed
+            .cell_rows
+            .iter()
+            .filter(|(id, r)| r.0 > 0 && subset.binary_search(id).is_ok())
+            .count(),
+        None => stats.cells.cells,
+    };
+    let result = MatchResult {
+        objects: Vec::new(),
+        links: Vec::new(),
+        stats,
+    };
+    let mut outputs = outputs;
+    outputs.extend(write_science(&mut staging, plan)?);
+    let mut record = RunRecord::new(
+        plan,
+        routed
+            .catalogs
+            .iter()
+            .zip(&plan.catalogs)
+            .map(|(r, c)| InputRecord {
+                catalog: c.name.clone(),
+                file: c.file.display().to_string(),
+                schema: c.schema.path.display().to_string(),
+                sha256: r.sha256.clone(),
+                bytes: r.bytes,
+                normalize: r.report.clone(),
+            })
+            .collect(),
+        &result,
+        Vec::new(),
+        Vec::new(),
+        sed_counts(&slots, &tally.status_counts),
+        outputs.clone(),
+    );
+    record.subset = run
+        .cells
+        .clone()
+        .map(|cells| crate::output::run_record::SubsetRecord {
+            order: matching.partition_order,
+            cells,
+            cells_with_sources: result.stats.cells.emitted,
+            cells_with_sources_in_all: result.stats.cells.cells,
+        });
+    let (files, report) = finish_folder(staging, plan, &record.to_json()?)?;
+    let total = started.elapsed().as_secs_f64();
+    let reports: Vec<_> = routed.catalogs.iter().map(|c| &c.report).collect();
+    Ok(BuildOutcome {
+        summary: summary(plan, out_dir, &reports, &record, &outputs)
+            + &format!(
+                "memory   limit {:.0} MB: {} cell groups of at most {} rows, routing margin {:.1}\"\n",
+                limit_bytes as f64 / 1048576.0,
+                groups.len(),
+                group_rows,
+                margin_arcsec
+            )
+            + &format!(
+                "time     route {read_seconds:.2} s, match groups {match_seconds:.2} s, join and commit {:.2} s, total {total:.2} s\n",
+                total - read_seconds - match_seconds
+            )
+            + &crate::report::warnings::build_lines(report.as_deref()),
+        files,
+    })
+}
+
+/// A coverage from the cells of a catalog's observed positions: at the plan's
+/// order when set, else at the footprint order (as a build holding everything does).
+fn coverage_of(order: Option<u8>, observed_cells: &[u64]) -> Coverage {
+    let mut coverage = Coverage::default();
+    match order {
+        Some(order) => {
+            for &c in observed_cells {
+                coverage.insert(order, c);
+            }
+        }
+        None => {
+            let occupancy = Occupancy::from_cells(observed_cells.to_vec());
+            let order = occupancy.footprint_order();
+            for c in occupancy.cells_at(order) {
+                coverage.insert(order, c);
+            }
+        }
+    }
+    coverage
+}
+
+/// Runs of consecutive cells with core rows (within `subset` when given),
+/// each holding at most `group_rows` rows with their margins (a single cell
+/// may hold more).
+fn cell_groups(routed: &Routed, subset: Option<&[u64]>, group_rows: u64) -> Vec<Vec<u64>> {
+    let mut groups: Vec<Vec<u64>> = Vec::new();
+    let mut current: Vec<u64> = Vec::new();
+    let mut held = 0u64;
+    for (&cell, &(core, margin)) in &routed.cell_rows {
+        if core == 0 || subset.is_some_and(|s| s.binary_search(&cell).is_err()) {
+            continue;
+        }
+        if !current.is_empty() && held + core + margin > group_rows {
+            groups.push(std::mem::take(&mut current));
+            held = 0;
+        }
+        current.push(cell);
+        held += core + margin;
+    }
+    if !current.is_empty() {
+        groups.push(current);
+    }
+    groups
+}
+
+/// What every group shares.
+struct Shared<'a> {
+    plan: &'a Plan,
+    matching: &'a crate::crossmatch::MatchConfig,
+    routed: &'a Routed,
+    densities: Vec<f64>,
+    epochs: EpochStats,
+    rows: Vec<usize>,
+    coverage: &'a [Coverage],
+    slots: &'a [crate::sed::BandSlot],
+    chunk_objects: usize,
+    spill: &'a Path,
+}
+
+impl Shared<'_> {
+    /// Matches the cells `cells` from their rows and margins, writes them as a
+    /// part, and takes up any cell that needs a wider margin on its own.
+    fn match_group(&self, cells: &[u64], tally: &mut Tally) -> Result<()> {
+        let batches = self
+            .routed
+            .catalogs
+            .iter()
+            .map(|c| c.rows_of(cells, true))
+            .collect::<Result<Vec<_>>>()?;
+        let deferred = self.match_part(
+            &batches,
+            CellRun {
+                subset: Some(cells.to_vec()),
+                max_margin_arcsec: Some(self.routed.margin_arcsec),
+                ..CellRun::default()
+            },
+            0,
+            tally,
+        )?;
+        let base = first_margin_arcsec(CellContext::influence_radius_arcsec(
+            self.matching,
+            &self.epochs,
+        ));
+        for (cell, mut margin) in deferred {
+            loop {
+                let reach = self.cells_within(cell, margin);
+                let everything = margin > WIDEST_MARGIN_DEG * 3600.0;
+                let batches = self
+                    .routed
+                    .catalogs
+                    .iter()
+                    .map(|c| match everything {
+                        true => c.rows_of(&self.all_cells(), false),
+                        false => c.rows_of(&reach, false),
+                    })
+                    .collect::<Result<Vec<_>>>()?;
+                let level = (margin / base).log2().round().max(0.0) as usize;
+                let again = self.match_part(
+                    &batches,
+                    CellRun {
+                        subset: Some(vec![cell]),
+                        first_margin_arcsec: Some(margin),
+                        max_margin_arcsec: (!everything).then_some(margin),
+                        ..CellRun::default()
+                    },
+                    level,
+                    tally,
+                )?;
+                match again.first() {
+                    Some(&(_, next)) => margin = next,
+                    None => break,
+                }
+            }
+        }
+        Ok(())
+    }
+
+    /// Every cell with rows.
+    fn all_cells(&self) -> Vec<u64> {
+        self.routed.cell_rows.keys().copied().collect()
+    }
+
+    /// The cells whose rows may lie within `margin_arcsec` of cell `cell`.
+    fn cells_within(&self, cell: u64, margin_arcsec: f64) -> Vec<u64> {
+        let order = self.routed.order;
+        let (lon, lat) = cdshealpix::nested::center(order, cell);
+        let centre = crate::sky::vector::radec_deg_to_vec(lon.to_degrees(), lat.to_degrees());
+        let radius_deg = cdshealpix::nested::vertices(order, cell)
+            .iter()
+            .map(|&(vlon, vlat)| {
+                crate::sky::separation::separation_vec_rad(
+                    centre,
+                    crate::sky::vector::radec_deg_to_vec(vlon.to_degrees(), vlat.to_degrees()),
+                )
+                .to_degrees()
+            })
+            .fold(0.0f64, f64::max)
+            * 1.1;
+        let radius_rad = (radius_deg + margin_arcsec / 3600.0).to_radians();
+        let mut cells: Vec<u64> = cdshealpix::nested::get(order)
+            .cone_coverage_approx(lon, lat, radius_rad)
+            .flat_iter()
+            .filter(|id| self.routed.cell_rows.contains_key(id))
+            .collect();
+        cells.sort_unstable();
+        cells.dedup();
+        cells
+    }
+
+    /// Matches the rows `batches` (one per catalog) as `cells` says, writes
+    /// the finished cells as a part, and returns the cells deferred with the
+    /// margin they need next. `level` is the doubling the run starts at.
+    fn match_part(
+        &self,
+        batches: &[RecordBatch],
+        cells: CellRun,
+        level: usize,
+        tally: &mut Tally,
+    ) -> Result<Vec<(u64, f64)>> {
+        let tables: Vec<SourceTable> = self
+            .plan
+            .catalogs
+            .iter()
+            .zip(batches)
+            .map(|(c, b)| {
+                SourceTable::from_batches(&c.schema.survey, std::slice::from_ref(b), &c.file)
+            })
+            .collect::<Result<_>>()?;
+        let setup = MatchSetup::with_statistics(
+            &tables,
+            self.matching,
+            self.densities.clone(),
+            self.epochs.clone(),
+            self.rows.clone(),
+        )?;
+        let result = setup.run(self.matching, cells)?;
+        let deferred_margin = result.stats.cells.deferred_margin_arcsec;
+        let deferred: Vec<(u64, f64)> = result
+            .stats
+            .cells
+            .deferred
+            .iter()
+            .map(|&c| (c, deferred_margin))
+            .collect();
+        absorb(&mut tally.stats, &result.stats, level);
+        if result.objects.is_empty() && result.links.is_empty() {
+            return Ok(deferred);
+        }
+        let dir = self.spill.join(format!("part{}", tally.parts.len()));
+        std::fs::create_dir_all(&dir).map_err(|e| Error::io(&dir, e))?;
+        let Written { status_counts, .. } = write_tables(
+            &mut |name| dir.join(name),
+            &TableInputs {
+                plan: self.plan,
+                result: &result,
+                tables: &tables,
+                matched: &tables,
+                normalized: batches,
+                coverage: self.coverage,
+                slots: self.slots,
+                chunk_objects: self.chunk_objects,
+            },
+        )?;
+        for (total, part) in tally.status_counts.iter_mut().zip(status_counts) {
+            for (t, p) in total.iter_mut().zip(part) {
+                *t += p;
+            }
+        }
+        tally.parts.push(dir);
+        Ok(deferred)
+    }
+}
+
+/// Adds a part's match counts to the whole run's; its widenings start at
+/// doubling `level`.
+fn absorb(total: &mut MatchStats, part: &MatchStats, level: usize) {
+    total.candidates += part.candidates;
+    total.groups += part.groups;
+    total.largest_group = total.largest_group.max(part.largest_group);
+    total.approximate_groups += part.approximate_groups;
+    total.objects += part.objects;
+    total.objects_not_primary += part.objects_not_primary;
+    for (k, v) in &part.objects_by_members {
+        *total.objects_by_members.entry(*k).or_insert(0) += v;
+    }
+    for (k, v) in &part.flags {
+        *total.flags.entry(k.clone()).or_insert(0) += v;
+    }
+    for (j, n) in part.cells.widened.iter().enumerate() {
+        let at = level + j;
+        if total.cells.widened.len() <= at {
+            total.cells.widened.resize(at + 1, 0);
+        }
+        total.cells.widened[at] += n;
+    }
+}
+
+/// Joins the tables of the parts into `staging`, in the whole run's order and
+/// with a build's chunking, and returns their records.
+fn join_parts(
+    staging: &mut Staging,
+    plan: &Plan,
+    slots: &[crate::sed::BandSlot],
+    parts: &[PathBuf],
+) -> Result<Vec<OutputRecord>> {
+    let names: Vec<String> = plan.catalogs.iter().map(|c| c.name.clone()).collect();
+    let ranker = Ranker::new(&names);
+    let metadata = table_metadata(plan, slots)?;
+    let mut outputs = Vec::new();
+    let which = plan.tables;
+    for (file, kind, chunk_rows, wanted) in [
+        (
+            "objects.parquet",
+            TableKind::PerObject,
+            WRITE_CHUNK_OBJECTS,
+            which.objects,
+        ),
+        (
+            "photometry.parquet",
+            TableKind::PerObject,
+            WRITE_CHUNK_OBJECTS * slots.len().max(1),
+            which.photometry,
+        ),
+        (
+            "links.parquet",
+            TableKind::Links,
+            WRITE_CHUNK_OBJECTS,
+            which.links,
+        ),
+        (
+            "hard_sources.parquet",
+            TableKind::HardSources,
+            usize::MAX,
+            which.objects,
+        ),
+    ] {
+        if !wanted {
+            continue;
+        }
+        let files: Vec<PathBuf> = parts.iter().map(|p| p.join(file)).collect();
+        let path = staging.path(file);
+        let mut writer: Option<ParquetOutput> = None;
+        let schema = merge_parts(&files, kind, &ranker, chunk_rows, |chunk| {
+            let schema = Arc::new(Schema::new(chunk.schema().fields().clone()));
+            let chunk = chunk
+                .with_schema(schema.clone())
+                .map_err(|e| Error::columnar(&path, e))?;
+            if writer.is_none() {
+                writer = Some(ParquetOutput::create(&path, schema, metadata.clone())?);
+            }
+            writer.as_mut().map_or(Ok(()), |w| w.write(&chunk))
+        })?;
+        let writer = match writer {
+            Some(w) => w,
+            None => {
+                // No rows anywhere: the empty table of a part, or of a build without rows.
+                let schema = match schema {
+                    Some(s) => Arc::new(Schema::new(s.fields().clone())),
+                    None => empty_schema(plan, slots, file)?,
+                };
+                ParquetOutput::create(&path, schema, metadata.clone())?
+            }
+        };
+        outputs.push(OutputRecord {
+            file: file.to_string(),
+            rows: writer.finish()?,
+        });
+    }
+    Ok(outputs)
+}
+
+/// The schema of table `file` when no part wrote one.
+fn empty_schema(
+    plan: &Plan,
+    slots: &[crate::sed::BandSlot],
+    file: &str,
+) -> Result<arrow::datatypes::SchemaRef> {
+    use crate::output::tables::{hard_sources_batch, links_batch, objects_batch, photometry_batch};
+    let tables: Vec<SourceTable> = Vec::new();
+    let epoch = plan.matching.reference_epoch_yr;
+    let batch = match file {
+        "objects.parquet" => objects_batch(&[], &[], slots, &tables, epoch)?,
+        "photometry.parquet" => photometry_batch(&[], &[], slots, &tables)?,
+        "links.parquet" => links_batch(&[], &tables)?,
+        _ => hard_sources_batch(&[], &[], &tables, epoch)?,
+    };
+    Ok(Arc::new(Schema::new(batch.schema().fields().clone())))
+}

@@ -1,0 +1,170 @@
+//! A build within a memory limit (rows routed to sky cells through spill
+//! files, matched a group of cells at a time, the groups' parts merged) writes
+//! the files of a build holding everything, whatever the groups, the spills,
+//! the routing margin, the cell order or the threads.
+
+use std::path::{Path, PathBuf};
+use std::process::Command;
+
+mod common;
+
+use common::assert_same_files;
+
+/// The demo plan without the settings a limited build refuses (offsets, false
+/// matches, exports), its files named absolutely, writing into `out`.
+fn plan_in(dir: &Path, out: &Path) -> PathBuf {
+    let demo = std::fs::canonicalize("demo_catalogs/fl1").unwrap();
+    let text = std::fs::read_to_string(demo.join("plan.toml")).unwrap();
+    let mut plan = String::new();
+    for line in text.lines() {
+        let line = if line.starts_with("astrometric_reference") || line.starts_with("exports") {
+            String::new()
+        } else if line.starts_with("correct_offsets") {
+            "correct_offsets = false\nfalse_matches = false".to_string()
+        } else if line.starts_with("folder") {
+            format!("folder = \"{}\"", out.display())
+        } else {
+            let mut l = line.to_string();
+            for key in ["file", "schema", "coverage"] {
+                let prefix = format!("{key} = \"");
+                if l.starts_with(&prefix) {
+                    l = l.replacen(&prefix, &format!("{prefix}{}/", demo.display()), 1);
+                }
+            }
+            l
+        };
+        plan.push_str(&line);
+        plan.push('\n');
+    }
+    let path = dir.join("plan.toml");
+    std::fs::write(&path, plan).unwrap();
+    path
+}
+
+fn build(plan: &Path, out: &Path, extra: &[&str]) -> std::process::Output {
+    Command::new(env!("CARGO_BIN_EXE_fluxloom"))
+        .args(["--quiet", "build"])
+        .arg(plan)
+        .arg("--out")
+        .arg(out)
+        .args(extra)
+        .output()
+        .expect("fluxloom runs")
+}
+
+fn built(plan: &Path, out: &Path, extra: &[&str]) -> String {
+    let o = build(plan, out, extra);
+    assert!(
+        o.status.success(),
+        "build {extra:?}: {}",
+        String::from_utf8_lossy(&o.stderr)
+    );
+    String::from_utf8(o.stdout).unwrap()
+}
+
+#[test]
+fn limited_builds_write_the_files_of_an_unlimited_build() {
+    let dir = tempfile::tempdir().unwrap();
+    let whole = dir.path().join("whole");
+    let plan = plan_in(dir.path(), &whole);
+    built(&plan, &whole, &["--cell-order", "10"]);
+    let cases: [&[&str]; 5] = [
+        // One group, one spill per catalog.
+        &["--memory-limit", "1G"],
+        // Many groups and many spilled runs per catalog, coarse and fine cells.
+        &[
+            "--memory-limit",
+            "300M",
+            "--group-rows",
+            "300",
+            "--spill-bytes",
+            "200000",
+            "--cell-order",
+            "9",
+        ],
+        &[
+            "--memory-limit",
+            "300M",
+            "--group-rows",
+            "1000",
+            "--spill-bytes",
+            "100000",
+            "--cell-order",
+            "11",
+            "--threads",
+            "1",
+        ],
+        // A routing margin narrower than the first pass's: every cell is matched
+        // again from the rows of the cells around it.
+        &[
+            "--memory-limit",
+            "300M",
+            "--group-rows",
+            "500",
+            "--cell-order",
+            "10",
+            "--routing-margin",
+            "1",
+        ],
+        // Between one and two doublings: only the widened cells are taken up again.
+        &[
+            "--memory-limit",
+            "300M",
+            "--group-rows",
+            "500",
+            "--cell-order",
+            "10",
+            "--routing-margin",
+            "30",
+        ],
+    ];
+    for (k, extra) in cases.iter().enumerate() {
+        let out = dir.path().join(format!("limited{k}"));
+        let summary = built(&plan, &out, extra);
+        assert!(summary.contains("cell groups of at most"), "{summary}");
+        assert_same_files(&out, &whole, &format!("limited build {extra:?}"));
+        let spill = dir.path().join(format!(".limited{k}.fluxloom-spill"));
+        assert!(
+            !spill.exists(),
+            "the spill folder is removed: {}",
+            spill.display()
+        );
+    }
+}
+
+#[test]
+fn a_limited_build_of_some_cells_writes_that_part() {
+    let dir = tempfile::tempdir().unwrap();
+    let part = dir.path().join("part");
+    let plan = plan_in(dir.path(), &part);
+    let cells = ["--cell-order", "9", "--cells", "531891-531900"];
+    built(&plan, &part, &cells);
+    let limited = dir.path().join("limited");
+    let mut extra = cells.to_vec();
+    extra.extend(["--memory-limit", "300M", "--group-rows", "400"]);
+    built(&plan, &limited, &extra);
+    assert_same_files(&limited, &part, "limited subset");
+}
+
+#[test]
+fn settings_a_limited_build_cannot_honour_are_named() {
+    let dir = tempfile::tempdir().unwrap();
+    let o = build(
+        Path::new("demo_catalogs/fl1/plan.toml"),
+        &dir.path().join("out"),
+        &["--memory-limit", "1G"],
+    );
+    assert!(!o.status.success());
+    let err = String::from_utf8_lossy(&o.stderr);
+    assert!(
+        err.contains("--memory-limit does not yet support an astrometric reference (offsets), false_matches = true, exports"),
+        "{err}"
+    );
+    assert!(!dir.path().join("out").exists());
+    let o = build(
+        Path::new("demo_catalogs/fl1/plan.toml"),
+        &dir.path().join("out"),
+        &["--memory-limit", "lots"],
+    );
+    assert!(String::from_utf8_lossy(&o.stderr).contains("\"lots\" is not a memory size like 2G"));
+}
