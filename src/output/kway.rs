@@ -6,9 +6,10 @@
 use std::fs::File;
 use std::path::{Path, PathBuf};
 
-use arrow::array::{Array, AsArray, RecordBatch, StringArray};
+use arrow::array::{Array, ArrayData, AsArray, RecordBatch, StringArray, make_array};
 use arrow::compute::interleave_record_batch;
 use arrow::datatypes::SchemaRef;
+use arrow::error::ArrowError;
 use arrow::record_batch::RecordBatchReader;
 use parquet::arrow::arrow_reader::{ParquetRecordBatchReader, ParquetRecordBatchReaderBuilder};
 
@@ -160,6 +161,32 @@ fn sift_down(heap: &mut [usize], cursors: &[Cursor], mut i: usize) {
     }
 }
 
+/// The batch with every validity buffer that marks no null dropped, as the
+/// builders of a build leave them: the Parquet writer splits pages of arrays
+/// with and without one at different rows, so the files would differ.
+fn without_empty_nulls(batch: &RecordBatch) -> std::result::Result<RecordBatch, ArrowError> {
+    fn strip(data: ArrayData) -> std::result::Result<ArrayData, ArrowError> {
+        let empty = data.nulls().is_some_and(|n| n.null_count() == 0);
+        let children: Vec<ArrayData> = data
+            .child_data()
+            .iter()
+            .cloned()
+            .map(strip)
+            .collect::<std::result::Result<_, _>>()?;
+        let mut builder = data.into_builder().child_data(children);
+        if empty {
+            builder = builder.nulls(None);
+        }
+        builder.build()
+    }
+    let columns = batch
+        .columns()
+        .iter()
+        .map(|c| strip(c.to_data()).map(make_array))
+        .collect::<std::result::Result<Vec<_>, _>>()?;
+    RecordBatch::try_new(batch.schema(), columns)
+}
+
 /// Merges the Parquet files `parts` (each in the whole run's order for `kind`)
 /// and hands `sink` the joined rows in chunks of `chunk_rows` (the last
 /// shorter). Hard-source rows repeated across parts are kept once. Returns the
@@ -212,6 +239,7 @@ pub fn merge_parts(
         }
         let refs: Vec<&RecordBatch> = held.iter().collect();
         let chunk = interleave_record_batch(&refs, picks)
+            .and_then(|c| without_empty_nulls(&c))
             .map_err(|e| Error::columnar(Path::new("merged rows"), e))?;
         held.clear();
         picks.clear();
