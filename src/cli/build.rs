@@ -303,14 +303,7 @@ pub fn build_with(plan: &Plan, out_dir: &Path, run: RunOptions) -> Result<BuildO
         plan,
         read.iter()
             .zip(&plan.catalogs)
-            .map(|(r, c)| InputRecord {
-                catalog: c.name.clone(),
-                file: c.file.display().to_string(),
-                schema: c.schema.path.display().to_string(),
-                sha256: r.sha256.clone(),
-                bytes: r.bytes,
-                normalize: r.report.clone(),
-            })
+            .map(|(r, c)| input_record(c, &r.sha256, r.bytes, &r.report))
             .collect(),
         &result,
         offsets,
@@ -341,6 +334,23 @@ pub fn build_with(plan: &Plan, out_dir: &Path, run: RunOptions) -> Result<BuildO
             + &crate::report::warnings::build_lines(report.as_deref()),
         files,
     })
+}
+
+/// The run.json record of one input catalog.
+pub(crate) fn input_record(
+    c: &crate::plan::PlanCatalog,
+    sha256: &str,
+    bytes: u64,
+    report: &NormalizeReport,
+) -> InputRecord {
+    InputRecord {
+        catalog: c.name.clone(),
+        file: c.file.display().to_string(),
+        schema: c.schema.path.display().to_string(),
+        sha256: sha256.to_string(),
+        bytes,
+        normalize: report.clone(),
+    }
 }
 
 /// The SED's band slots: every band of every catalog, in plan order.

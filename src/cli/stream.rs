@@ -28,7 +28,7 @@ use arrow::datatypes::Schema;
 
 use super::build::{
     BuildOutcome, RunOptions, TableInputs, WRITE_CHUNK_OBJECTS, Written, band_slots, finish_folder,
-    sed_counts, summary, table_metadata, write_science, write_tables,
+    input_record, sed_counts, summary, table_metadata, write_science, write_tables,
 };
 use super::progress::spinner;
 use super::route::{Routed, route};
@@ -41,7 +41,7 @@ use crate::error::{Error, Result};
 use crate::output::kway::merge_parts;
 use crate::output::merge::{Ranker, TableKind};
 use crate::output::parquet::ParquetOutput;
-use crate::output::run_record::{InputRecord, OutputRecord, RunRecord};
+use crate::output::run_record::{OutputRecord, RunRecord};
 use crate::output::staging::Staging;
 use crate::plan::Plan;
 use crate::sed::SedStatus;
@@ -268,14 +268,7 @@ pub fn build_within(
             .catalogs
             .iter()
             .zip(&plan.catalogs)
-            .map(|(r, c)| InputRecord {
-                catalog: c.name.clone(),
-                file: c.file.display().to_string(),
-                schema: c.schema.path.display().to_string(),
-                sha256: r.sha256.clone(),
-                bytes: r.bytes,
-                normalize: r.report.clone(),
-            })
+            .map(|(r, c)| input_record(c, &r.sha256, r.bytes, &r.report))
             .collect(),
         &result,
         Vec::new(),
