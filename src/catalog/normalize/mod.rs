@@ -1691,7 +1691,7 @@ error = "e"
     fn empty_means_not_detected_where_the_band_covers() {
         let dir = tempfile::tempdir().unwrap();
         // Order-0 NESTED cells 0-3 are the northern cap: Dec +60 in, Dec -60 out
-        // (Górski et al. 2005, Fig. 3 pixel layout).
+        // (the base-pixel numbering of Górski et al. 2005, ApJ 622, 759; from memory).
         std::fs::write(dir.path().join("band_moc.txt"), "0/0-3\n").unwrap();
         let text = format!("{BASE}depth = 0.05\nempty = \"not_detected\"\n");
         let everywhere = schema(&text);
