@@ -510,7 +510,7 @@ mod tests {
     /// Writes a schema and a plan into a temporary folder; returns the plan path.
     fn setup(plan: &str) -> (tempfile::TempDir, PathBuf) {
         let dir = tempfile::tempdir().unwrap();
-        let schema = "survey = \"opt\"\nformat = \"csv\"\nid = \"id\"\n[position]\nra = \"ra\"\ndec = \"dec\"\nerror = { kind = \"fixed\", arcsec = 0.1 }\n[epoch]\nyear = 2010.0\n[[band]]\nband = \"jc_v\"\nvalue = \"v\"\nunit = \"vega_mag\"\n";
+        let schema = "survey = \"opt\"\nformat = \"csv\"\nid = \"id\"\n[position]\nra = \"ra\"\ndec = \"dec\"\nerror = { kind = \"fixed\", arcsec = 0.1 }\n[epoch]\nyear = 2010.0\n[[band]]\nband = \"jc_v\"\nvalue = \"v\"\nunit = \"vega_mag\"\nno_error = \"unknown\"\n";
         std::fs::write(dir.path().join("opt.toml"), schema).unwrap();
         std::fs::write(
             dir.path().join("nir.toml"),

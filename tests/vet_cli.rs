@@ -177,6 +177,28 @@ fn a_missing_column_names_the_schema_line() {
 }
 
 #[test]
+fn a_flag_position_beyond_every_value_names_the_schema_line() {
+    // The demo's quality strings have three letters (J, H, Ks); a fourth is read nowhere.
+    let dir = tempfile::tempdir().unwrap();
+    let schema = schema_in(dir.path(), |t| {
+        t.replace(
+            "values = [\"U\"], char = 3 }",
+            "values = [\"U\"], char = 4 }",
+        )
+    });
+    let csv = repo().join(DEMO_CSV);
+    let run = fluxloom(&["vet", s(&csv), "--schema", s(&schema)]);
+    assert_error(
+        &run,
+        &format!(
+            "fluxloom: error: {}:44: flag column \"qual\": char 4 is beyond every value in {}; the longest value found is \"AAA\" (3 characters)",
+            schema.display(),
+            csv.display()
+        ),
+    );
+}
+
+#[test]
 fn an_unparsable_value_names_row_column_and_text_and_can_be_skipped() {
     let dir = tempfile::tempdir().unwrap();
     let text = demo_text()

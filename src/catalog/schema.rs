@@ -27,8 +27,16 @@
 //! limit = { kind = "flag", column = "qual", values = ["U"], char = 1 }
 //! ```
 //!
+//! Further keys (all in the README's schema reference): flag tests on bits of
+//! integer columns (`bit = 3`, `mask = 0x0c`, `all`) wherever a flag is tested;
+//! a band's `saturated` test, `snr` column, `no_error` policy (required for a
+//! magnitude band without `error` or `snr`), `empty = "not_detected"` with an
+//! optional `coverage` MOC; a `[forced]` table marking forced-photometry rows;
+//! a position error of kind `snr`; and `[position] extended` sizes or flags.
+//!
 //! Checking the schema against an actual file (do the named columns exist, do
-//! they hold numbers) happens when the file is read, in [`super::normalize`].
+//! they hold numbers, does every flag `char` position exist) happens when the
+//! file is read, in [`super::normalize`].
 
 use std::path::{Path, PathBuf};
 
@@ -163,6 +171,164 @@ pub enum PositionError {
         /// Unit of both.
         unit: AngleUnit,
     },
+    /// A circular error from one band's signal-to-noise ratio, the survey's PSF
+    /// FWHM and a floor (FIELD notes §5.12, common practice):
+    /// `σ = sqrt((0.600561 θ_FWHM / SNR)² + σ_floor²)`, through
+    /// [`crate::crossmatch::position_error::centroid_sigma_arcsec`].
+    SignalToNoise {
+        /// Band id (one of the schema's bands) whose S/N is used.
+        band: String,
+        /// PSF FWHM θ, arcsec.
+        fwhm_arcsec: f64,
+        /// Per-axis systematic floor, arcsec (≥ 0).
+        floor_arcsec: f64,
+        /// Rows whose S/N in the band is unknown or below this are given the
+        /// error at this S/N: a source in the catalog was found at least this far
+        /// above its noise in some band.
+        min_snr: f64,
+    },
+}
+
+/// Default `min_snr` of a position error of kind `snr`: 3, the detection
+/// threshold most surveys quote (common practice).
+pub const DEFAULT_POSITION_MIN_SNR: f64 = 3.0;
+
+/// How the size of an extended source is stated in its column.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum SizeKind {
+    /// A half-light (effective) radius.
+    HalfLight,
+    /// The FWHM of a Gaussian profile (half-light radius = FWHM / 2).
+    GaussianFwhm,
+    /// The scale length h of an exponential disc (half-light radius = 1.678347 h).
+    ExponentialScale,
+}
+
+/// Extended sources: a size column and/or an extended flag, growing the
+/// positional error by `σ_ext = c · r_half` in quadrature (FIELD notes §5.13,
+/// common practice), through
+/// [`crate::crossmatch::position_error::add_extent_arcsec`].
+#[derive(Debug, Clone, PartialEq)]
+pub struct Extended {
+    /// Size column, its unit and what it measures.
+    pub size: Option<(String, AngleUnit, SizeKind)>,
+    /// Flag marking extended rows; with a size column only flagged rows use it.
+    pub flag: Option<FlagTest>,
+    /// Half-light radius, arcsec, given to extended rows without a size value.
+    pub typical_arcsec: Option<f64>,
+    /// `c` of `σ_ext = c · r_half`.
+    pub coeff: f64,
+}
+
+impl Extended {
+    /// The half-light radius in arcsec of a size value in the column's unit and kind.
+    pub fn half_light_arcsec(unit: AngleUnit, kind: SizeKind, value: f64) -> f64 {
+        use crate::crossmatch::position_error as pe;
+        let arcsec = value * unit.to_arcsec();
+        match kind {
+            SizeKind::HalfLight => arcsec,
+            SizeKind::GaussianFwhm => pe::half_light_from_gaussian_fwhm_arcsec(arcsec),
+            SizeKind::ExponentialScale => pe::half_light_from_exponential_scale_arcsec(arcsec),
+        }
+    }
+}
+
+/// A test on a flag column of a row: text values (or one character of a
+/// multi-band flag string), or bits of an integer column.
+#[derive(Debug, Clone, PartialEq)]
+pub enum FlagTest {
+    /// The column (or its character at the 1-based `char_position`) is one of `values`.
+    Text {
+        /// Flag column.
+        column: String,
+        /// Values that pass the test.
+        values: Vec<String>,
+        /// 1-based character position inside a multi-band flag string.
+        char_position: Option<usize>,
+    },
+    /// Bits of an integer column: any of the bits of `mask` set (all of them with `all`).
+    Bits {
+        /// Integer flag column.
+        column: String,
+        /// The bits tested (bit k is 2^k, counted from 0 at the least significant).
+        mask: u64,
+        /// True: every bit of `mask` must be set; false: any one is enough.
+        all: bool,
+    },
+}
+
+impl FlagTest {
+    /// The column the test reads.
+    pub fn column(&self) -> &str {
+        match self {
+            FlagTest::Text { column, .. } | FlagTest::Bits { column, .. } => column,
+        }
+    }
+
+    /// A short readable form, e.g. `qual char 2 in [S]` or `flags bit 3 set`.
+    pub fn describe(&self) -> String {
+        match self {
+            FlagTest::Text {
+                column,
+                values,
+                char_position,
+            } => match char_position {
+                Some(p) => format!("{column} char {p} in [{}]", values.join(", ")),
+                None => format!("{column} in [{}]", values.join(", ")),
+            },
+            FlagTest::Bits { column, mask, all } => describe_bits(column, *mask, *all),
+        }
+    }
+}
+
+/// `flags bit 3 set`, `flags has any of bits 0xc`, `flags has all of bits 0x5`.
+fn describe_bits(column: &str, mask: u64, all: bool) -> String {
+    if mask.is_power_of_two() {
+        format!("{column} bit {} set", mask.trailing_zeros())
+    } else if all {
+        format!("{column} has all of bits {mask:#x}")
+    } else {
+        format!("{column} has any of bits {mask:#x}")
+    }
+}
+
+/// Rows measured by forced photometry (at positions taken from elsewhere),
+/// marked by a flag column.
+#[derive(Debug, Clone, PartialEq)]
+pub struct ForcedRows {
+    /// The test that marks a row forced.
+    pub test: FlagTest,
+    /// S/N threshold: a forced row's value below it becomes an upper limit.
+    pub below: f64,
+    /// n of the limit max(F, 0) + n σ.
+    pub n: f64,
+}
+
+/// Default S/N threshold of forced rows (`[forced] below`): 3 (FIELD notes §1.6,
+/// "Treat S/N < 3 (or < 5, configurable) as non-detection"; common practice).
+pub const DEFAULT_FORCED_BELOW: f64 = 3.0;
+/// Default n of forced rows' limits max(F, 0) + n σ: 3 (common practice).
+pub const DEFAULT_FORCED_N: f64 = 3.0;
+
+/// What a magnitude band without an error column says about its errors.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum NoErrorPolicy {
+    /// Values are measurements whose errors are unknown (`no_error = "unknown"`).
+    Unknown,
+    /// Every value is an upper limit (`no_error = "limit"`).
+    Limit,
+}
+
+/// A flag rule reading one character of a flag string, kept to check against
+/// the data that the position exists.
+#[derive(Debug, Clone, PartialEq)]
+pub struct CharRule {
+    /// Flag column.
+    pub column: String,
+    /// 1-based character position.
+    pub position: usize,
+    /// Schema line of the rule.
+    pub line: usize,
 }
 
 /// The epoch of the positions.
@@ -214,6 +380,16 @@ pub enum LimitMarker {
         /// 1-based character position inside a multi-band flag string.
         char_position: Option<usize>,
     },
+    /// Bits of an integer flag column: when any (with `all`, every) bit of `mask`
+    /// is set, the value column holds an upper limit.
+    Bits {
+        /// Integer flag column.
+        column: String,
+        /// The bits tested (bit k is 2^k, from 0).
+        mask: u64,
+        /// Every bit of `mask` must be set.
+        all: bool,
+    },
     /// Measurements with flux / error below `below` become upper limits by `rule`.
     SignalToNoise {
         /// S/N threshold.
@@ -248,6 +424,15 @@ pub enum QualityRule {
         /// 1-based character position inside a multi-band flag string.
         char_position: Option<usize>,
     },
+    /// Reject when any (with `all`, every) bit of `mask` is set in the integer column.
+    Bits {
+        /// Integer flag column.
+        column: String,
+        /// The bits tested (bit k is 2^k, from 0).
+        mask: u64,
+        /// Every bit of `mask` must be set.
+        all: bool,
+    },
     /// Reject when the numeric column is below `min` or above `max`.
     Range {
         /// Numeric column.
@@ -266,6 +451,7 @@ impl QualityRule {
             QualityRule::Reject { column, values, .. } => {
                 format!("{column} in [{}]", values.join(", "))
             }
+            QualityRule::Bits { column, mask, all } => describe_bits(column, *mask, *all),
             QualityRule::Range { column, min, max } => match (min, max) {
                 (Some(lo), Some(hi)) => format!("{column} outside [{lo}, {hi}]"),
                 (Some(lo), None) => format!("{column} below {lo}"),
@@ -278,7 +464,9 @@ impl QualityRule {
     /// The column the rule reads.
     pub fn column(&self) -> &str {
         match self {
-            QualityRule::Reject { column, .. } | QualityRule::Range { column, .. } => column,
+            QualityRule::Reject { column, .. }
+            | QualityRule::Bits { column, .. }
+            | QualityRule::Range { column, .. } => column,
         }
     }
 }
@@ -315,6 +503,24 @@ pub struct BandColumns {
     /// The signal-to-noise ratio at which `depth_mag` is stated (e.g. 5 for a
     /// 5σ limit), when the survey says.
     pub depth_snr: Option<f64>,
+    /// A signal-to-noise column: S/N tests use it, and without an error column
+    /// the error is derived from it (σ_m = 1.085736 / SNR for magnitudes,
+    /// σ = |F| / SNR for flux densities; FIELD notes §1.4).
+    pub snr: Option<String>,
+    /// What a magnitude band without an error (or S/N) column says about errors.
+    pub no_error: Option<NoErrorPolicy>,
+    /// The rule for a flag-marked (or limit-column) limit that is ≤ 0 in flux
+    /// density: by default max(F, 0) + 3σ when σ is known.
+    pub limit_rule: Option<LimitRule>,
+    /// Rows whose value is saturated: kept with status `saturated`, never a
+    /// detection nor a limit.
+    pub saturated: Option<FlagTest>,
+    /// An empty value (empty, null, NaN or a null sentinel) is a non-detection
+    /// (`empty = "not_detected"`) where the band covers.
+    pub empty_not_detected: bool,
+    /// The band's footprint when it is smaller than the catalog's (a MOC file);
+    /// `None`: the band covers wherever the catalog has rows.
+    pub coverage: Option<crate::sky::coverage::Coverage>,
     /// Schema line of this band's entry, for messages.
     pub line: usize,
 }
@@ -372,8 +578,15 @@ pub struct SurveySchema {
     pub epoch: Epoch,
     /// Proper motions, if the catalog has them.
     pub proper_motion: Option<ProperMotion>,
+    /// Extended sources, growing their positional errors.
+    pub extended: Option<Extended>,
+    /// Rows measured by forced photometry.
+    pub forced: Option<ForcedRows>,
     /// The bands.
     pub bands: Vec<BandColumns>,
+    /// Flag rules reading one character of a flag string, checked against the
+    /// data ([`super::normalize::Normalizer::check_flag_positions`]).
+    pub char_rules: Vec<CharRule>,
     /// The schema file.
     pub path: PathBuf,
     /// The schema text, kept for messages and output metadata.
@@ -437,6 +650,15 @@ impl SurveySchema {
                 add(ra, top);
                 add(dec, top);
             }
+            PositionError::SignalToNoise { .. } => {}
+        }
+        if let Some(ext) = &self.extended {
+            if let Some((column, ..)) = &ext.size {
+                add(column, top);
+            }
+            if let Some(flag) = &ext.flag {
+                add(flag.column(), top);
+            }
         }
         if let Epoch::Column { column, .. } = &self.epoch {
             add(column, top);
@@ -445,16 +667,25 @@ impl SurveySchema {
             add(&pm.ra, top);
             add(&pm.dec, top);
         }
+        if let Some(forced) = &self.forced {
+            add(forced.test.column(), top);
+        }
         for band in &self.bands {
             add(&band.value, band.line);
             if let Some(err) = &band.error {
                 add(err, band.line);
             }
+            if let Some(snr) = &band.snr {
+                add(snr, band.line);
+            }
             match &band.limit {
-                Some(LimitMarker::Flag { column, .. }) | Some(LimitMarker::Column { column }) => {
-                    add(column, band.line)
-                }
+                Some(LimitMarker::Flag { column, .. })
+                | Some(LimitMarker::Bits { column, .. })
+                | Some(LimitMarker::Column { column }) => add(column, band.line),
                 _ => {}
+            }
+            if let Some(sat) = &band.saturated {
+                add(sat.column(), band.line);
             }
             for rule in &band.quality {
                 add(rule.column(), band.line);
@@ -509,8 +740,45 @@ struct RawSchema {
     position: Spanned<RawPosition>,
     epoch: Spanned<RawEpoch>,
     proper_motion: Option<Spanned<RawProperMotion>>,
+    forced: Option<Spanned<RawForced>>,
     #[serde(default)]
     band: Vec<Spanned<RawBand>>,
+}
+
+#[derive(Deserialize)]
+#[serde(deny_unknown_fields)]
+struct RawForced {
+    column: String,
+    values: Option<toml::Value>,
+    char: Option<usize>,
+    bit: Option<i64>,
+    mask: Option<i64>,
+    all: Option<bool>,
+    below: Option<f64>,
+    n: Option<f64>,
+}
+
+/// A flag test as written in a band's `saturated` or the position's `extended.flag`.
+#[derive(Deserialize)]
+#[serde(deny_unknown_fields)]
+struct RawFlagTest {
+    column: String,
+    values: Option<toml::Value>,
+    char: Option<usize>,
+    bit: Option<i64>,
+    mask: Option<i64>,
+    all: Option<bool>,
+}
+
+#[derive(Deserialize)]
+#[serde(deny_unknown_fields)]
+struct RawExtended {
+    size: Option<String>,
+    unit: Option<String>,
+    kind: Option<String>,
+    flag: Option<Spanned<RawFlagTest>>,
+    typical_arcsec: Option<f64>,
+    coeff: Option<f64>,
 }
 
 #[derive(Deserialize)]
@@ -542,6 +810,7 @@ struct RawPosition {
     dec: String,
     format: Option<Spanned<String>>,
     error: Spanned<RawPositionError>,
+    extended: Option<Spanned<RawExtended>>,
 }
 
 #[derive(Deserialize)]
@@ -556,6 +825,10 @@ struct RawPositionError {
     ra: Option<String>,
     dec: Option<String>,
     unit: Option<String>,
+    band: Option<String>,
+    fwhm_arcsec: Option<f64>,
+    floor_arcsec: Option<f64>,
+    min_snr: Option<f64>,
 }
 
 #[derive(Deserialize)]
@@ -594,6 +867,11 @@ struct RawBand {
     depth: Option<Spanned<f64>>,
     depth_mag: Option<Spanned<f64>>,
     depth_snr: Option<Spanned<f64>>,
+    snr: Option<String>,
+    no_error: Option<Spanned<String>>,
+    saturated: Option<Spanned<RawFlagTest>>,
+    empty: Option<Spanned<String>>,
+    coverage: Option<Spanned<String>>,
 }
 
 #[derive(Deserialize)]
@@ -603,6 +881,9 @@ struct RawLimit {
     column: Option<String>,
     values: Option<toml::Value>,
     char: Option<usize>,
+    bit: Option<i64>,
+    mask: Option<i64>,
+    all: Option<bool>,
     below: Option<f64>,
     rule: Option<String>,
     n: Option<f64>,
@@ -614,6 +895,9 @@ struct RawQuality {
     column: String,
     reject: Option<Vec<toml::Value>>,
     char: Option<usize>,
+    bit: Option<i64>,
+    mask: Option<i64>,
+    all: Option<bool>,
     min: Option<f64>,
     max: Option<f64>,
 }
@@ -658,7 +942,16 @@ impl Validator<'_> {
                 ));
             }
         };
+        let mut char_rules: Vec<CharRule> = Vec::new();
         let position_error = self.position_error(&position.error)?;
+        let extended = match &position.extended {
+            None => None,
+            Some(e) => Some(self.extended(e, &mut char_rules)?),
+        };
+        let forced = match &raw.forced {
+            None => None,
+            Some(f) => Some(self.forced(f, &mut char_rules)?),
+        };
         let epoch = self.epoch(&raw.epoch)?;
         let proper_motion = match &raw.proper_motion {
             None => None,
@@ -687,7 +980,7 @@ impl Validator<'_> {
         };
         let mut bands: Vec<BandColumns> = Vec::with_capacity(raw.band.len());
         for raw_band in &raw.band {
-            let band = self.band(raw_band)?;
+            let band = self.band(raw_band, &mut char_rules)?;
             if bands.iter().any(|b| b.band.id == band.band.id) {
                 return Err(self.err(
                     raw_band.get_ref().band.span(),
@@ -703,6 +996,29 @@ impl Validator<'_> {
                 "the schema lists no [[band]]; a survey schema needs at least one band",
             ));
         }
+        if let PositionError::SignalToNoise { band, .. } = &position_error {
+            let span = position.error.span();
+            match bands.iter().find(|b| &b.band.id == band) {
+                None => {
+                    return Err(self.err(
+                        span,
+                        format!(
+                            "position error of kind \"snr\" names band \"{band}\", which is not a band of this schema (it has: {})",
+                            bands.iter().map(|b| b.band.id.as_str()).collect::<Vec<_>>().join(", ")
+                        ),
+                    ));
+                }
+                Some(b) if b.error.is_none() && b.snr.is_none() => {
+                    return Err(self.err(
+                        span,
+                        format!(
+                            "position error of kind \"snr\" needs the signal-to-noise of band \"{band}\", which has neither an error nor an snr column"
+                        ),
+                    ));
+                }
+                Some(_) => {}
+            }
+        }
         Ok(SurveySchema {
             survey,
             description: raw.description,
@@ -714,7 +1030,10 @@ impl Validator<'_> {
             position_error,
             epoch,
             proper_motion,
+            extended,
+            forced,
             bands,
+            char_rules,
             path: self.path.to_path_buf(),
             text: self.text.to_string(),
         })
@@ -834,10 +1153,49 @@ impl Validator<'_> {
                 dec: need(&e.dec, "dec")?,
                 unit,
             }),
+            "snr" => {
+                let band = need(&e.band, "band")?;
+                let Some(fwhm) = e.fwhm_arcsec else {
+                    return Err(self.err(
+                        span,
+                        "position error of kind \"snr\" needs \"fwhm_arcsec\" (the survey's PSF FWHM)",
+                    ));
+                };
+                if !(fwhm > 0.0 && fwhm <= MAX_POSITION_ERROR_ARCSEC) {
+                    return Err(self.err(
+                        span,
+                        format!(
+                            "fwhm_arcsec must be a number of arcsec in (0, {MAX_POSITION_ERROR_ARCSEC}], found {fwhm}"
+                        ),
+                    ));
+                }
+                let floor = e.floor_arcsec.unwrap_or(0.0);
+                if !(0.0..=MAX_POSITION_ERROR_ARCSEC).contains(&floor) {
+                    return Err(self.err(
+                        span,
+                        format!(
+                            "floor_arcsec must be a number of arcsec in [0, {MAX_POSITION_ERROR_ARCSEC}], found {floor}"
+                        ),
+                    ));
+                }
+                let min_snr = e.min_snr.unwrap_or(DEFAULT_POSITION_MIN_SNR);
+                if !(min_snr > 0.0 && min_snr <= MAX_SIGMA_MULTIPLE) {
+                    return Err(self.err(
+                        span,
+                        format!("min_snr must lie in (0, {MAX_SIGMA_MULTIPLE}], found {min_snr}"),
+                    ));
+                }
+                Ok(PositionError::SignalToNoise {
+                    band,
+                    fwhm_arcsec: fwhm,
+                    floor_arcsec: floor,
+                    min_snr,
+                })
+            }
             other => Err(self.err(
                 span,
                 format!(
-                    "position error kind \"{other}\" is unknown; expected fixed, circular, ellipse or axes"
+                    "position error kind \"{other}\" is unknown; expected fixed, circular, ellipse, axes or snr"
                 ),
             )),
         }
@@ -882,7 +1240,218 @@ impl Validator<'_> {
         }
     }
 
-    fn band(&self, raw: &Spanned<RawBand>) -> Result<BandColumns> {
+    /// The mask of `bit = k` or `mask = m`; `None` when neither is given.
+    fn mask(
+        &self,
+        bit: Option<i64>,
+        mask: Option<i64>,
+        span: std::ops::Range<usize>,
+    ) -> Result<Option<u64>> {
+        match (bit, mask) {
+            (None, None) => Ok(None),
+            (Some(_), Some(_)) => Err(self.err(
+                span,
+                "a bit test takes either bit = k (one bit) or mask = m (several), not both",
+            )),
+            (Some(b), None) => match u32::try_from(b) {
+                Ok(b) if b <= 63 => Ok(Some(1u64 << b)),
+                _ => Err(self.err(
+                    span,
+                    format!(
+                        "bit must be a bit number in [0, 63] (0 is the least significant), found {b}"
+                    ),
+                )),
+            },
+            (None, Some(m)) if m > 0 => Ok(Some(m as u64)),
+            (None, Some(m)) => Err(self.err(
+                span,
+                format!("mask must be a positive integer such as 0x0c, found {m}"),
+            )),
+        }
+    }
+
+    /// A flag test from the shared keys: `values` (and `char`) for text,
+    /// `bit` or `mask` (and `all`) for bits of an integer column.
+    #[allow(clippy::too_many_arguments)]
+    fn flag_test(
+        &self,
+        column: &str,
+        values: Option<&toml::Value>,
+        char_position: Option<usize>,
+        bit: Option<i64>,
+        mask: Option<i64>,
+        all: Option<bool>,
+        span: std::ops::Range<usize>,
+        char_rules: &mut Vec<CharRule>,
+    ) -> Result<FlagTest> {
+        if char_position == Some(0) {
+            return Err(self.err(span, "char counts from 1"));
+        }
+        match self.mask(bit, mask, span.clone())? {
+            Some(mask) => {
+                if values.is_some() || char_position.is_some() {
+                    return Err(self.err(
+                        span,
+                        "a bit test (bit or mask) reads an integer column; it takes no values or char",
+                    ));
+                }
+                Ok(FlagTest::Bits {
+                    column: column.to_string(),
+                    mask,
+                    all: all.unwrap_or(false),
+                })
+            }
+            None => {
+                if all.is_some() {
+                    return Err(self.err(span, "all applies only to a bit test (mask)"));
+                }
+                let values = self.text_values(values, span.clone(), "values")?;
+                if let Some(position) = char_position {
+                    char_rules.push(CharRule {
+                        column: column.to_string(),
+                        position,
+                        line: self.line(span),
+                    });
+                }
+                Ok(FlagTest::Text {
+                    column: column.to_string(),
+                    values,
+                    char_position,
+                })
+            }
+        }
+    }
+
+    fn forced(
+        &self,
+        raw: &Spanned<RawForced>,
+        char_rules: &mut Vec<CharRule>,
+    ) -> Result<ForcedRows> {
+        let f = raw.get_ref();
+        let span = raw.span();
+        let test = self.flag_test(
+            &f.column,
+            f.values.as_ref(),
+            f.char,
+            f.bit,
+            f.mask,
+            f.all,
+            span.clone(),
+            char_rules,
+        )?;
+        let below = f.below.unwrap_or(DEFAULT_FORCED_BELOW);
+        let n = f.n.unwrap_or(DEFAULT_FORCED_N);
+        for (key, v) in [("below", below), ("n", n)] {
+            if !(v > 0.0 && v <= MAX_SIGMA_MULTIPLE) {
+                return Err(self.err(
+                    span,
+                    format!("forced \"{key}\" must lie in (0, {MAX_SIGMA_MULTIPLE}], found {v}"),
+                ));
+            }
+        }
+        Ok(ForcedRows { test, below, n })
+    }
+
+    fn extended(
+        &self,
+        raw: &Spanned<RawExtended>,
+        char_rules: &mut Vec<CharRule>,
+    ) -> Result<Extended> {
+        let e = raw.get_ref();
+        let span = raw.span();
+        let size = match &e.size {
+            None => {
+                if e.unit.is_some() || e.kind.is_some() {
+                    return Err(self.err(
+                        span,
+                        "extended unit and kind describe the size column; give size = \"column\" too",
+                    ));
+                }
+                None
+            }
+            Some(column) => {
+                let unit = self.angle_unit(e.unit.as_deref(), span.clone())?;
+                let kind = match e.kind.as_deref() {
+                    None | Some("half_light") => SizeKind::HalfLight,
+                    Some("gaussian_fwhm") => SizeKind::GaussianFwhm,
+                    Some("exponential_scale") => SizeKind::ExponentialScale,
+                    Some(other) => {
+                        return Err(self.err(
+                            span,
+                            format!(
+                                "extended size kind \"{other}\" is unknown; expected half_light, gaussian_fwhm or exponential_scale"
+                            ),
+                        ));
+                    }
+                };
+                Some((column.clone(), unit, kind))
+            }
+        };
+        let flag = match &e.flag {
+            None => None,
+            Some(f) => {
+                let t = f.get_ref();
+                Some(self.flag_test(
+                    &t.column,
+                    t.values.as_ref(),
+                    t.char,
+                    t.bit,
+                    t.mask,
+                    t.all,
+                    f.span(),
+                    char_rules,
+                )?)
+            }
+        };
+        if size.is_none() && flag.is_none() {
+            return Err(self.err(
+                span,
+                "extended needs size = \"column\" (a size per source), flag = { ... } (which rows are extended), or both",
+            ));
+        }
+        if let Some(t) = e.typical_arcsec
+            && !(t > 0.0 && t <= MAX_POSITION_ERROR_ARCSEC)
+        {
+            return Err(self.err(
+                span,
+                format!(
+                    "typical_arcsec must be a half-light radius in arcsec in (0, {MAX_POSITION_ERROR_ARCSEC}], found {t}"
+                ),
+            ));
+        }
+        match (&flag, e.typical_arcsec) {
+            (None, Some(_)) => {
+                return Err(self.err(
+                    span,
+                    "typical_arcsec is the size of flagged rows without a size value; give flag = { ... } too",
+                ));
+            }
+            (Some(_), None) if size.is_none() => {
+                return Err(self.err(
+                    span,
+                    "an extended flag without a size column needs typical_arcsec (the survey's typical half-light radius)",
+                ));
+            }
+            _ => {}
+        }
+        let coeff = e
+            .coeff
+            .unwrap_or(crate::crossmatch::position_error::EXTENDED_COEFF);
+        if !(coeff > 0.0 && coeff <= 1.0) {
+            return Err(self.err(
+                span,
+                format!("extended coeff must lie in (0, 1] (sigma_ext = coeff x half-light radius), found {coeff}"),
+            ));
+        }
+        Ok(Extended {
+            size,
+            flag,
+            typical_arcsec: e.typical_arcsec,
+            coeff,
+        })
+    }
+
+    fn band(&self, raw: &Spanned<RawBand>, char_rules: &mut Vec<CharRule>) -> Result<BandColumns> {
         let b = raw.get_ref();
         let id = b.band.get_ref();
         let Some(band) = self.library.get(id) else {
@@ -951,9 +1520,12 @@ impl Validator<'_> {
             }
             (_, None) => None,
         };
-        let limit = match &b.limit {
-            None => None,
-            Some(l) => Some(self.limit(l)?),
+        let (limit, limit_rule) = match &b.limit {
+            None => (None, None),
+            Some(l) => {
+                let (marker, rule) = self.limit(l, char_rules)?;
+                (Some(marker), rule)
+            }
         };
         if matches!(limit, Some(LimitMarker::MissingError)) && b.error.is_none() {
             return Err(self.err(
@@ -961,15 +1533,99 @@ impl Validator<'_> {
                 "limit kind \"missing_error\" needs an error column: a value without an error is the limit",
             ));
         }
-        if matches!(limit, Some(LimitMarker::SignalToNoise { .. })) && b.error.is_none() {
+        if matches!(limit, Some(LimitMarker::SignalToNoise { .. }))
+            && b.error.is_none()
+            && b.snr.is_none()
+        {
             return Err(self.err(
                 raw.span(),
-                "limit kind \"snr\" needs an error column to compute the signal-to-noise ratio",
+                "limit kind \"snr\" needs an error column to compute the signal-to-noise ratio (or an snr column)",
             ));
         }
+        let no_error = match &b.no_error {
+            None => None,
+            Some(p) => {
+                if b.error.is_some() || b.snr.is_some() {
+                    return Err(self.err(
+                        p.span(),
+                        "no_error says what a band without an error column means; this band has an error or snr column",
+                    ));
+                }
+                match p.get_ref().as_str() {
+                    "unknown" => Some(NoErrorPolicy::Unknown),
+                    "limit" => Some(NoErrorPolicy::Limit),
+                    other => {
+                        return Err(self.err(
+                            p.span(),
+                            format!(
+                                "no_error \"{other}\" is unknown; expected \"unknown\" (measurements whose errors are unknown) or \"limit\" (every value is an upper limit)"
+                            ),
+                        ));
+                    }
+                }
+            }
+        };
+        if unit.is_magnitude() && b.error.is_none() && b.snr.is_none() && no_error.is_none() {
+            return Err(self.err(
+                raw.span(),
+                format!(
+                    "band \"{id}\" gives magnitudes without an error column; name it with error = \"...\", give the signal-to-noise with snr = \"...\", or say what the values are with no_error = \"unknown\" (measurements whose errors are unknown) or no_error = \"limit\" (every value is an upper limit)"
+                ),
+            ));
+        }
+        let saturated = match &b.saturated {
+            None => None,
+            Some(t) => {
+                let f = t.get_ref();
+                Some(self.flag_test(
+                    &f.column,
+                    f.values.as_ref(),
+                    f.char,
+                    f.bit,
+                    f.mask,
+                    f.all,
+                    t.span(),
+                    char_rules,
+                )?)
+            }
+        };
+        let empty_not_detected = match &b.empty {
+            None => false,
+            Some(e) => match e.get_ref().as_str() {
+                "missing" => false,
+                "not_detected" => true,
+                other => {
+                    return Err(self.err(
+                        e.span(),
+                        format!(
+                            "empty \"{other}\" is unknown; expected \"not_detected\" (an empty value is a non-detection where the band covers) or \"missing\" (the default)"
+                        ),
+                    ));
+                }
+            },
+        };
+        let coverage = match &b.coverage {
+            None => None,
+            Some(c) => {
+                if !empty_not_detected {
+                    return Err(self.err(
+                        c.span(),
+                        "coverage is the band's footprint for empty = \"not_detected\"; set that too",
+                    ));
+                }
+                let file = self
+                    .path
+                    .parent()
+                    .unwrap_or(Path::new(""))
+                    .join(c.get_ref());
+                let coverage = crate::sky::coverage::Coverage::from_moc_file(&file)
+                    .map_err(|e| self.err(c.span(), format!("band coverage: {e}")))?;
+                Some(coverage)
+            }
+        };
         let mut quality = Vec::with_capacity(b.quality.len());
         for q in &b.quality {
-            quality.push(self.quality(q)?);
+            quality.push(self.quality(q, char_rules)?);
         }
         if let Some(v) = b.nulls.iter().find(|v| v.is_nan()) {
             return Err(self.err(
@@ -1006,6 +1662,12 @@ impl Validator<'_> {
             depth: None,
             depth_mag: None,
             depth_snr: None,
+            snr: b.snr.clone(),
+            no_error,
+            limit_rule,
+            saturated,
+            empty_not_detected,
+            coverage,
             line: self.line(raw.span()),
         };
         if let Some(d) = &b.depth_mag {
@@ -1064,7 +1726,58 @@ impl Validator<'_> {
         Ok(columns)
     }
 
-    fn limit(&self, raw: &Spanned<RawLimit>) -> Result<LimitMarker> {
+    /// The limit marker, and the schema's own rule for a marked limit ≤ 0
+    /// (`rule` / `n` on kinds flag, column and missing_error).
+    fn limit(
+        &self,
+        raw: &Spanned<RawLimit>,
+        char_rules: &mut Vec<CharRule>,
+    ) -> Result<(LimitMarker, Option<LimitRule>)> {
+        let l = raw.get_ref();
+        let span = raw.span();
+        let marker = self.limit_marker(raw, char_rules)?;
+        let own_rule = match &marker {
+            LimitMarker::SignalToNoise { .. } => None,
+            LimitMarker::Sentinel { .. } => {
+                if l.rule.is_some() || l.n.is_some() {
+                    return Err(self.err(
+                        span,
+                        "limit kind \"sentinel\" gives no value to bound; rule and n do not apply",
+                    ));
+                }
+                None
+            }
+            _ if l.rule.is_none() && l.n.is_none() => None,
+            _ => Some(self.limit_rule(l, span.clone())?),
+        };
+        Ok((marker, own_rule))
+    }
+
+    fn limit_rule(&self, l: &RawLimit, span: std::ops::Range<usize>) -> Result<LimitRule> {
+        let n = l.n.unwrap_or(3.0);
+        if !(n > 0.0 && n <= MAX_SIGMA_MULTIPLE) {
+            return Err(self.err(
+                span,
+                format!("limit \"n\" must lie in (0, {MAX_SIGMA_MULTIPLE}], found {n}"),
+            ));
+        }
+        match l.rule.as_deref() {
+            None | Some("flux_plus_sigma") => Ok(LimitRule::FluxPlusSigma { n }),
+            Some("sigma") => Ok(LimitRule::SigmaMultiple { n }),
+            Some(other) => Err(self.err(
+                span,
+                format!(
+                    "limit rule \"{other}\" is unknown; expected \"sigma\" (n x sigma) or \"flux_plus_sigma\" (max(flux, 0) + n x sigma)"
+                ),
+            )),
+        }
+    }
+
+    fn limit_marker(
+        &self,
+        raw: &Spanned<RawLimit>,
+        char_rules: &mut Vec<CharRule>,
+    ) -> Result<LimitMarker> {
         let l = raw.get_ref();
         let span = raw.span();
         let need_column = || {
@@ -1077,15 +1790,30 @@ impl Validator<'_> {
         };
         match l.kind.as_str() {
             "flag" => {
-                let values = self.text_values(l.values.as_ref(), span.clone(), "values")?;
-                if l.char == Some(0) {
-                    return Err(self.err(span, "char counts from 1"));
+                let column = need_column()?;
+                match self.flag_test(
+                    &column,
+                    l.values.as_ref(),
+                    l.char,
+                    l.bit,
+                    l.mask,
+                    l.all,
+                    span,
+                    char_rules,
+                )? {
+                    FlagTest::Text {
+                        column,
+                        values,
+                        char_position,
+                    } => Ok(LimitMarker::Flag {
+                        column,
+                        values,
+                        char_position,
+                    }),
+                    FlagTest::Bits { column, mask, all } => {
+                        Ok(LimitMarker::Bits { column, mask, all })
+                    }
                 }
-                Ok(LimitMarker::Flag {
-                    column: need_column()?,
-                    values,
-                    char_position: l.char,
-                })
             }
             "snr" => {
                 let below = l.below.unwrap_or(3.0);
@@ -1180,10 +1908,30 @@ impl Validator<'_> {
             .collect()
     }
 
-    fn quality(&self, raw: &Spanned<RawQuality>) -> Result<QualityRule> {
+    fn quality(
+        &self,
+        raw: &Spanned<RawQuality>,
+        char_rules: &mut Vec<CharRule>,
+    ) -> Result<QualityRule> {
         let q = raw.get_ref();
         if q.char == Some(0) {
             return Err(self.err(raw.span(), "char counts from 1"));
+        }
+        if let Some(mask) = self.mask(q.bit, q.mask, raw.span())? {
+            if q.reject.is_some() || q.char.is_some() || q.min.is_some() || q.max.is_some() {
+                return Err(self.err(
+                    raw.span(),
+                    "a quality bit test (bit or mask) takes no reject, char, min or max",
+                ));
+            }
+            return Ok(QualityRule::Bits {
+                column: q.column.clone(),
+                mask,
+                all: q.all.unwrap_or(false),
+            });
+        }
+        if q.all.is_some() {
+            return Err(self.err(raw.span(), "all applies only to a bit test (mask)"));
         }
         for (key, v) in [("min", q.min), ("max", q.max)] {
             if let Some(v) = v
@@ -1210,6 +1958,13 @@ impl Validator<'_> {
                     raw.span(),
                     "reject",
                 )?;
+                if let Some(position) = q.char {
+                    char_rules.push(CharRule {
+                        column: q.column.clone(),
+                        position,
+                        line: self.line(raw.span()),
+                    });
+                }
                 Ok(QualityRule::Reject {
                     column: q.column.clone(),
                     values,
@@ -1223,7 +1978,7 @@ impl Validator<'_> {
             }),
             _ => Err(self.err(
                 raw.span(),
-                "a quality rule needs either reject = [values] or min / max",
+                "a quality rule needs reject = [values], min / max, or a bit test (bit or mask)",
             )),
         }
     }

@@ -1079,7 +1079,7 @@ mod tests {
         let lib = crate::photometry::BandLibrary::builtin();
         let schema = |survey: &str, ks_extra: &str| {
             let text = format!(
-                "survey = \"{survey}\"\nformat = \"csv\"\n[position]\nra = \"ra\"\ndec = \"dec\"\nerror = {{ kind = \"fixed\", arcsec = 0.1 }}\n[epoch]\nyear = 2010.0\n[[band]]\nband = \"tmass_h\"\nvalue = \"h\"\nunit = \"vega_mag\"\n[[band]]\nband = \"tmass_ks\"\nvalue = \"k\"\nunit = \"vega_mag\"\n{ks_extra}"
+                "survey = \"{survey}\"\nformat = \"csv\"\n[position]\nra = \"ra\"\ndec = \"dec\"\nerror = {{ kind = \"fixed\", arcsec = 0.1 }}\n[epoch]\nyear = 2010.0\n[[band]]\nband = \"tmass_h\"\nvalue = \"h\"\nunit = \"vega_mag\"\nno_error = \"unknown\"\n[[band]]\nband = \"tmass_ks\"\nvalue = \"k\"\nunit = \"vega_mag\"\nno_error = \"unknown\"\n{ks_extra}"
             );
             crate::catalog::schema::SurveySchema::from_str(&text, Path::new("s.toml"), &lib)
                 .unwrap()

@@ -116,10 +116,13 @@ pub fn vet_catalog(
 }
 
 /// Feeds the stream's batches to `normalizer` a few at a time (normalized in
-/// parallel) and hands each normalized batch, in file order, to `sink`.
+/// parallel) and hands each normalized batch, in file order, to `sink`; at the
+/// end checks the schema's flag character positions against the data
+/// ([`Normalizer::check_flag_positions`]).
 ///
 /// # Errors
-/// Read errors, normalization errors, and whatever `sink` returns.
+/// Read errors, normalization errors, whatever `sink` returns, and a flag
+/// position beyond every value of its column.
 pub fn for_each_normalized(
     stream: CatalogBatches,
     normalizer: &mut Normalizer,
@@ -139,7 +142,7 @@ pub fn for_each_normalized(
             pending.clear();
         }
         if done {
-            return Ok(());
+            return normalizer.check_flag_positions();
         }
     }
 }
@@ -252,14 +255,14 @@ fn summary(
         s.push_str(&format!("         skipped {count}: {reason}\n"));
     }
     s.push_str(&format!(
-        "\n{:<12} {:>10} {:>12} {:>13} {:>10} {:>10}\n",
-        "band", "detected", "upper_limit", "not_detected", "missing", "rejected"
+        "\n{:<12} {:>10} {:>12} {:>13} {:>10} {:>10} {:>10}\n",
+        "band", "detected", "upper_limit", "not_detected", "missing", "rejected", "saturated"
     ));
     for b in &r.bands {
         let c: Vec<u64> = BandStatus::ALL.iter().map(|st| b.count(*st)).collect();
         s.push_str(&format!(
-            "{:<12} {:>10} {:>12} {:>13} {:>10} {:>10}\n",
-            b.band, c[0], c[1], c[2], c[3], c[4]
+            "{:<12} {:>10} {:>12} {:>13} {:>10} {:>10} {:>10}\n",
+            b.band, c[0], c[1], c[2], c[3], c[4], c[5]
         ));
         for (reason, count) in &b.rejected_by {
             s.push_str(&format!("             rejected {count}: {reason}\n"));

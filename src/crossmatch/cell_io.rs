@@ -5,7 +5,8 @@
 //! input's rank order — `rank`, `core`, `catalog`, `row`, the stored position
 //! (`ra_deg`, `dec_deg`, `x`, `y`, `z`), `epoch_yr`, proper motion
 //! (`pmra_cosdec_masyr`, `pmdec_masyr`, NaN when unknown), covariance
-//! (`cov_ee_arcsec2`, `cov_nn_arcsec2`, `cov_en_arcsec2`) and `sigma_rad`. The schema's metadata
+//! (`cov_ee_arcsec2`, `cov_nn_arcsec2`, `cov_en_arcsec2`), `sigma_rad`, and
+//! `forced` (Boolean) when some source was measured by forced photometry. The schema's metadata
 //! carries what every cell shares: the cell (`fluxloom.cell.order`,
 //! `fluxloom.cell.id`, `fluxloom.cell.margin_arcsec`), the catalogs' ln
 //! densities and the epoch statistics. Numbers in metadata are written with
@@ -168,6 +169,18 @@ pub fn input_batch(input: &CellInput) -> Result<RecordBatch> {
         floats(s.cov.iter().map(|c| c.en)),
         floats(s.sigma_rad.iter().copied()),
     ];
+    let (schema, columns) = if s.forced.is_empty() {
+        (schema, columns)
+    } else {
+        let mut fields: Vec<Field> = schema.fields().iter().map(|f| f.as_ref().clone()).collect();
+        fields.push(Field::new("forced", DataType::Boolean, false));
+        let mut columns = columns;
+        columns.push(Arc::new(BooleanArray::from(s.forced.clone())));
+        (
+            Arc::new(Schema::new_with_metadata(fields, schema.metadata().clone())),
+            columns,
+        )
+    };
     RecordBatch::try_new(schema, columns).map_err(|e| Error::Usage(e.to_string()))
 }
 
@@ -364,6 +377,15 @@ pub fn input_from_batch(batch: &RecordBatch, origin: &Path) -> Result<CellInput>
         sigma_rad: c.floats("sigma_rad")?.to_vec(),
         catalog,
         catalog_start: Vec::with_capacity(ncat + 1),
+        forced: match batch.column_by_name("forced") {
+            None => Vec::new(),
+            Some(f) => {
+                let f = f
+                    .as_boolean_opt()
+                    .ok_or_else(|| c.mistyped("forced", "Boolean"))?;
+                (0..f.len()).map(|i| f.value(i)).collect()
+            }
+        },
     };
     for k in 0..ncat {
         sources
@@ -626,6 +648,39 @@ mod tests {
         let back = read_output(&bytes[..], Path::new("test")).unwrap();
         assert_eq!(back, out);
         assert!(back.links[0].pair.north_arcsec.is_sign_negative());
+    }
+
+    #[test]
+    fn the_forced_marker_travels_with_the_cell_input() {
+        let mut t = crate::crossmatch::SourceTable {
+            name: "phot".into(),
+            ..Default::default()
+        };
+        t.push_simple("a", 10.0, 20.0, 2016.0, 0.1);
+        t.push_simple("b", 10.001, 20.0, 2016.0, 0.1);
+        let config = crate::crossmatch::MatchConfig::new(1, 2016.0);
+        let input = |t: &crate::crossmatch::SourceTable| {
+            let sources = Sources::prepare(std::slice::from_ref(t), &config).unwrap();
+            CellInput {
+                order: 3,
+                id: 5,
+                margin_arcsec: 10.0,
+                ln_density_per_sr: vec![20.0],
+                epochs: EpochStats::of(&sources, 2016.0),
+                core: vec![true; sources.len()],
+                ranks: (0..sources.len() as u32).collect(),
+                sources,
+            }
+        };
+        let plain = input_batch(&input(&t)).unwrap();
+        assert!(plain.column_by_name("forced").is_none());
+        let back = input_from_batch(&plain, Path::new("cell")).unwrap();
+        assert!(back.sources.forced.is_empty());
+        t.forced = vec![false, true];
+        let marked = input_batch(&input(&t)).unwrap();
+        let back = input_from_batch(&marked, Path::new("cell")).unwrap();
+        assert_eq!(back.sources.forced, [false, true]);
+        assert!(back.sources.is_forced(1) && !back.sources.is_forced(0));
     }
 
     #[test]

@@ -8,6 +8,7 @@
 //! | 3 | 8 | `low_probability` | the posterior probability of the object's association is below the configured minimum |
 //! | 4 | 16 | `single_catalog` | only one catalog saw this object |
 //! | 5 | 32 | `approximate` | the object's group was too large for the exact search and was resolved greedily |
+//! | 6 | 64 | `forced_only` | every member was measured by forced photometry (a survey schema's `[forced]` rows): no catalog detected it on its own |
 //!
 //! The status is `clean` when no flag other than `single_catalog` is set and
 //! there are two or more members, `single` for a clean one-catalog object, and
@@ -25,15 +26,18 @@ pub const LOW_PROBABILITY: u32 = 8;
 pub const SINGLE_CATALOG: u32 = 16;
 /// Resolved by the greedy fallback rather than the exact search.
 pub const APPROXIMATE: u32 = 32;
+/// Every member comes from forced photometry: no detection founds the object.
+pub const FORCED_ONLY: u32 = 64;
 
 /// Every flag with its name, in bit order.
-pub const ALL: [(u32, &str); 6] = [
+pub const ALL: [(u32, &str); 7] = [
     (AMBIGUOUS, "ambiguous"),
     (BLEND, "blend"),
     (HAS_BLEND, "has_blend"),
     (LOW_PROBABILITY, "low_probability"),
     (SINGLE_CATALOG, "single_catalog"),
     (APPROXIMATE, "approximate"),
+    (FORCED_ONLY, "forced_only"),
 ];
 
 /// The readable status of a flag mask.
@@ -63,6 +67,10 @@ mod tests {
             "ambiguous+low_probability"
         );
         assert_eq!(status(BLEND | SINGLE_CATALOG), "blend+single_catalog");
+        assert_eq!(
+            status(SINGLE_CATALOG | FORCED_ONLY),
+            "single_catalog+forced_only"
+        );
     }
 
     #[test]
@@ -71,6 +79,6 @@ mod tests {
             assert_eq!(acc & b, 0);
             acc | b
         });
-        assert_eq!(all, 63);
+        assert_eq!(all, 127);
     }
 }

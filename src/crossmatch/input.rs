@@ -32,6 +32,10 @@ pub struct SourceTable {
     pub pmra_cosdec_masyr: Vec<f64>,
     /// Proper motion in Dec, mas/yr; NaN when unknown.
     pub pmdec_masyr: Vec<f64>,
+    /// True for rows measured by forced photometry (the normalized table's
+    /// `forced` column); empty when the catalog has none. Read it through
+    /// [`SourceTable::is_forced`].
+    pub forced: Vec<bool>,
 }
 
 impl SourceTable {
@@ -43,6 +47,17 @@ impl SourceTable {
     /// True when the table has no sources.
     pub fn is_empty(&self) -> bool {
         self.ra_deg.is_empty()
+    }
+
+    /// Whether source `i` was measured by forced photometry: such a source
+    /// confirms an object found by others and should not found one alone.
+    pub fn is_forced(&self, i: usize) -> bool {
+        self.forced.get(i).copied().unwrap_or(false)
+    }
+
+    /// True when some source of the table was measured by forced photometry.
+    pub fn has_forced(&self) -> bool {
+        self.forced.iter().any(|f| *f)
     }
 
     /// Appends one source with a circular error and no proper motion (handy in tests).
@@ -133,6 +148,21 @@ impl SourceTable {
             opt(f64s("pos_err_pa_deg")?, &mut t.err_pa_deg);
             opt(f64s("pmra_cosdec_masyr")?, &mut t.pmra_cosdec_masyr);
             opt(f64s("pmdec_masyr")?, &mut t.pmdec_masyr);
+            if let Some(forced) = batch.column_by_name(crate::catalog::normalize::FORCED_COLUMN) {
+                let forced = forced.as_boolean_opt().ok_or_else(|| {
+                    Error::format(
+                        origin,
+                        "normalized table's \"forced\" column is not Boolean",
+                    )
+                })?;
+                // Rows of earlier batches without the column were not forced.
+                t.forced.resize(t.ra_deg.len() - forced.len(), false);
+                t.forced
+                    .extend((0..forced.len()).map(|i| forced.is_valid(i) && forced.value(i)));
+            }
+        }
+        if !t.forced.is_empty() {
+            t.forced.resize(t.ra_deg.len(), false);
         }
         Ok(t)
     }

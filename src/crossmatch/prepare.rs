@@ -43,6 +43,10 @@ pub struct Sources {
     pub sigma_rad: Vec<f64>,
     /// First rank of each catalog, plus the total at the end.
     pub catalog_start: Vec<usize>,
+    /// Whether each source was measured by forced photometry
+    /// ([`SourceTable::is_forced`]); empty when no source was. Read it through
+    /// [`Sources::is_forced`].
+    pub forced: Vec<bool>,
 }
 
 impl Sources {
@@ -54,6 +58,11 @@ impl Sources {
     /// True when there are no sources.
     pub fn is_empty(&self) -> bool {
         self.catalog.is_empty()
+    }
+
+    /// Whether source `i` was measured by forced photometry.
+    pub fn is_forced(&self, i: usize) -> bool {
+        self.forced.get(i).copied().unwrap_or(false)
     }
 
     /// Flattens `tables` into rank order at `config.reference_epoch_yr`.
@@ -88,7 +97,9 @@ impl Sources {
             cov: Vec::with_capacity(total),
             sigma_rad: Vec::with_capacity(total),
             catalog_start: Vec::with_capacity(tables.len() + 1),
+            forced: Vec::new(),
         };
+        let any_forced = tables.iter().any(SourceTable::has_forced);
         for (c, table) in tables.iter().enumerate() {
             s.catalog_start.push(s.len());
             let mut order: Vec<u32> = (0..table.len() as u32).collect();
@@ -141,6 +152,9 @@ impl Sources {
                 s.cov.push(Covariance::from_ellipse(a, b, pa));
                 s.sigma_rad
                     .push(circularized_sigma_arcsec(a, b, sys) * RAD_PER_ARCSEC);
+                if any_forced {
+                    s.forced.push(table.is_forced(i));
+                }
             }
         }
         s.catalog_start.push(s.len());
@@ -171,6 +185,11 @@ impl Sources {
             cov: ranks.iter().map(|i| self.cov[pick(i)]).collect(),
             sigma_rad: ranks.iter().map(|i| self.sigma_rad[pick(i)]).collect(),
             catalog_start: Vec::with_capacity(ncat + 1),
+            forced: if self.forced.is_empty() {
+                Vec::new()
+            } else {
+                ranks.iter().map(|i| self.forced[pick(i)]).collect()
+            },
         };
         for c in 0..ncat {
             s.catalog_start

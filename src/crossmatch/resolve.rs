@@ -20,7 +20,10 @@
 //!
 //! Afterwards each object gets member probabilities p_i = σ(score(O) − score(O∖i))
 //! (σ the logistic function; for two sources this is the pair's posterior), and
-//! flags: see [`super::flags`]. Blends are found before resolution, in
+//! flags: see [`super::flags`]. An object whose members were all measured by
+//! forced photometry ([`super::prepare::Sources::is_forced`]) is flagged
+//! `forced_only`: such measurements confirm objects that others detect and
+//! found none alone. Blends are found before resolution, in
 //! [`super::blends`].
 
 use std::collections::HashMap;
@@ -398,6 +401,21 @@ pub fn resolve_group(
     members: &[u32],
     candidates: &[Candidate],
 ) -> Vec<ResolvedObject> {
+    let mut out = resolve_split(ctx, members, candidates);
+    // A forced-photometry measurement confirms an object others found; an
+    // object of forced measurements alone is flagged, not taken as found.
+    if !ctx.sources.forced.is_empty() {
+        for o in &mut out {
+            if o.members.iter().all(|&r| ctx.sources.is_forced(r as usize)) {
+                o.flags |= flags::FORCED_ONLY;
+            }
+        }
+    }
+    out
+}
+
+/// The split of one group into objects, with their scores and flags.
+fn resolve_split(ctx: &Context, members: &[u32], candidates: &[Candidate]) -> Vec<ResolvedObject> {
     let m = members.len();
     if m == 1 {
         return vec![single(members[0], 0)];
@@ -531,5 +549,54 @@ fn describe(
         member_probability,
         flags: fl,
         related: Vec::new(),
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::super::{MatchConfig, SourceTable, run_match};
+    use super::*;
+
+    #[test]
+    fn an_object_of_forced_measurements_alone_is_flagged() {
+        let mut detections = SourceTable {
+            name: "det".into(),
+            ..SourceTable::default()
+        };
+        let mut photometry = SourceTable {
+            name: "phot".into(),
+            ..SourceTable::default()
+        };
+        // A detection with a forced measurement 0.05" east of it; a forced
+        // measurement 1' away with nothing near; an unforced source 2' away.
+        let dec0: f64 = 10.0;
+        let ra = |east_arcsec: f64| 150.0 + east_arcsec / 3600.0 / dec0.to_radians().cos();
+        detections.push_simple("d1", ra(0.0), dec0, 2016.0, 0.1);
+        photometry.push_simple("p1", ra(0.05), dec0, 2016.0, 0.1);
+        photometry.push_simple("p2", ra(60.0), dec0, 2016.0, 0.1);
+        photometry.push_simple("p3", ra(120.0), dec0, 2016.0, 0.1);
+        photometry.forced = vec![true, true, false];
+        let tables = [detections, photometry];
+        let result = run_match(&tables, &MatchConfig::new(2, 2016.0)).unwrap();
+        let by_id: HashMap<String, u32> = result
+            .objects
+            .iter()
+            .map(|o| (o.object_id(&tables), o.flags))
+            .collect();
+        assert_eq!(by_id.len(), 3, "{by_id:?}");
+        assert_eq!(by_id["det:d1"], 0);
+        assert_eq!(by_id["phot:p2"], flags::SINGLE_CATALOG | flags::FORCED_ONLY);
+        assert_eq!(by_id["phot:p3"], flags::SINGLE_CATALOG);
+        assert_eq!(result.stats.flags.get("forced_only"), Some(&1));
+        // Without forced rows nothing is flagged so.
+        let mut plain = tables.clone();
+        plain[1].forced.clear();
+        let result = run_match(&plain, &MatchConfig::new(2, 2016.0)).unwrap();
+        assert!(
+            result
+                .objects
+                .iter()
+                .all(|o| o.flags & flags::FORCED_ONLY == 0)
+        );
     }
 }

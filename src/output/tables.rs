@@ -75,10 +75,11 @@ fn status_rank(s: SedStatus) -> u8 {
         SedStatus::Detected => 0,
         SedStatus::UpperLimit => 1,
         SedStatus::Blended => 2,
-        SedStatus::NotDetected => 3,
-        SedStatus::Missing => 4,
-        SedStatus::Rejected => 5,
-        SedStatus::NotCovered => 6,
+        SedStatus::Saturated => 3,
+        SedStatus::NotDetected => 4,
+        SedStatus::Missing => 5,
+        SedStatus::Rejected => 6,
+        SedStatus::NotCovered => 7,
     }
 }
 

@@ -31,11 +31,14 @@ pub enum SedStatus {
     Missing,
     /// Ruled out by a quality rule or an unreadable value.
     Rejected,
+    /// The catalog's value is saturated: neither a detection nor a limit, and
+    /// no value is carried in the detection or limit columns.
+    Saturated,
 }
 
 impl SedStatus {
     /// All statuses, in report order.
-    pub const ALL: [SedStatus; 7] = [
+    pub const ALL: [SedStatus; 8] = [
         SedStatus::Detected,
         SedStatus::UpperLimit,
         SedStatus::NotDetected,
@@ -43,6 +46,7 @@ impl SedStatus {
         SedStatus::Blended,
         SedStatus::Missing,
         SedStatus::Rejected,
+        SedStatus::Saturated,
     ];
 
     /// The text written in status columns.
@@ -55,6 +59,7 @@ impl SedStatus {
             SedStatus::Blended => "blended",
             SedStatus::Missing => "missing",
             SedStatus::Rejected => "rejected",
+            SedStatus::Saturated => "saturated",
         }
     }
 
@@ -65,6 +70,7 @@ impl SedStatus {
             "not_detected" => SedStatus::NotDetected,
             "missing" => SedStatus::Missing,
             "rejected" => SedStatus::Rejected,
+            "saturated" => SedStatus::Saturated,
             _ => return None,
         })
     }
@@ -298,5 +304,49 @@ impl<'a> SedAssembler<'a> {
                 Sed { points }
             })
             .collect())
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::catalog::normalize::{NormalizeOptions, Normalizer};
+    use crate::catalog::schema::SurveySchema;
+    use crate::photometry::BandLibrary;
+    use std::path::Path;
+    use std::sync::Arc;
+
+    #[test]
+    fn a_saturated_value_is_neither_a_detection_nor_a_limit_in_the_sed() {
+        let text = "survey = \"cat\"\nformat = \"csv\"\nid = \"id\"\n[position]\nra = \"ra\"\ndec = \"dec\"\nerror = { kind = \"fixed\", arcsec = 0.1 }\n[epoch]\nyear = 2010.0\n[[band]]\nband = \"irac_36\"\nvalue = \"f\"\nunit = \"mJy\"\nerror = \"e\"\nsaturated = { column = \"fl\", bit = 2 }\n";
+        let schema =
+            SurveySchema::from_str(text, Path::new("s.toml"), &BandLibrary::builtin()).unwrap();
+        let col = |v: &[&str]| {
+            Arc::new(arrow::array::StringArray::from(v.to_vec())) as arrow::array::ArrayRef
+        };
+        let batch = RecordBatch::try_from_iter([
+            ("id", col(&["a", "b"])),
+            ("ra", col(&["1.0", "1.1"])),
+            ("dec", col(&["2.0", "2.0"])),
+            ("f", col(&["900.0", "2.0"])),
+            ("e", col(&["0.1", "0.1"])),
+            ("fl", col(&["4", "0"])),
+        ])
+        .unwrap();
+        let normalized = Normalizer::new(&schema, Path::new("c.csv"), NormalizeOptions::default())
+            .normalize(&batch)
+            .unwrap();
+        let slot = BandSlot {
+            catalog: 0,
+            catalog_name: "cat".into(),
+            spec: schema.bands[0].clone(),
+        };
+        let data = band_data(&normalized, &slot).unwrap();
+        let saturated = data.point(0);
+        assert_eq!(saturated, SedPoint::bare(SedStatus::Saturated));
+        assert_eq!(saturated.status.as_str(), "saturated");
+        let detected = data.point(1);
+        assert_eq!(detected.status, SedStatus::Detected);
+        assert!((detected.value.unwrap() - 0.002).abs() < 1e-15);
     }
 }

@@ -14,6 +14,7 @@
 //! | `blended` | the catalog's source here is a blend of this and other objects; its flux bounds this object's from above | ulim = blend's flux (or its limit) |
 //! | `missing` | the source exists but the band has no value | none |
 //! | `rejected` | a quality rule or an unreadable value ruled it out | none |
+//! | `saturated` | the catalog's schema marks the value saturated: neither a detection nor a limit (the measured value stays in the normalized table's `<band>_sat_jy`) | none |
 
 pub mod assemble;
 

@@ -19,19 +19,32 @@
 //! `flux_jy` and its limit in `ulim_jy` (with the noise `flux_err_jy` when known).
 //!
 //! The decision for each band measurement, in order:
-//! 1. no value (null, empty, NaN, a null sentinel): `upper_limit` when a separate
-//!    limit column has a value, else `missing`;
+//! 1. no value (null, empty, NaN, a null sentinel): `saturated` when the band's
+//!    saturation test marks the row; `upper_limit` when a separate limit column
+//!    has a value; `not_detected` under `empty = "not_detected"` where the band
+//!    covers; else `missing`;
 //! 2. a non-detection sentinel: `not_detected` (with the survey depth as the limit
 //!    when the schema gives one);
-//! 3. a quality rule matches: `rejected`, counted by rule;
-//! 4. a limit flag, or a value without error under `missing_error`: `upper_limit`
-//!    with the value as the limit;
-//! 5. the value is converted; S/N below the schema's threshold: `upper_limit`
-//!    by the schema's rule;
-//! 6. a flux density that is zero or negative is never a detection: it becomes an
+//! 3. the saturation test: `saturated`, the value kept in `<band>_sat_jy`
+//!    (`<band>_sat_mag`) only, never as a detection or a limit;
+//! 4. a quality rule matches: `rejected`, counted by rule;
+//! 5. a limit flag (text or bits), or a value without error under `missing_error`
+//!    or `no_error = "limit"`: `upper_limit` with the value as the limit, except
+//!    that a flux density ≤ 0 becomes max(F, 0) + 3σ (or the limit's own rule)
+//!    when σ is known and is `rejected` otherwise;
+//! 6. the value is converted; a forced row (`[forced]`) with S/N below its
+//!    threshold: `upper_limit` max(F, 0) + nσ; S/N below the band's threshold:
+//!    `upper_limit` by the schema's rule (S/N from the `snr` column when given,
+//!    else F/σ);
+//! 7. a flux density that is zero or negative is never a detection: it becomes an
 //!    upper limit max(F, 0) + 3 sigma when an error is known (common practice),
 //!    else `rejected`;
-//! 7. otherwise `detected`.
+//! 8. otherwise `detected`.
+//!
+//! Without an error column, errors come from the `snr` column when the schema
+//! names one (σ_m = 1.085736 / SNR, σ = |F| / |SNR|). Rows of a `[forced]`
+//! schema carry a Boolean `forced` column. The position error may come from a
+//! band's S/N (kind `snr`) and grows for extended sources (`[position] extended`).
 //!
 //! An error value that is zero or negative is read as "no error" (catalogs use
 //! such values as sentinels).
@@ -44,21 +57,27 @@ use std::path::{Path, PathBuf};
 use std::sync::Arc;
 
 use arrow::array::{
-    ArrayRef, Float64Array, Float64Builder, RecordBatch, StringArray, StringBuilder, UInt64Builder,
+    ArrayRef, BooleanBuilder, Float64Array, Float64Builder, RecordBatch, StringArray,
+    StringBuilder, UInt64Builder,
 };
 use arrow::buffer::NullBuffer;
 use arrow::datatypes::{DataType, Field, Schema, SchemaRef};
 use rayon::prelude::*;
 
-pub use columns::{NotANumber, NumberColumn, TextColumn};
+pub use columns::{BitsColumn, NotANumber, NumberColumn, TextColumn};
 pub use report::{BandCounts, BandStatus, NormalizeReport, Problem};
 
 use super::schema::{
-    AngleUnit, BandColumns, Epoch, EpochUnit, LimitMarker, PositionError, PositionFormat,
-    QualityRule, SurveySchema,
+    AngleUnit, BandColumns, Epoch, EpochUnit, Extended, FlagTest, LimitMarker, NoErrorPolicy,
+    PositionError, PositionFormat, QualityRule, SurveySchema,
 };
+use crate::crossmatch::position_error::{add_extent_arcsec, centroid_sigma_arcsec};
 use crate::error::{Error, Result};
 use crate::photometry::{Conversion, FluxJy, LimitRule};
+
+/// 2.5 / ln 10 = 1.0857362: σ_m = this / SNR to first order (FIELD notes §1.4;
+/// Pogson 1856 relation, arithmetic).
+pub const MAG_ERR_PER_INVERSE_SNR: f64 = 2.5 / std::f64::consts::LN_10;
 
 /// Limit rule for a non-positive flux density in a survey with no rule of its own:
 /// max(F, 0) + 3 sigma (common practice).
@@ -230,8 +249,20 @@ impl Normalizer {
             .schema
             .bands
             .iter()
-            .map(|spec| BandInput::new(spec, batch, &self.path))
+            .map(|spec| BandInput::new(spec, &self.schema, batch, &self.path))
             .collect::<Result<_>>()?;
+        for (column, longest) in report.flag_longest.iter_mut() {
+            *longest = text(batch, column, &self.path)?
+                .longest()
+                .map(|(n, t)| (n, t.to_string()));
+        }
+        let position_band = match &self.schema.position_error {
+            PositionError::SignalToNoise { band, .. } => {
+                bands.iter().find(|b| &b.spec.band.id == band)
+            }
+            _ => None,
+        };
+        let snr_of = |i: usize| position_band.and_then(|b| b.snr_at(i));
         let skip = self.options.skip_bad_rows;
         let bad_value = |i: usize, p: RowProblem| Error::BadValue {
             path: self.path.clone(),
@@ -244,14 +275,20 @@ impl Normalizer {
 
         // Row-level fields first; in strict mode stop at the first bad row, but
         // report a band problem of an earlier row if there is one (below).
-        let mut out = RowBuilders::new(n, &self.schema.survey);
+        let mut out = RowBuilders::new(n, &self.schema.survey, self.schema.forced.is_some());
         let mut kept: Vec<u32> = Vec::with_capacity(n);
+        let mut contexts: Vec<RowContext> = Vec::with_capacity(n);
         let mut row_error: Option<(usize, RowProblem)> = None;
         for i in 0..n {
-            match inputs.read(i, &self.schema) {
+            match inputs.read(i, &self.schema, &snr_of) {
                 Ok(fields) => {
                     out.append(first_row + i as u64, &fields);
                     kept.push(i as u32);
+                    contexts.push(RowContext {
+                        ra_deg: fields.ra_deg,
+                        dec_deg: fields.dec_deg,
+                        forced: fields.forced,
+                    });
                 }
                 Err(p) if skip => {
                     let reason = format!("column \"{}\": expected {}", p.column, p.expected);
@@ -275,10 +312,14 @@ impl Normalizer {
         let mut columns = out.finish();
         let mut band_error: Option<(usize, RowProblem)> = None;
         for (band, counts) in bands.iter().zip(report.bands.iter_mut()) {
-            let mut cols = BandOutput::new(kept.len(), band.spec.has_flux());
+            let mut cols = BandOutput::new(
+                kept.len(),
+                band.spec.has_flux(),
+                band.spec.saturated.is_some(),
+            );
             for (k, &i) in kept.iter().enumerate() {
                 let i = i as usize;
-                let outcome = match band.evaluate(i) {
+                let outcome = match band.evaluate(i, &contexts[k]) {
                     Ok(o) => o,
                     Err(p) if skip => {
                         let reason = format!("unreadable value in column \"{}\"", p.column);
@@ -329,8 +370,56 @@ impl Normalizer {
                     ..BandCounts::default()
                 })
                 .collect(),
+            flag_longest: self.char_columns().into_iter().map(|c| (c, None)).collect(),
             ..NormalizeReport::default()
         }
+    }
+
+    /// The flag columns read by character position, each once.
+    fn char_columns(&self) -> Vec<String> {
+        let mut columns: Vec<String> = Vec::new();
+        for rule in &self.schema.char_rules {
+            if !columns.contains(&rule.column) {
+                columns.push(rule.column.clone());
+            }
+        }
+        columns
+    }
+
+    /// Checks, once every batch is normalized, that each flag rule reading a
+    /// character position finds that position in some value of its column.
+    ///
+    /// # Errors
+    /// [`Error::Config`] naming the schema line of the first rule whose position
+    /// lies beyond every value, with the column, the position and the longest
+    /// value found.
+    pub fn check_flag_positions(&self) -> Result<()> {
+        if self.report.rows_read == 0 {
+            return Ok(());
+        }
+        for rule in &self.schema.char_rules {
+            let longest = self
+                .report
+                .flag_longest
+                .iter()
+                .find(|(c, _)| *c == rule.column)
+                .and_then(|(_, l)| l.clone());
+            let (n, text) = longest.unwrap_or((0, String::new()));
+            if rule.position > n {
+                return Err(Error::config(
+                    &self.schema.path,
+                    rule.line,
+                    format!(
+                        "flag column \"{}\": char {} is beyond every value in {}; the longest value found is \"{}\" ({n} characters)",
+                        rule.column,
+                        rule.position,
+                        self.path.display(),
+                        crate::catalog::limits::one_line(&text)
+                    ),
+                ));
+            }
+        }
+        Ok(())
     }
 }
 
@@ -361,23 +450,31 @@ pub fn output_schema(schema: &SurveySchema) -> SchemaRef {
         ),
         with_unit(Field::new("pmdec_masyr", DataType::Float64, true), "mas/yr"),
     ];
+    if schema.forced.is_some() {
+        fields.push(Field::new(FORCED_COLUMN, DataType::Boolean, false));
+    }
     for band in &schema.bands {
         let id = &band.band.id;
         if band.has_flux() {
+            let saturated = band.saturated.as_ref().map(|_| "sat_jy");
             for suffix in [
                 "flux_jy",
                 "flux_err_jy",
                 "flux_lo_jy",
                 "flux_hi_jy",
                 "ulim_jy",
-            ] {
+            ]
+            .into_iter()
+            .chain(saturated)
+            {
                 fields.push(with_unit(
                     Field::new(format!("{id}_{suffix}"), DataType::Float64, true),
                     "Jy",
                 ));
             }
         } else {
-            for suffix in ["mag", "mag_err", "ulim_mag"] {
+            let saturated = band.saturated.as_ref().map(|_| "sat_mag");
+            for suffix in ["mag", "mag_err", "ulim_mag"].into_iter().chain(saturated) {
                 fields.push(with_unit(
                     Field::new(format!("{id}_{suffix}"), DataType::Float64, true),
                     "mag",
@@ -388,6 +485,10 @@ pub fn output_schema(schema: &SurveySchema) -> SchemaRef {
     }
     Arc::new(Schema::new(fields))
 }
+
+/// The column of normalized tables that marks rows measured by forced
+/// photometry (present only when the schema has a `[forced]` table).
+pub const FORCED_COLUMN: &str = "forced";
 
 /// The type of status columns: text, dictionary-encoded (one byte per row).
 pub fn status_type() -> DataType {
@@ -421,6 +522,57 @@ struct RowFields<'a> {
     epoch_yr: f64,
     ellipse: (f64, f64, f64),
     pm: Option<(f64, f64)>,
+    forced: bool,
+}
+
+/// What a band measurement needs to know of its row.
+struct RowContext {
+    ra_deg: f64,
+    dec_deg: f64,
+    forced: bool,
+}
+
+/// A flag column as its test reads it.
+enum FlagInput {
+    Text(TextColumn),
+    Bits(BitsColumn),
+}
+
+/// What a bit test expects of its column, for messages.
+const BITS_EXPECTED: &str = "a non-negative integer flag (bits tested)";
+
+impl FlagInput {
+    fn new(test: &FlagTest, batch: &RecordBatch, path: &Path) -> Result<FlagInput> {
+        Ok(match test {
+            FlagTest::Text { column, .. } => FlagInput::Text(text(batch, column, path)?),
+            FlagTest::Bits { column, .. } => FlagInput::Bits(bits(batch, column, path)?),
+        })
+    }
+
+    /// Whether row `i` passes `test` (the test this input was made for).
+    #[inline]
+    fn matches(&self, i: usize, test: &FlagTest) -> Result<bool, RowProblem> {
+        match (self, test) {
+            (
+                FlagInput::Text(col),
+                FlagTest::Text {
+                    values,
+                    char_position,
+                    ..
+                },
+            ) => Ok(col.matches(i, values, *char_position)),
+            (FlagInput::Bits(col), FlagTest::Bits { column, mask, all }) => col
+                .matches(i, *mask, *all)
+                .map_err(|e| RowProblem::new(column, BITS_EXPECTED, e.found)),
+            _ => unreachable!("flag inputs are built from their test"),
+        }
+    }
+}
+
+/// The size and flag columns of extended sources.
+struct ExtendedInput {
+    size: Option<NumberColumn>,
+    flag: Option<FlagInput>,
 }
 
 enum Coordinates {
@@ -434,6 +586,8 @@ struct RowInputs {
     errors: Vec<NumberColumn>,
     epoch: Option<NumberColumn>,
     pm: Option<(NumberColumn, NumberColumn)>,
+    extended: Option<ExtendedInput>,
+    forced: Option<FlagInput>,
 }
 
 fn column<'b>(batch: &'b RecordBatch, name: &str, path: &Path) -> Result<&'b ArrayRef> {
@@ -459,6 +613,16 @@ fn numbers(batch: &RecordBatch, name: &str, path: &Path) -> Result<NumberColumn>
         path: path.to_path_buf(),
         column: name.to_string(),
         expected: "numbers (or text holding numbers)".into(),
+        found: array.data_type().to_string(),
+    })
+}
+
+fn bits(batch: &RecordBatch, name: &str, path: &Path) -> Result<BitsColumn> {
+    let array = column(batch, name, path)?;
+    BitsColumn::new(array).ok_or_else(|| Error::ColumnType {
+        path: path.to_path_buf(),
+        column: name.to_string(),
+        expected: "integers (or text holding integers) for a bit test".into(),
         found: array.data_type().to_string(),
     })
 }
@@ -506,7 +670,28 @@ impl RowInputs {
             PositionError::Axes { ra, dec, .. } => {
                 vec![numbers(batch, ra, path)?, numbers(batch, dec, path)?]
             }
+            PositionError::SignalToNoise { .. } => vec![],
         };
+        let extended = match &schema.extended {
+            None => None,
+            Some(e) => Some(ExtendedInput {
+                size: e
+                    .size
+                    .as_ref()
+                    .map(|(c, ..)| numbers(batch, c, path))
+                    .transpose()?,
+                flag: e
+                    .flag
+                    .as_ref()
+                    .map(|t| FlagInput::new(t, batch, path))
+                    .transpose()?,
+            }),
+        };
+        let forced = schema
+            .forced
+            .as_ref()
+            .map(|f| FlagInput::new(&f.test, batch, path))
+            .transpose()?;
         let epoch = match &schema.epoch {
             Epoch::Fixed(_) => None,
             Epoch::Column { column, .. } => Some(numbers(batch, column, path)?),
@@ -524,10 +709,19 @@ impl RowInputs {
             errors,
             epoch,
             pm,
+            extended,
+            forced,
         })
     }
 
-    fn read(&self, i: usize, schema: &SurveySchema) -> Result<RowFields<'_>, RowProblem> {
+    /// The row-level fields of row `i`; `snr_of` gives the signal-to-noise of
+    /// the band a position error of kind `snr` names.
+    fn read(
+        &self,
+        i: usize,
+        schema: &SurveySchema,
+        snr_of: &dyn Fn(usize) -> Option<f64>,
+    ) -> Result<RowFields<'_>, RowProblem> {
         let id = match (&self.id, &schema.id) {
             (Some(col), Some(name)) => match col.get(i) {
                 Some(s) if !s.is_empty() => Some(s),
@@ -592,7 +786,7 @@ impl RowInputs {
                     ))
                 }
             };
-        let ellipse = match &schema.position_error {
+        let mut ellipse = match &schema.position_error {
             PositionError::Fixed { sigma_arcsec } => (*sigma_arcsec, *sigma_arcsec, 0.0),
             PositionError::Circular { column, unit } => {
                 let s = positive(&self.errors[0], column, *unit)?;
@@ -618,6 +812,33 @@ impl RowInputs {
                 let sdec = positive(&self.errors[1], dec, *unit)?;
                 position::axes_to_ellipse(sra, sdec)
             }
+            PositionError::SignalToNoise {
+                band,
+                fwhm_arcsec,
+                floor_arcsec,
+                min_snr,
+            } => {
+                let snr = snr_of(i)
+                    .filter(|s| s.is_finite())
+                    .map_or(*min_snr, |s| s.max(*min_snr));
+                let sigma =
+                    centroid_sigma_arcsec(*fwhm_arcsec, snr, *floor_arcsec).ok_or_else(|| {
+                        RowProblem::new(band, "a positive signal-to-noise ratio", snr.to_string())
+                    })?;
+                (sigma, sigma, 0.0)
+            }
+        };
+        if let (Some(spec), Some(input)) = (&schema.extended, &self.extended) {
+            let r_half = extended_radius(spec, input, i)?;
+            if r_half > 0.0 {
+                // A circular term added to both axes keeps the ellipse's axes.
+                ellipse.0 = add_extent_arcsec(ellipse.0, r_half, Some(spec.coeff));
+                ellipse.1 = add_extent_arcsec(ellipse.1, r_half, Some(spec.coeff));
+            }
+        }
+        let forced = match (&schema.forced, &self.forced) {
+            (Some(spec), Some(input)) => input.matches(i, &spec.test)?,
+            _ => false,
         };
         let pm = match (&self.pm, &schema.proper_motion) {
             (Some((pmra, pmdec)), Some(spec)) => {
@@ -648,8 +869,38 @@ impl RowInputs {
             epoch_yr,
             ellipse,
             pm,
+            forced,
         })
     }
+}
+
+/// The half-light radius (arcsec) of row `i` of an extended-source schema: the
+/// size column's value where given, else the typical size of a flagged row;
+/// with a flag, unflagged rows are point sources (0).
+fn extended_radius(spec: &Extended, input: &ExtendedInput, i: usize) -> Result<f64, RowProblem> {
+    let flagged = match (&spec.flag, &input.flag) {
+        (Some(test), Some(flag)) => Some(flag.matches(i, test)?),
+        _ => None,
+    };
+    if flagged == Some(false) {
+        return Ok(0.0);
+    }
+    let size = match (&spec.size, &input.size) {
+        (Some((column, unit, kind)), Some(col)) => {
+            let expected = "a source size >= 0";
+            match col.get(i, &[], &[]) {
+                Ok(Some(v)) if v >= 0.0 => Some(Extended::half_light_arcsec(*unit, *kind, v)),
+                Ok(Some(v)) => return Err(RowProblem::new(column, expected, v.to_string())),
+                Ok(None) => None,
+                Err(e) => return Err(RowProblem::new(column, expected, e.found)),
+            }
+        }
+        _ => None,
+    };
+    Ok(match flagged {
+        Some(true) => size.or(spec.typical_arcsec).unwrap_or(0.0),
+        _ => size.unwrap_or(0.0),
+    })
 }
 
 fn required(col: &NumberColumn, i: usize, name: &str, expected: &str) -> Result<f64, RowProblem> {
@@ -667,10 +918,11 @@ struct RowBuilders {
     values: [Float64Builder; 6],
     pmra: Float64Builder,
     pmdec: Float64Builder,
+    forced: Option<BooleanBuilder>,
 }
 
 impl RowBuilders {
-    fn new(n: usize, survey: &str) -> RowBuilders {
+    fn new(n: usize, survey: &str, forced: bool) -> RowBuilders {
         RowBuilders {
             survey: survey.to_string(),
             source_id: StringBuilder::with_capacity(n, n * 8),
@@ -678,6 +930,7 @@ impl RowBuilders {
             values: std::array::from_fn(|_| Float64Builder::with_capacity(n)),
             pmra: Float64Builder::with_capacity(n),
             pmdec: Float64Builder::with_capacity(n),
+            forced: forced.then(|| BooleanBuilder::with_capacity(n)),
         }
     }
 
@@ -700,6 +953,9 @@ impl RowBuilders {
         }
         self.pmra.append_option(f.pm.map(|p| p.0));
         self.pmdec.append_option(f.pm.map(|p| p.1));
+        if let Some(b) = &mut self.forced {
+            b.append_value(f.forced);
+        }
     }
 
     fn finish(mut self) -> Vec<ArrayRef> {
@@ -718,6 +974,9 @@ impl RowBuilders {
         }
         cols.push(Arc::new(self.pmra.finish()));
         cols.push(Arc::new(self.pmdec.finish()));
+        if let Some(mut b) = self.forced {
+            cols.push(Arc::new(b.finish()));
+        }
         cols
     }
 }
@@ -733,28 +992,48 @@ enum Outcome {
     NotDetected(Option<f64>),
     Missing,
     Rejected(String),
+    /// A saturated measurement, with its value in output units when there is one.
+    Saturated(Option<f64>),
 }
 
 enum QualityInput {
     Reject(TextColumn),
+    Bits(BitsColumn),
     Range(NumberColumn),
 }
+
+/// Why a marked limit of zero or less cannot be used (counted among rejections).
+const NONPOSITIVE_LIMIT_REASON: &str = "upper limit <= 0 without an error";
 
 struct BandInput<'a> {
     spec: &'a BandColumns,
     conversion: Option<Conversion>,
     value: NumberColumn,
     error: Option<NumberColumn>,
+    snr: Option<NumberColumn>,
     flag: Option<TextColumn>,
+    bits_limit: Option<BitsColumn>,
     limit_column: Option<NumberColumn>,
+    saturated: Option<FlagInput>,
     quality: Vec<QualityInput>,
+    /// Forced rows: S/N threshold and n of max(F, 0) + n sigma.
+    forced: Option<(f64, f64)>,
 }
 
 impl<'a> BandInput<'a> {
-    fn new(spec: &'a BandColumns, batch: &RecordBatch, path: &Path) -> Result<BandInput<'a>> {
+    fn new(
+        spec: &'a BandColumns,
+        schema: &SurveySchema,
+        batch: &RecordBatch,
+        path: &Path,
+    ) -> Result<BandInput<'a>> {
         let conversion = spec.conversion();
         let flag = match &spec.limit {
             Some(LimitMarker::Flag { column, .. }) => Some(text(batch, column, path)?),
+            _ => None,
+        };
+        let bits_limit = match &spec.limit {
+            Some(LimitMarker::Bits { column, .. }) => Some(bits(batch, column, path)?),
             _ => None,
         };
         let limit_column = match &spec.limit {
@@ -768,31 +1047,65 @@ impl<'a> BandInput<'a> {
                 QualityRule::Reject { column, .. } => {
                     Ok(QualityInput::Reject(text(batch, column, path)?))
                 }
+                QualityRule::Bits { column, .. } => {
+                    Ok(QualityInput::Bits(bits(batch, column, path)?))
+                }
                 QualityRule::Range { column, .. } => {
                     Ok(QualityInput::Range(numbers(batch, column, path)?))
                 }
             })
             .collect::<Result<_>>()?;
+        let optional = |c: &Option<String>| c.as_ref().map(|c| numbers(batch, c, path)).transpose();
         Ok(BandInput {
             spec,
             conversion,
             value: numbers(batch, &spec.value, path)?,
-            error: spec
-                .error
-                .as_ref()
-                .map(|c| numbers(batch, c, path))
-                .transpose()?,
+            error: optional(&spec.error)?,
+            snr: optional(&spec.snr)?,
             flag,
+            bits_limit,
             limit_column,
+            saturated: spec
+                .saturated
+                .as_ref()
+                .map(|t| FlagInput::new(t, batch, path))
+                .transpose()?,
             quality,
+            forced: schema.forced.as_ref().map(|f| (f.below, f.n)),
+        })
+    }
+
+    /// The signal-to-noise ratio of row `i`: the S/N column's value where the
+    /// schema names one and the cell has a value, else F/σ (1.085736/σ_m for
+    /// magnitudes, FIELD notes §1.4). `None` when unknown or unreadable.
+    fn snr_at(&self, i: usize) -> Option<f64> {
+        let spec = self.spec;
+        if let Some(col) = &self.snr
+            && let Ok(Some(v)) = col.get(i, &spec.null_text, &spec.nulls)
+        {
+            return Some(v);
+        }
+        let value = self.value.get(i, &spec.null_text, &spec.nulls).ok()??;
+        let err = self
+            .error
+            .as_ref()?
+            .get(i, &spec.null_text, &spec.nulls)
+            .ok()??;
+        if err <= 0.0 {
+            return None;
+        }
+        Some(if spec.unit.is_magnitude() {
+            MAG_ERR_PER_INVERSE_SNR / err
+        } else {
+            value / err
         })
     }
 
     /// The outcome of row `i`; a value whose conversion overflows (a magnitude of
     /// -1000 gives an infinite flux density) is unreadable like text in a
     /// number column.
-    fn evaluate(&self, i: usize) -> Result<Outcome, RowProblem> {
-        let outcome = self.classify(i)?;
+    fn evaluate(&self, i: usize, row: &RowContext) -> Result<Outcome, RowProblem> {
+        let outcome = self.classify(i, row)?;
         let finite = |v: Option<f64>| v.is_none_or(f64::is_finite);
         let (value_ok, error_ok) = match &outcome {
             Outcome::Detected(f) => (
@@ -801,6 +1114,7 @@ impl<'a> BandInput<'a> {
             ),
             Outcome::UpperLimit(limit, noise) => (limit.is_finite(), finite(*noise)),
             Outcome::NotDetected(limit) => (finite(*limit), true),
+            Outcome::Saturated(value) => (finite(*value), true),
             Outcome::Missing | Outcome::Rejected(_) => (true, true),
         };
         if value_ok && error_ok {
@@ -837,7 +1151,70 @@ impl<'a> BandInput<'a> {
         ))
     }
 
-    fn classify(&self, i: usize) -> Result<Outcome, RowProblem> {
+    /// Whether the saturation rule marks row `i`.
+    fn is_saturated(&self, i: usize) -> Result<bool, RowProblem> {
+        match (&self.spec.saturated, &self.saturated) {
+            (Some(test), Some(input)) => input.matches(i, test),
+            _ => Ok(false),
+        }
+    }
+
+    /// The error of row `i` in the value unit: the error column's (a value ≤ 0
+    /// is no error), else derived from the S/N column (σ_m = 1.085736 / SNR for
+    /// magnitudes, σ = |F| / |SNR| for flux densities; FIELD notes §1.4).
+    fn error_at(&self, i: usize, value: f64) -> Result<Option<f64>, RowProblem> {
+        let spec = self.spec;
+        let unreadable = |column: &str, e: NotANumber| {
+            RowProblem::new(
+                column,
+                &format!("a number in unit {}", spec.unit.as_str()),
+                e.found,
+            )
+        };
+        if let (Some(col), Some(name)) = (&self.error, &spec.error) {
+            return Ok(col
+                .get(i, &spec.null_text, &spec.nulls)
+                .map_err(|e| unreadable(name, e))?
+                .filter(|e| *e > 0.0));
+        }
+        let (Some(col), Some(name)) = (&self.snr, &spec.snr) else {
+            return Ok(None);
+        };
+        let snr = col
+            .get(i, &spec.null_text, &spec.nulls)
+            .map_err(|e| RowProblem::new(name, "a signal-to-noise ratio", e.found))?;
+        Ok(match snr {
+            Some(s) if spec.unit.is_magnitude() && s > 0.0 => Some(MAG_ERR_PER_INVERSE_SNR / s),
+            Some(s) if !spec.unit.is_magnitude() && s != 0.0 && value != 0.0 => {
+                Some((value / s).abs())
+            }
+            _ => None,
+        })
+    }
+
+    /// A value the survey marks as an upper limit (flag, bits, limit column, a
+    /// value without error): the value itself when it is a positive flux
+    /// density; a limit ≤ 0 becomes the schema's rule (default max(F, 0) + 3σ)
+    /// when σ is known, else is rejected. Never a limit ≤ 0.
+    fn marked_limit(&self, value: f64, error: Option<f64>) -> Outcome {
+        let spec = self.spec;
+        let limit = spec.to_output(value);
+        let Some(conversion) = &self.conversion else {
+            return Outcome::UpperLimit(limit, None);
+        };
+        if limit > 0.0 {
+            return Outcome::UpperLimit(limit, None);
+        }
+        let rule = spec.limit_rule.unwrap_or(DEFAULT_NONPOSITIVE_RULE);
+        match conversion.to_flux_jy(value, error).err_jy {
+            Some(sigma) if sigma > 0.0 => {
+                Outcome::UpperLimit(rule.limit_jy(limit, sigma), Some(sigma))
+            }
+            _ => Outcome::Rejected(NONPOSITIVE_LIMIT_REASON.into()),
+        }
+    }
+
+    fn classify(&self, i: usize, row: &RowContext) -> Result<Outcome, RowProblem> {
         let spec = self.spec;
         let unreadable = |column: &str, e: NotANumber| {
             RowProblem::new(
@@ -851,13 +1228,24 @@ impl<'a> BandInput<'a> {
             .get(i, &spec.null_text, &spec.nulls)
             .map_err(|e| unreadable(&spec.value, e))?;
         let Some(value) = value else {
+            if self.is_saturated(i)? {
+                return Ok(Outcome::Saturated(None));
+            }
             if let (Some(LimitMarker::Column { column }), Some(col)) =
                 (&spec.limit, &self.limit_column)
                 && let Some(limit) = col
                     .get(i, &spec.null_text, &spec.nulls)
                     .map_err(|e| unreadable(column, e))?
             {
-                return Ok(Outcome::UpperLimit(spec.to_output(limit), None));
+                let error = self.error_at(i, limit)?;
+                return Ok(self.marked_limit(limit, error));
+            }
+            let covered = spec
+                .coverage
+                .as_ref()
+                .is_none_or(|c| c.contains(row.ra_deg, row.dec_deg));
+            if spec.empty_not_detected && covered {
+                return Ok(Outcome::NotDetected(spec.depth.map(|d| spec.to_output(d))));
             }
             return Ok(Outcome::Missing);
         };
@@ -865,6 +1253,9 @@ impl<'a> BandInput<'a> {
             && values.contains(&value)
         {
             return Ok(Outcome::NotDetected(spec.depth.map(|d| spec.to_output(d))));
+        }
+        if self.is_saturated(i)? {
+            return Ok(Outcome::Saturated(Some(spec.to_output(value))));
         }
         for (rule, input) in spec.quality.iter().zip(&self.quality) {
             let rejects = match (rule, input) {
@@ -876,6 +1267,9 @@ impl<'a> BandInput<'a> {
                     },
                     QualityInput::Reject(col),
                 ) => col.matches(i, values, *char_position),
+                (QualityRule::Bits { column, mask, all }, QualityInput::Bits(col)) => col
+                    .matches(i, *mask, *all)
+                    .map_err(|e| RowProblem::new(column, BITS_EXPECTED, e.found))?,
                 (QualityRule::Range { column, min, max }, QualityInput::Range(col)) => {
                     match col.get(i, &[], &[]).map_err(|e| unreadable(column, e))? {
                         Some(v) => min.is_some_and(|m| v < m) || max.is_some_and(|m| v > m),
@@ -888,27 +1282,26 @@ impl<'a> BandInput<'a> {
                 return Ok(Outcome::Rejected(rule.describe()));
             }
         }
-        let error = match (&self.error, &spec.error) {
-            (Some(col), Some(name)) => col
-                .get(i, &spec.null_text, &spec.nulls)
-                .map_err(|e| unreadable(name, e))?
-                .filter(|e| *e > 0.0),
-            _ => None,
+        let error = self.error_at(i, value)?;
+        let flagged = match (&spec.limit, &self.flag, &self.bits_limit) {
+            (
+                Some(LimitMarker::Flag {
+                    values,
+                    char_position,
+                    ..
+                }),
+                Some(flag),
+                _,
+            ) => flag.matches(i, values, *char_position),
+            (Some(LimitMarker::Bits { column, mask, all }), _, Some(col)) => col
+                .matches(i, *mask, *all)
+                .map_err(|e| RowProblem::new(column, BITS_EXPECTED, e.found))?,
+            _ => false,
         };
-        if let (
-            Some(LimitMarker::Flag {
-                values,
-                char_position,
-                ..
-            }),
-            Some(flag),
-        ) = (&spec.limit, &self.flag)
-            && flag.matches(i, values, *char_position)
-        {
-            return Ok(Outcome::UpperLimit(spec.to_output(value), None));
-        }
-        if matches!(spec.limit, Some(LimitMarker::MissingError)) && error.is_none() {
-            return Ok(Outcome::UpperLimit(spec.to_output(value), None));
+        let without_error_is_limit = matches!(spec.limit, Some(LimitMarker::MissingError))
+            || spec.no_error == Some(NoErrorPolicy::Limit);
+        if flagged || (without_error_is_limit && error.is_none()) {
+            return Ok(self.marked_limit(value, error));
         }
         let Some(conversion) = &self.conversion else {
             // Magnitude-only band: kept as magnitudes.
@@ -920,14 +1313,31 @@ impl<'a> BandInput<'a> {
             }));
         };
         let flux = conversion.to_flux_jy(value, error);
-        if let (Some(LimitMarker::SignalToNoise { below, rule }), Some(sigma)) =
-            (&spec.limit, flux.err_jy)
-            && flux.flux_jy / sigma < *below
-        {
-            return Ok(Outcome::UpperLimit(
-                rule.limit_jy(flux.flux_jy, sigma),
-                Some(sigma),
-            ));
+        if let Some(sigma) = flux.err_jy {
+            // The catalog's own S/N where it gives one, else F / sigma.
+            let snr = self
+                .snr
+                .as_ref()
+                .and_then(|c| c.get(i, &spec.null_text, &spec.nulls).ok().flatten())
+                .unwrap_or(flux.flux_jy / sigma);
+            if let Some((below, n)) = self.forced
+                && row.forced
+                && snr < below
+            {
+                let rule = LimitRule::FluxPlusSigma { n };
+                return Ok(Outcome::UpperLimit(
+                    rule.limit_jy(flux.flux_jy, sigma),
+                    Some(sigma),
+                ));
+            }
+            if let Some(LimitMarker::SignalToNoise { below, rule }) = &spec.limit
+                && snr < *below
+            {
+                return Ok(Outcome::UpperLimit(
+                    rule.limit_jy(flux.flux_jy, sigma),
+                    Some(sigma),
+                ));
+            }
         }
         if flux.flux_jy <= 0.0 {
             return Ok(match flux.err_jy {
@@ -946,16 +1356,20 @@ impl<'a> BandInput<'a> {
 /// columns; status codes become text at the end.
 struct BandOutput {
     has_flux: bool,
+    /// Index of the limit column; the saturated value, when kept, follows it.
+    ulim: usize,
     values: Vec<Vec<f64>>,
     valid: Vec<Vec<bool>>,
     status: Vec<u8>,
 }
 
 impl BandOutput {
-    fn new(n: usize, has_flux: bool) -> BandOutput {
-        let count = if has_flux { 5 } else { 3 };
+    fn new(n: usize, has_flux: bool, saturated: bool) -> BandOutput {
+        let ulim = if has_flux { 4 } else { 2 };
+        let count = ulim + 1 + usize::from(saturated);
         BandOutput {
             has_flux,
+            ulim,
             values: (0..count).map(|_| vec![0.0; n]).collect(),
             valid: (0..count).map(|_| vec![false; n]).collect(),
             status: vec![0; n],
@@ -974,7 +1388,8 @@ impl BandOutput {
     #[inline]
     fn set(&mut self, k: usize, outcome: Outcome, counts: &mut BandCounts) -> BandStatus {
         // Flux bands: flux, err, lo, hi, ulim. Magnitude bands: mag, err, ulim.
-        let ulim = self.values.len() - 1;
+        // Then the saturated value, for bands with a saturation rule.
+        let ulim = self.ulim;
         let status = match outcome {
             Outcome::Detected(f) => {
                 self.put(0, k, Some(f.flux_jy));
@@ -993,6 +1408,10 @@ impl BandOutput {
             Outcome::NotDetected(limit) => {
                 self.put(ulim, k, limit);
                 BandStatus::NotDetected
+            }
+            Outcome::Saturated(value) => {
+                self.put(ulim + 1, k, value);
+                BandStatus::Saturated
             }
             Outcome::Missing => BandStatus::Missing,
             Outcome::Rejected(reason) => {
@@ -1022,5 +1441,628 @@ impl BandOutput {
             &names,
         ));
         cols
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::photometry::BandLibrary;
+    use arrow::array::{Array, AsArray};
+    use arrow::datatypes::Float64Type;
+
+    /// Lines 1-17; a test's own keys go on line 18 and after (inside the band).
+    const BASE: &str = r#"survey = "cat"
+format = "csv"
+id = "id"
+
+[position]
+ra = "ra"
+dec = "dec"
+error = { kind = "fixed", arcsec = 0.1 }
+
+[epoch]
+year = 2010.0
+
+[[band]]
+band = "irac_36"
+value = "f"
+unit = "mJy"
+error = "e"
+"#;
+
+    fn schema(text: &str) -> SurveySchema {
+        SurveySchema::from_str(text, Path::new("s.toml"), &BandLibrary::builtin()).unwrap()
+    }
+
+    fn schema_error(text: &str) -> String {
+        SurveySchema::from_str(text, Path::new("s.toml"), &BandLibrary::builtin())
+            .unwrap_err()
+            .to_string()
+    }
+
+    /// A batch of text columns, as the CSV reader gives them (`""` is an empty cell).
+    fn batch(columns: &[(&str, &[&str])]) -> RecordBatch {
+        let fields: Vec<Field> = columns
+            .iter()
+            .map(|(n, _)| Field::new(*n, DataType::Utf8, true))
+            .collect();
+        let arrays: Vec<ArrayRef> = columns
+            .iter()
+            .map(|(_, v)| Arc::new(StringArray::from(v.to_vec())) as ArrayRef)
+            .collect();
+        RecordBatch::try_new(Arc::new(Schema::new(fields)), arrays).unwrap()
+    }
+
+    fn normalize(schema: &SurveySchema, b: &RecordBatch) -> Result<(RecordBatch, Normalizer)> {
+        let mut n = Normalizer::new(schema, Path::new("c.csv"), NormalizeOptions::default());
+        n.check_file(&b.schema())?;
+        let out = n.normalize(b)?;
+        Ok((out, n))
+    }
+
+    fn floats(b: &RecordBatch, name: &str) -> Vec<Option<f64>> {
+        let a = b
+            .column_by_name(name)
+            .unwrap()
+            .as_primitive::<Float64Type>();
+        (0..a.len())
+            .map(|i| a.is_valid(i).then(|| a.value(i)))
+            .collect()
+    }
+
+    fn statuses(b: &RecordBatch, name: &str) -> Vec<String> {
+        let a = arrow::compute::cast(b.column_by_name(name).unwrap(), &DataType::Utf8).unwrap();
+        a.as_string::<i32>()
+            .iter()
+            .map(|s| s.unwrap().to_string())
+            .collect()
+    }
+
+    #[track_caller]
+    fn close(got: Option<f64>, want: f64) {
+        let got = got.expect("a value");
+        assert!(
+            (got - want).abs() <= 1e-12 * want.abs().max(1e-12),
+            "{got} != {want}"
+        );
+    }
+
+    const POS: [(&str, &[&str]); 3] = [
+        ("id", &["a", "b", "c"]),
+        ("ra", &["10.0", "10.1", "10.2"]),
+        ("dec", &["60.0", "60.0", "-60.0"]),
+    ];
+
+    fn with_pos(extra: &[(&'static str, &'static [&'static str])]) -> RecordBatch {
+        let mut cols: Vec<(&str, &[&str])> = POS.to_vec();
+        cols.extend_from_slice(extra);
+        batch(&cols)
+    }
+
+    #[test]
+    fn a_bit_of_an_integer_flag_marks_an_upper_limit() {
+        let s = schema(&format!(
+            "{BASE}limit = {{ kind = \"flag\", column = \"fl\", bit = 3 }}\n"
+        ));
+        // 8 = bit 3; 4 = bit 2 only; empty = no bits.
+        let b = with_pos(&[
+            ("f", &["2.0", "2.0", "2.0"]),
+            ("e", &["0.1", "0.1", "0.1"]),
+            ("fl", &["8", "4", ""]),
+        ]);
+        let (out, n) = normalize(&s, &b).unwrap();
+        assert_eq!(
+            statuses(&out, "irac_36_status"),
+            ["upper_limit", "detected", "detected"]
+        );
+        // The limit is the value itself: 2 mJy = 0.002 Jy.
+        close(floats(&out, "irac_36_ulim_jy")[0], 0.002);
+        assert_eq!(floats(&out, "irac_36_flux_jy")[0], None);
+        assert_eq!(n.report().bands[0].count(BandStatus::UpperLimit), 1);
+
+        let bad = with_pos(&[
+            ("f", &["2.0", "2.0", "2.0"]),
+            ("e", &["0.1", "0.1", "0.1"]),
+            ("fl", &["8", "4", "3.5"]),
+        ]);
+        assert_eq!(
+            normalize(&s, &bad).err().unwrap().to_string(),
+            "c.csv: row 3, column \"fl\": expected a non-negative integer flag (bits tested), found \"3.5\""
+        );
+    }
+
+    #[test]
+    fn a_quality_bit_test_rejects_with_its_reason() {
+        let s = schema(&format!(
+            "{BASE}quality = [{{ column = \"fl\", mask = 0x30, all = true }}]\n"
+        ));
+        // 0x30 = 48: both bits; 0x10 = 16: one of them.
+        let b = with_pos(&[
+            ("f", &["2.0", "2.0", "2.0"]),
+            ("e", &["0.1", "0.1", "0.1"]),
+            ("fl", &["48", "16", "0"]),
+        ]);
+        let (out, n) = normalize(&s, &b).unwrap();
+        assert_eq!(
+            statuses(&out, "irac_36_status"),
+            ["rejected", "detected", "detected"]
+        );
+        assert_eq!(
+            n.report().bands[0]
+                .rejected_by
+                .get("fl has all of bits 0x30"),
+            Some(&1)
+        );
+    }
+
+    #[test]
+    fn saturated_values_are_neither_detections_nor_limits() {
+        let s = schema(&format!(
+            "{BASE}saturated = {{ column = \"fl\", mask = 0x0c }}\n"
+        ));
+        // 4 and 8 are bits of 0x0c; 1 is not. The third value is empty but flagged.
+        let b = with_pos(&[
+            ("f", &["500.0", "2.0", ""]),
+            ("e", &["0.1", "0.1", ""]),
+            ("fl", &["4", "1", "8"]),
+        ]);
+        let (out, n) = normalize(&s, &b).unwrap();
+        assert_eq!(
+            statuses(&out, "irac_36_status"),
+            ["saturated", "detected", "saturated"]
+        );
+        assert_eq!(floats(&out, "irac_36_flux_jy")[0], None);
+        assert_eq!(floats(&out, "irac_36_ulim_jy")[0], None);
+        assert_eq!(floats(&out, "irac_36_flux_err_jy")[0], None);
+        // The measured value stays, in a column of its own: 500 mJy = 0.5 Jy.
+        let sat = floats(&out, "irac_36_sat_jy");
+        close(sat[0], 0.5);
+        assert_eq!((sat[1], sat[2]), (None, None));
+        assert_eq!(n.report().bands[0].count(BandStatus::Saturated), 2);
+        assert_eq!(n.report().bands[0].count(BandStatus::Detected), 1);
+        // Without a saturation rule, no such column.
+        let plain = output_schema(&schema(BASE));
+        assert!(plain.field_with_name("irac_36_sat_jy").is_err());
+    }
+
+    #[test]
+    fn forced_rows_below_the_threshold_become_limits_and_carry_their_marker() {
+        let s = schema(&BASE.replace(
+            "[[band]]",
+            "[forced]\ncolumn = \"fp\"\nvalues = [\"1\"]\n\n[[band]]",
+        ));
+        // S/N 2 (forced), -2 (forced), 2 (not forced): default threshold 3, n = 3.
+        let b = with_pos(&[
+            ("f", &["1.0", "-1.0", "1.0"]),
+            ("e", &["0.5", "0.5", "0.5"]),
+            ("fp", &["1", "1", "0"]),
+        ]);
+        let (out, _) = normalize(&s, &b).unwrap();
+        assert_eq!(
+            statuses(&out, "irac_36_status"),
+            ["upper_limit", "upper_limit", "detected"]
+        );
+        // max(F, 0) + 3 sigma: 1 + 1.5 = 2.5 mJy; 0 + 1.5 = 1.5 mJy (by hand).
+        let ulim = floats(&out, "irac_36_ulim_jy");
+        close(ulim[0], 0.0025);
+        close(ulim[1], 0.0015);
+        close(floats(&out, "irac_36_flux_err_jy")[0], 0.0005);
+        let forced = out.column_by_name(FORCED_COLUMN).unwrap().as_boolean();
+        assert_eq!(
+            (0..3).map(|i| forced.value(i)).collect::<Vec<_>>(),
+            [true, true, false]
+        );
+        let table = crate::crossmatch::SourceTable::from_batches("cat", &[out], Path::new("c.csv"))
+            .unwrap();
+        assert!(table.is_forced(0) && table.is_forced(1) && !table.is_forced(2));
+        assert!(table.has_forced());
+        // Without [forced], no marker column and nothing forced.
+        let (plain, _) = normalize(&schema(BASE), &b).unwrap();
+        assert!(plain.column_by_name(FORCED_COLUMN).is_none());
+        let table =
+            crate::crossmatch::SourceTable::from_batches("cat", &[plain], Path::new("c.csv"))
+                .unwrap();
+        assert!(!table.has_forced() && !table.is_forced(0));
+    }
+
+    #[test]
+    fn forced_rows_take_their_own_threshold_and_n() {
+        let s = schema(&BASE.replace(
+            "[[band]]",
+            "[forced]\ncolumn = \"fl\"\nbit = 0\nbelow = 5.0\nn = 2.0\n\n[[band]]",
+        ));
+        // S/N 4 < 5 for the forced row (bit 0 set); the other is not forced.
+        let b = with_pos(&[
+            ("f", &["2.0", "2.0", "2.0"]),
+            ("e", &["0.5", "0.5", "0.5"]),
+            ("fl", &["1", "2", ""]),
+        ]);
+        let (out, _) = normalize(&s, &b).unwrap();
+        assert_eq!(
+            statuses(&out, "irac_36_status"),
+            ["upper_limit", "detected", "detected"]
+        );
+        // 2 + 2 x 0.5 = 3 mJy (by hand).
+        close(floats(&out, "irac_36_ulim_jy")[0], 0.003);
+    }
+
+    #[test]
+    fn empty_means_not_detected_where_the_band_covers() {
+        let dir = tempfile::tempdir().unwrap();
+        // Order-0 NESTED cells 0-3 are the northern cap: Dec +60 in, Dec -60 out
+        // (the base-pixel numbering of Górski et al. 2005, ApJ 622, 759; from memory).
+        std::fs::write(dir.path().join("band_moc.txt"), "0/0-3\n").unwrap();
+        let text = format!("{BASE}depth = 0.05\nempty = \"not_detected\"\n");
+        let everywhere = schema(&text);
+        let b = with_pos(&[("f", &["", "NaN", ""]), ("e", &["", "", ""])]);
+        let (out, n) = normalize(&everywhere, &b).unwrap();
+        assert_eq!(
+            statuses(&out, "irac_36_status"),
+            ["not_detected", "not_detected", "not_detected"]
+        );
+        // The limit is the depth: 0.05 mJy.
+        close(floats(&out, "irac_36_ulim_jy")[0], 5e-5);
+        assert_eq!(n.report().bands[0].count(BandStatus::NotDetected), 3);
+
+        let path = dir.path().join("s.toml");
+        let covered = SurveySchema::from_str(
+            &format!("{text}coverage = \"band_moc.txt\"\n"),
+            &path,
+            &BandLibrary::builtin(),
+        )
+        .unwrap();
+        let (out, _) = normalize(&covered, &b).unwrap();
+        assert_eq!(
+            statuses(&out, "irac_36_status"),
+            ["not_detected", "not_detected", "missing"]
+        );
+        // Without the setting an empty value stays missing.
+        let (out, _) = normalize(&schema(BASE), &b).unwrap();
+        assert_eq!(
+            statuses(&out, "irac_36_status"),
+            ["missing", "missing", "missing"]
+        );
+    }
+
+    #[test]
+    fn errors_come_from_a_signal_to_noise_column() {
+        // Vega magnitudes with S/N 10: sigma_m = 1.0857362 / 10, so sigma_F / F =
+        // 0.921034 x 0.10857362 = 0.1 (FIELD notes §1.4, first order).
+        let text = BASE.replace(
+            "unit = \"mJy\"\nerror = \"e\"",
+            "unit = \"vega_mag\"\nsnr = \"sn\"",
+        );
+        let b = with_pos(&[("f", &["10.0", "10.0", "10.0"]), ("sn", &["10", "", "0"])]);
+        let (out, _) = normalize(&schema(&text), &b).unwrap();
+        let flux = floats(&out, "irac_36_flux_jy");
+        let err = floats(&out, "irac_36_flux_err_jy");
+        // 10 mag on the 280.9 Jy zero point (Reach et al. 2005): 0.02809 Jy.
+        close(flux[0], 0.02809);
+        close(err[0], 0.002809);
+        // No S/N, or S/N 0: no error.
+        assert_eq!((err[1], err[2]), (None, None));
+
+        // Flux densities: sigma = |F| / S/N, and the column's S/N decides limits.
+        let text = BASE.replace("error = \"e\"", "snr = \"sn\"")
+            + "limit = { kind = \"snr\", below = 5.0, rule = \"flux_plus_sigma\", n = 3.0 }\n";
+        let b = with_pos(&[("f", &["2.0", "2.0", "-2.0"]), ("sn", &["4", "8", "-4"])]);
+        let (out, _) = normalize(&schema(&text), &b).unwrap();
+        assert_eq!(
+            statuses(&out, "irac_36_status"),
+            ["upper_limit", "detected", "upper_limit"]
+        );
+        // sigma = 0.5 mJy: 2 + 1.5 = 3.5 mJy; 0 + 1.5 = 1.5 mJy; detection error 0.25 mJy.
+        let ulim = floats(&out, "irac_36_ulim_jy");
+        close(ulim[0], 0.0035);
+        close(ulim[2], 0.0015);
+        close(floats(&out, "irac_36_flux_err_jy")[1], 0.00025);
+
+        // With an error column too, the error is the column's and the S/N the catalog's.
+        let text = BASE.to_string()
+            + "snr = \"sn\"\nlimit = { kind = \"snr\", below = 3.0, rule = \"sigma\", n = 3.0 }\n";
+        let b = with_pos(&[
+            ("f", &["2.0", "2.0", "2.0"]),
+            ("e", &["0.1", "0.1", "0.1"]),
+            ("sn", &["2", "20", ""]),
+        ]);
+        let (out, _) = normalize(&schema(&text), &b).unwrap();
+        assert_eq!(
+            statuses(&out, "irac_36_status"),
+            ["upper_limit", "detected", "detected"]
+        );
+        close(floats(&out, "irac_36_ulim_jy")[0], 0.0003);
+    }
+
+    #[test]
+    fn a_flag_position_beyond_every_value_names_the_schema_line() {
+        let s = schema(&format!(
+            "{BASE}limit = {{ kind = \"flag\", column = \"q\", values = [\"U\"], char = 4 }}\n"
+        ));
+        let b = with_pos(&[
+            ("f", &["2.0", "2.0", "2.0"]),
+            ("e", &["0.1", "0.1", "0.1"]),
+            ("q", &["AAU", "AU", ""]),
+        ]);
+        let (_, n) = normalize(&s, &b).unwrap();
+        assert_eq!(
+            n.check_flag_positions().unwrap_err().to_string(),
+            "s.toml:18: flag column \"q\": char 4 is beyond every value in c.csv; the longest value found is \"AAU\" (3 characters)"
+        );
+        // Quality rules and saturation flags are checked the same way.
+        let s = schema(&format!(
+            "{BASE}quality = [{{ column = \"q\", reject = [\"X\"], char = 3 }}]\nsaturated = {{ column = \"q\", values = [\"S\"], char = 5 }}\n"
+        ));
+        let (_, n) = normalize(&s, &b).unwrap();
+        assert_eq!(
+            n.check_flag_positions().unwrap_err().to_string(),
+            "s.toml:19: flag column \"q\": char 5 is beyond every value in c.csv; the longest value found is \"AAU\" (3 characters)"
+        );
+        // A position some value reaches passes, even if other values are shorter.
+        let s = schema(&format!(
+            "{BASE}limit = {{ kind = \"flag\", column = \"q\", values = [\"U\"], char = 3 }}\n"
+        ));
+        let (out, n) = normalize(&s, &b).unwrap();
+        n.check_flag_positions().unwrap();
+        assert_eq!(
+            statuses(&out, "irac_36_status"),
+            ["upper_limit", "detected", "detected"]
+        );
+    }
+
+    #[test]
+    fn a_flagged_limit_is_never_zero_or_negative() {
+        let flag = "limit = { kind = \"flag\", column = \"q\", values = [\"<\"] }\n";
+        let b = with_pos(&[
+            ("f", &["-0.3", "0.0", "-0.3"]),
+            ("e", &["0.2", "0.2", ""]),
+            ("q", &["<", "<", "<"]),
+        ]);
+        let (out, n) = normalize(&schema(&format!("{BASE}{flag}")), &b).unwrap();
+        assert_eq!(
+            statuses(&out, "irac_36_status"),
+            ["upper_limit", "upper_limit", "rejected"]
+        );
+        // max(F, 0) + 3 sigma = 0.6 mJy for both (common practice default).
+        let ulim = floats(&out, "irac_36_ulim_jy");
+        close(ulim[0], 0.0006);
+        close(ulim[1], 0.0006);
+        assert_eq!(ulim[2], None);
+        close(floats(&out, "irac_36_flux_err_jy")[0], 0.0002);
+        assert_eq!(
+            n.report().bands[0]
+                .rejected_by
+                .get("upper limit <= 0 without an error"),
+            Some(&1)
+        );
+        // The schema's own rule: n x sigma with n = 2 gives 0.4 mJy.
+        let own = flag.replace(" }", ", rule = \"sigma\", n = 2.0 }");
+        let (out, _) = normalize(&schema(&format!("{BASE}{own}")), &b).unwrap();
+        close(floats(&out, "irac_36_ulim_jy")[0], 0.0004);
+        // A positive flagged value is the limit as it stands.
+        let b = with_pos(&[
+            ("f", &["0.3", "0.3", "0.3"]),
+            ("e", &["0.2", "", "0.2"]),
+            ("q", &["<", "<", ""]),
+        ]);
+        let (out, _) = normalize(&schema(&format!("{BASE}{flag}")), &b).unwrap();
+        close(floats(&out, "irac_36_ulim_jy")[0], 0.0003);
+        close(floats(&out, "irac_36_ulim_jy")[1], 0.0003);
+    }
+
+    #[test]
+    fn a_magnitude_band_states_what_its_missing_errors_mean() {
+        let no_err = BASE.replace("unit = \"mJy\"\nerror = \"e\"\n", "unit = \"vega_mag\"\n");
+        assert_eq!(
+            schema_error(&no_err),
+            "s.toml:13: band \"irac_36\" gives magnitudes without an error column; name it with error = \"...\", give the signal-to-noise with snr = \"...\", or say what the values are with no_error = \"unknown\" (measurements whose errors are unknown) or no_error = \"limit\" (every value is an upper limit)"
+        );
+        let b = with_pos(&[("f", &["10.0", "10.0", ""])]);
+        let (out, _) =
+            normalize(&schema(&format!("{no_err}no_error = \"unknown\"\n")), &b).unwrap();
+        assert_eq!(
+            statuses(&out, "irac_36_status"),
+            ["detected", "detected", "missing"]
+        );
+        close(floats(&out, "irac_36_flux_jy")[0], 0.02809);
+        assert_eq!(floats(&out, "irac_36_flux_err_jy")[0], None);
+        let (out, _) = normalize(&schema(&format!("{no_err}no_error = \"limit\"\n")), &b).unwrap();
+        assert_eq!(
+            statuses(&out, "irac_36_status"),
+            ["upper_limit", "upper_limit", "missing"]
+        );
+        close(floats(&out, "irac_36_ulim_jy")[0], 0.02809);
+        // Flux-density bands need no policy.
+        let flux = BASE.replace("error = \"e\"\n", "");
+        assert!(
+            SurveySchema::from_str(&flux, Path::new("s.toml"), &BandLibrary::builtin()).is_ok()
+        );
+        assert_eq!(
+            schema_error(&format!("{BASE}no_error = \"unknown\"\n")),
+            "s.toml:18: no_error says what a band without an error column means; this band has an error or snr column"
+        );
+        assert_eq!(
+            schema_error(&format!("{no_err}no_error = \"maybe\"\n")),
+            "s.toml:17: no_error \"maybe\" is unknown; expected \"unknown\" (measurements whose errors are unknown) or \"limit\" (every value is an upper limit)"
+        );
+    }
+
+    #[test]
+    fn a_position_error_from_signal_to_noise() {
+        let text = BASE.replace(
+            "error = { kind = \"fixed\", arcsec = 0.1 }",
+            "error = { kind = \"snr\", band = \"irac_36\", fwhm_arcsec = 1.66, floor_arcsec = 0.1 }",
+        );
+        // S/N 10, and no value (taken at the default min_snr 3).
+        let b = with_pos(&[("f", &["1.0", "", "1.0"]), ("e", &["0.1", "", "0.5"])]);
+        let (out, _) = normalize(&schema(&text), &b).unwrap();
+        let major = floats(&out, "pos_err_major_arcsec");
+        let minor = floats(&out, "pos_err_minor_arcsec");
+        // sqrt((0.600561 x 1.66 / 10)^2 + 0.1^2) = 0.141205 (FIELD notes §5.12, by hand);
+        // at S/N 3: 0.347031; S/N 2 is below min_snr 3, so also 0.347031.
+        close(major[0], 0.141_204_554_234_925_67);
+        close(minor[0], 0.141_204_554_234_925_67);
+        close(major[1], 0.347_030_676_464_777_1);
+        close(major[2], 0.347_030_676_464_777_1);
+
+        let unknown = text.replace("band = \"irac_36\", fwhm", "band = \"irac_45\", fwhm");
+        assert_eq!(
+            schema_error(&unknown),
+            "s.toml:8: position error of kind \"snr\" names band \"irac_45\", which is not a band of this schema (it has: irac_36)"
+        );
+        let no_fwhm = text.replace("fwhm_arcsec = 1.66, ", "");
+        assert_eq!(
+            schema_error(&no_fwhm),
+            "s.toml:8: position error of kind \"snr\" needs \"fwhm_arcsec\" (the survey's PSF FWHM)"
+        );
+        let no_noise = text.replace("error = \"e\"\n", "");
+        assert_eq!(
+            schema_error(&no_noise),
+            "s.toml:8: position error of kind \"snr\" needs the signal-to-noise of band \"irac_36\", which has neither an error nor an snr column"
+        );
+    }
+
+    #[test]
+    fn extended_sources_grow_their_positional_error() {
+        // c = 0.2 (default), r_half 1": sqrt(0.1^2 + 0.2^2) = 0.223607" (FIELD notes §5.13, by hand).
+        let sized = BASE.replace(
+            "error = { kind = \"fixed\", arcsec = 0.1 }",
+            "error = { kind = \"fixed\", arcsec = 0.1 }\nextended = { size = \"rh\", unit = \"arcsec\" }",
+        );
+        let b = with_pos(&[
+            ("f", &["1.0", "1.0", "1.0"]),
+            ("e", &["0.1", "0.1", "0.1"]),
+            ("rh", &["1.0", "", "0"]),
+            ("ext", &["1", "1", "0"]),
+        ]);
+        let (out, _) = normalize(&schema(&sized), &b).unwrap();
+        let major = floats(&out, "pos_err_major_arcsec");
+        close(major[0], 0.223_606_797_749_979);
+        close(
+            floats(&out, "pos_err_minor_arcsec")[0],
+            0.223_606_797_749_979,
+        );
+        close(major[1], 0.1);
+        close(major[2], 0.1);
+        // A Gaussian FWHM of 2" is a half-light radius of 1".
+        let fwhm = sized
+            .replace(
+                "unit = \"arcsec\" }",
+                "unit = \"arcsec\", kind = \"gaussian_fwhm\" }",
+            )
+            .replace("rh", "fw");
+        let b2 = with_pos(&[
+            ("f", &["1.0", "1.0", "1.0"]),
+            ("e", &["0.1", "0.1", "0.1"]),
+            ("fw", &["2.0", "", ""]),
+        ]);
+        let (out, _) = normalize(&schema(&fwhm), &b2).unwrap();
+        close(
+            floats(&out, "pos_err_major_arcsec")[0],
+            0.223_606_797_749_979,
+        );
+        // A flag with a typical size: 1.5" gives sqrt(0.01 + 0.09) = 0.316228".
+        let flagged = BASE.replace(
+            "error = { kind = \"fixed\", arcsec = 0.1 }",
+            "error = { kind = \"fixed\", arcsec = 0.1 }\nextended = { flag = { column = \"ext\", values = [\"1\"] }, typical_arcsec = 1.5 }",
+        );
+        let (out, _) = normalize(&schema(&flagged), &b).unwrap();
+        let major = floats(&out, "pos_err_major_arcsec");
+        close(major[0], 0.316_227_766_016_837_94);
+        close(major[1], 0.316_227_766_016_837_94);
+        close(major[2], 0.1);
+        // Size and flag: flagged rows use their size, else the typical size;
+        // unflagged rows stay point sources.
+        let both = BASE.replace(
+            "error = { kind = \"fixed\", arcsec = 0.1 }",
+            "error = { kind = \"fixed\", arcsec = 0.1 }\nextended = { size = \"rh\", flag = { column = \"ext\", values = [\"1\"] }, typical_arcsec = 1.5 }",
+        );
+        let b3 = with_pos(&[
+            ("f", &["1.0", "1.0", "1.0"]),
+            ("e", &["0.1", "0.1", "0.1"]),
+            ("rh", &["1.0", "", "3.0"]),
+            ("ext", &["1", "1", "0"]),
+        ]);
+        let (out, _) = normalize(&schema(&both), &b3).unwrap();
+        let major = floats(&out, "pos_err_major_arcsec");
+        close(major[0], 0.223_606_797_749_979);
+        close(major[1], 0.316_227_766_016_837_94);
+        close(major[2], 0.1);
+        // A negative size is bad input.
+        let bad = with_pos(&[
+            ("f", &["1.0", "1.0", "1.0"]),
+            ("e", &["0.1", "0.1", "0.1"]),
+            ("rh", &["1.0", "-2", ""]),
+        ]);
+        assert_eq!(
+            normalize(&schema(&sized), &bad).err().unwrap().to_string(),
+            "c.csv: row 2, column \"rh\": expected a source size >= 0, found \"-2\""
+        );
+    }
+
+    #[test]
+    fn new_settings_refuse_impossible_values_with_their_line() {
+        let band = |extra: &str| schema_error(&format!("{BASE}{extra}\n"));
+        assert_eq!(
+            band("limit = { kind = \"flag\", column = \"fl\", bit = 64 }"),
+            "s.toml:18: bit must be a bit number in [0, 63] (0 is the least significant), found 64"
+        );
+        assert_eq!(
+            band("limit = { kind = \"flag\", column = \"fl\", bit = 1, mask = 3 }"),
+            "s.toml:18: a bit test takes either bit = k (one bit) or mask = m (several), not both"
+        );
+        assert_eq!(
+            band("saturated = { column = \"fl\", mask = 0 }"),
+            "s.toml:18: mask must be a positive integer such as 0x0c, found 0"
+        );
+        assert_eq!(
+            band("saturated = { column = \"fl\", mask = 4, values = [\"S\"] }"),
+            "s.toml:18: a bit test (bit or mask) reads an integer column; it takes no values or char"
+        );
+        assert_eq!(
+            band("saturated = { column = \"fl\", values = [\"S\"], all = true }"),
+            "s.toml:18: all applies only to a bit test (mask)"
+        );
+        assert_eq!(
+            band("empty = \"nothing\""),
+            "s.toml:18: empty \"nothing\" is unknown; expected \"not_detected\" (an empty value is a non-detection where the band covers) or \"missing\" (the default)"
+        );
+        assert_eq!(
+            band("coverage = \"moc.txt\""),
+            "s.toml:18: coverage is the band's footprint for empty = \"not_detected\"; set that too"
+        );
+        assert_eq!(
+            band("limit = { kind = \"sentinel\", values = [99.0], n = 2.0 }"),
+            "s.toml:18: limit kind \"sentinel\" gives no value to bound; rule and n do not apply"
+        );
+        let forced = |keys: &str| {
+            schema_error(&BASE.replace("[[band]]", &format!("[forced]\n{keys}\n\n[[band]]")))
+        };
+        assert_eq!(
+            forced("column = \"fp\"\nvalues = [\"1\"]\nbelow = 0.0"),
+            "s.toml:13: forced \"below\" must lie in (0, 1000], found 0"
+        );
+        let extended = |value: &str| {
+            schema_error(&BASE.replace(
+                "error = { kind = \"fixed\", arcsec = 0.1 }",
+                &format!("error = {{ kind = \"fixed\", arcsec = 0.1 }}\nextended = {value}"),
+            ))
+        };
+        assert_eq!(
+            extended("{ coeff = 0.2 }"),
+            "s.toml:9: extended needs size = \"column\" (a size per source), flag = { ... } (which rows are extended), or both"
+        );
+        assert_eq!(
+            extended("{ flag = { column = \"ext\", values = [\"1\"] } }"),
+            "s.toml:9: an extended flag without a size column needs typical_arcsec (the survey's typical half-light radius)"
+        );
+        assert_eq!(
+            extended("{ size = \"rh\", kind = \"petrosian\" }"),
+            "s.toml:9: extended size kind \"petrosian\" is unknown; expected half_light, gaussian_fwhm or exponential_scale"
+        );
+        assert_eq!(
+            extended("{ size = \"rh\", coeff = 2.0 }"),
+            "s.toml:9: extended coeff must lie in (0, 1] (sigma_ext = coeff x half-light radius), found 2"
+        );
     }
 }

@@ -20,16 +20,20 @@ pub enum BandStatus {
     Missing,
     /// A value was present but a quality rule or a parse failure rejected it.
     Rejected,
+    /// The schema's saturation rule marks the value: kept apart, neither a
+    /// detection nor a limit.
+    Saturated,
 }
 
 impl BandStatus {
     /// All statuses, in report order.
-    pub const ALL: [BandStatus; 5] = [
+    pub const ALL: [BandStatus; 6] = [
         BandStatus::Detected,
         BandStatus::UpperLimit,
         BandStatus::NotDetected,
         BandStatus::Missing,
         BandStatus::Rejected,
+        BandStatus::Saturated,
     ];
 
     /// The text written in `<band>_status` columns.
@@ -40,6 +44,7 @@ impl BandStatus {
             BandStatus::NotDetected => "not_detected",
             BandStatus::Missing => "missing",
             BandStatus::Rejected => "rejected",
+            BandStatus::Saturated => "saturated",
         }
     }
 }
@@ -50,7 +55,7 @@ pub struct BandCounts {
     /// Band id.
     pub band: String,
     /// Measurements per status, in [`BandStatus::ALL`] order.
-    pub by_status: [u64; 5],
+    pub by_status: [u64; BandStatus::ALL.len()],
     /// Rejections per reason.
     pub rejected_by: BTreeMap<String, u64>,
 }
@@ -115,6 +120,10 @@ pub struct NormalizeReport {
     pub problems: Vec<Problem>,
     /// Total number of problems met (may exceed the examples kept).
     pub problem_count: u64,
+    /// Per flag column read by character position: the longest value met
+    /// (characters, text), to check the positions against the data.
+    #[serde(skip)]
+    pub(super) flag_longest: Vec<(String, Option<(usize, String)>)>,
 }
 
 impl NormalizeReport {
@@ -139,6 +148,13 @@ impl NormalizeReport {
             }
             for (reason, count) in theirs.rejected_by {
                 *mine.rejected_by.entry(reason).or_insert(0) += count;
+            }
+        }
+        for ((_, mine), (_, theirs)) in self.flag_longest.iter_mut().zip(part.flag_longest) {
+            if let Some((n, text)) = theirs
+                && mine.as_ref().is_none_or(|(m, _)| n > *m)
+            {
+                *mine = Some((n, text));
             }
         }
         let total = self.problem_count + part.problem_count;

@@ -1,0 +1,205 @@
+//! The schema conventions end to end: saturated values, forced-photometry rows
+//! and bit flags through `fluxloom build` into the SED tables and the science
+//! layer's reading of them. Invented catalogs of an invented field.
+
+mod common;
+
+use std::fs;
+use std::path::Path;
+use std::process::Command;
+
+use arrow::array::{Array, AsArray, RecordBatch};
+use arrow::datatypes::{DataType, Float64Type};
+
+use common::read_parquet;
+use fluxloom::science::sed_table::FieldSeds;
+
+fn text(batch: &RecordBatch, name: &str) -> Vec<String> {
+    let a = arrow::compute::cast(batch.column_by_name(name).unwrap(), &DataType::Utf8).unwrap();
+    a.as_string::<i32>()
+        .iter()
+        .map(|s| s.unwrap_or("").to_string())
+        .collect()
+}
+
+fn floats(batch: &RecordBatch, name: &str) -> Vec<Option<f64>> {
+    let a = batch
+        .column_by_name(name)
+        .unwrap()
+        .as_primitive::<Float64Type>();
+    (0..a.len())
+        .map(|i| a.is_valid(i).then(|| a.value(i)))
+        .collect()
+}
+
+const DETECTIONS: &str = "# invented detections; flags bit 2 or 3 = saturated
+id,ra,dec,f36,e36,flags
+d1,150.0000,10.0,2.0,0.1,0
+d2,150.0100,10.0,900.0,0.1,4
+d3,150.0200,10.0,3.0,0.1,1
+";
+
+/// Forced photometry at d1 and d3, and a forced row with nothing under it.
+const FORCED: &str = "# invented forced photometry; fp = 1 marks a forced row
+id,ra,dec,f24,e24,fp
+p1,150.0000,10.0,0.5,0.5,1
+p2,150.0500,10.0,0.4,0.5,1
+p3,150.0200,10.0,6.0,0.5,0
+";
+
+const DET_SCHEMA: &str = r#"survey = "det"
+format = "csv"
+id = "id"
+
+[position]
+ra = "ra"
+dec = "dec"
+error = { kind = "fixed", arcsec = 0.1 }
+
+[epoch]
+year = 2016.0
+
+[[band]]
+band = "irac_36"
+value = "f36"
+unit = "mJy"
+error = "e36"
+saturated = { column = "flags", mask = 0x0c }
+"#;
+
+const FORCED_SCHEMA: &str = r#"survey = "phot"
+format = "csv"
+id = "id"
+
+[position]
+ra = "ra"
+dec = "dec"
+error = { kind = "fixed", arcsec = 0.1 }
+
+[epoch]
+year = 2016.0
+
+[forced]
+column = "fp"
+values = ["1"]
+
+[[band]]
+band = "mips_24"
+value = "f24"
+unit = "mJy"
+error = "e24"
+"#;
+
+const PLAN: &str = r#"[field]
+name = "conv"
+reference_epoch = 2016.0
+area_deg2 = 0.01
+
+[match]
+tolerance = { kind = "sigma", k = 3.439, max_arcsec = 2.0 }
+
+[[catalog]]
+file = "det.csv"
+schema = "det.toml"
+
+[[catalog]]
+file = "phot.csv"
+schema = "phot.toml"
+
+[output]
+folder = "out"
+"#;
+
+fn build(dir: &Path) -> std::path::PathBuf {
+    for (name, body) in [
+        ("det.csv", DETECTIONS),
+        ("phot.csv", FORCED),
+        ("det.toml", DET_SCHEMA),
+        ("phot.toml", FORCED_SCHEMA),
+        ("plan.toml", PLAN),
+    ] {
+        fs::write(dir.join(name), body).unwrap();
+    }
+    let out = dir.join("out");
+    let o = Command::new(env!("CARGO_BIN_EXE_fluxloom"))
+        .args(["build", dir.join("plan.toml").to_str().unwrap(), "--quiet"])
+        .output()
+        .unwrap();
+    assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
+    out
+}
+
+#[test]
+fn saturated_values_and_forced_rows_reach_the_sed_tables_as_they_should() {
+    let dir = tempfile::tempdir().unwrap();
+    let out = build(dir.path());
+    let objects = read_parquet(&out.join("objects.parquet"));
+    let ids = text(&objects, "object_id");
+    let row = |id: &str| ids.iter().position(|i| i == id).unwrap();
+    assert_eq!(ids.len(), 4, "{ids:?}");
+
+    // d2 is saturated: its own status, no flux, no limit, not counted as detected.
+    let status = text(&objects, "irac_36_status");
+    let (flux, ulim) = (
+        floats(&objects, "irac_36_flux_jy"),
+        floats(&objects, "irac_36_ulim_jy"),
+    );
+    let d2 = row("det:d2");
+    assert_eq!(status[d2], "saturated");
+    assert_eq!((flux[d2], ulim[d2]), (None, None));
+    let n_detected = objects
+        .column_by_name("n_detected")
+        .unwrap()
+        .as_primitive::<arrow::datatypes::UInt16Type>();
+    assert_eq!(n_detected.value(d2), 0);
+    // d3 keeps its detection (flags = 1 is not a saturation bit): 3 mJy.
+    let d3 = row("det:d3");
+    assert_eq!(status[d3], "detected");
+    assert!((flux[d3].unwrap() - 0.003).abs() < 1e-15);
+
+    // p1 is forced at d1 with S/N 1: an upper limit max(F, 0) + 3 sigma = 2 mJy.
+    let d1 = row("det:d1");
+    let mips = text(&objects, "mips_24_status");
+    assert_eq!(mips[d1], "upper_limit");
+    assert!((floats(&objects, "mips_24_ulim_jy")[d1].unwrap() - 0.002).abs() < 1e-15);
+    assert_eq!(text(&objects, "phot_source_id")[d1], "p1");
+    // p2, forced with nothing detected under it, is flagged forced_only (bit 64).
+    let p2 = row("phot:p2");
+    let flags = objects
+        .column_by_name("flags")
+        .unwrap()
+        .as_primitive::<arrow::datatypes::UInt32Type>();
+    assert_eq!(flags.value(p2) & 64, 64);
+    assert_eq!(text(&objects, "status")[p2], "single_catalog+forced_only");
+    assert_eq!(flags.value(d1) & 64, 0);
+    assert_eq!(flags.value(d3) & 64, 0);
+
+    // The photometry table: the saturated point has neither flux nor limit.
+    let phot = read_parquet(&out.join("photometry.parquet"));
+    let (pid, pband, pstatus) = (
+        text(&phot, "object_id"),
+        text(&phot, "band"),
+        text(&phot, "status"),
+    );
+    let k = (0..phot.num_rows())
+        .find(|&k| pid[k] == "det:d2" && pband[k] == "irac_36")
+        .unwrap();
+    assert_eq!(pstatus[k], "saturated");
+    assert_eq!(floats(&phot, "flux_jy")[k], None);
+    assert_eq!(floats(&phot, "ulim_jy")[k], None);
+    assert_eq!(floats(&phot, "nufnu_cgs")[k], None);
+
+    // The science layer sees neither a detection nor a limit there.
+    let seds = FieldSeds::read(&out).unwrap();
+    let band = seds.band_index("irac_36").unwrap();
+    let object = seds.object_id.iter().position(|i| i == "det:d2").unwrap();
+    let value = seds.values[object][band];
+    assert_eq!(value.detected_mag(&seds.bands[band]), None);
+    assert_eq!(value.limit_mag(&seds.bands[band]), None);
+
+    // run.json counts the saturated point by its status.
+    let run: serde_json::Value =
+        serde_json::from_str(&fs::read_to_string(out.join("run.json")).unwrap()).unwrap();
+    let text = run.to_string();
+    assert!(text.contains("\"saturated\":1"), "{text}");
+}
