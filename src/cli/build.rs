@@ -25,9 +25,9 @@ use crate::crossmatch::floors::{FAR_ABOVE_FACTOR, FloorEstimate, far_above_state
 use crate::crossmatch::systematics::{CatalogOffset, correct_offsets};
 use crate::error::{Error, Result};
 use crate::output::journal::Journal;
-use crate::output::parquet::ParquetOutput;
 use crate::output::run_record::{InputRecord, OutputRecord, RunRecord, SedRecord, SubsetRecord};
 use crate::output::staging::Staging;
+use crate::output::table_file::{TableFormat, TableOutput};
 use crate::output::tables::{
     for_export, hard_sources_batch, links_batch, objects_batch, photometry_batch,
 };
@@ -295,6 +295,7 @@ pub fn build_with(plan: &Plan, out_dir: &Path, run: RunOptions) -> Result<BuildO
             coverage: &coverage,
             slots: &slots,
             chunk_objects: run.write_chunk.unwrap_or(WRITE_CHUNK_OBJECTS),
+            format: TableFormat::Parquet,
         },
     )?;
     outputs.extend(write_exports(&mut staging, plan, &objects, &photometry)?);
@@ -387,6 +388,8 @@ pub(crate) struct TableInputs<'a> {
     pub slots: &'a [BandSlot],
     /// Objects per write chunk.
     pub chunk_objects: usize,
+    /// How the tables are stored (Parquet, or Arrow streams for parts).
+    pub format: TableFormat,
 }
 
 /// What writing the tables gave: their records, the SED status counts per
@@ -416,6 +419,7 @@ pub(crate) fn write_tables(
         coverage,
         slots,
         chunk_objects,
+        format,
     } = *inputs;
     let seds_written = plan.tables.objects || plan.tables.photometry;
     let assembler = seds_written
@@ -427,25 +431,26 @@ pub(crate) fn write_tables(
     // The tables are assembled and written a chunk of objects at a time, so only
     // one chunk of output columns is in memory (plus the exports' copy, if any).
     let which = plan.tables;
-    let mut create = |name: &str, batch: Result<RecordBatch>| {
-        ParquetOutput::create(&path(name), batch?.schema(), metadata.clone())
+    let mut create = |stem: &str, batch: Result<RecordBatch>| {
+        let name = format.file_name(stem);
+        TableOutput::create(format, &path(&name), batch?.schema(), metadata.clone())
     };
     let mut objects_out = match which.objects {
         true => Some(create(
-            "objects.parquet",
+            "objects",
             objects_batch(&[], &[], slots, tables, epoch),
         )?),
         false => None,
     };
     let mut photometry_out = match which.photometry {
         true => Some(create(
-            "photometry.parquet",
+            "photometry",
             photometry_batch(&[], &[], slots, tables),
         )?),
         false => None,
     };
     let links_out = match which.links {
-        true => Some(create("links.parquet", links_batch(&[], tables))?),
+        true => Some(create("links", links_batch(&[], tables))?),
         false => None,
     };
     let exporting = !plan.exports.is_empty();
@@ -455,9 +460,9 @@ pub(crate) fn write_tables(
     // Each table has its own writer: links are written on a thread of their
     // own while objects and photometry are, chunk by chunk, side by side.
     let links = &result.links;
-    let links_out = std::thread::scope(|scope| -> Result<Option<ParquetOutput>> {
+    let links_out = std::thread::scope(|scope| -> Result<Option<TableOutput>> {
         let links_writer = links_out.map(|mut w| {
-            scope.spawn(move || -> Result<ParquetOutput> {
+            scope.spawn(move || -> Result<TableOutput> {
                 for chunk in links.chunks(chunk_objects) {
                     w.write(&links_batch(chunk, tables)?)?;
                 }
@@ -515,29 +520,26 @@ pub(crate) fn write_tables(
         }
     }
     let mut outputs: Vec<OutputRecord> = Vec::new();
-    for (file, w) in [
-        ("objects.parquet", objects_out),
-        ("photometry.parquet", photometry_out),
-        ("links.parquet", links_out),
+    for (stem, w) in [
+        ("objects", objects_out),
+        ("photometry", photometry_out),
+        ("links", links_out),
     ] {
         let Some(w) = w else { continue };
         let rows = w.finish()?;
         outputs.push(OutputRecord {
-            file: file.to_string(),
+            file: format.file_name(stem),
             rows,
         });
     }
     if which.objects {
         // The sources of the hard cases, for the audit's match cards.
         let hard = hard_sources_batch(&result.objects, &result.links, matched_tables, epoch)?;
-        let mut w = ParquetOutput::create(
-            &path("hard_sources.parquet"),
-            hard.schema(),
-            metadata.clone(),
-        )?;
+        let name = format.file_name("hard_sources");
+        let mut w = TableOutput::create(format, &path(&name), hard.schema(), metadata.clone())?;
         w.write(&hard)?;
         outputs.push(OutputRecord {
-            file: "hard_sources.parquet".to_string(),
+            file: name,
             rows: w.finish()?,
         });
     }

@@ -43,6 +43,7 @@ use crate::output::merge::{Ranker, TableKind};
 use crate::output::parquet::ParquetOutput;
 use crate::output::run_record::{OutputRecord, RunRecord};
 use crate::output::staging::Staging;
+use crate::output::table_file::TableFormat;
 use crate::plan::Plan;
 use crate::sed::SedStatus;
 use crate::sky::coverage::Coverage;
@@ -55,6 +56,11 @@ const BYTES_PER_GROUP_ROW: u64 = 1400;
 /// Memory kept aside for the program, the first pass's gathered statistics and
 /// the merge's buffers, bytes.
 const FIXED_BYTES: u64 = 200 << 20;
+
+/// Objects per batch of a part's tables. The join holds a batch of every part
+/// of every table at once, so part batches are small; their size does not show
+/// in the joined files, which are chunked as a build chunks them.
+const PART_BATCH_OBJECTS: usize = 8192;
 
 /// Parses a memory size: bytes, or a number with K, M, G or T (powers of 1024).
 ///
@@ -209,7 +215,6 @@ pub fn build_within(
         rows,
         coverage: &coverage,
         slots: &slots,
-        chunk_objects: run.write_chunk.unwrap_or(WRITE_CHUNK_OBJECTS),
         spill: &spill.0,
     };
     let mut tally = Tally {
@@ -361,7 +366,6 @@ struct Shared<'a> {
     rows: Vec<usize>,
     coverage: &'a [Coverage],
     slots: &'a [crate::sed::BandSlot],
-    chunk_objects: usize,
     spill: &'a Path,
 }
 
@@ -506,7 +510,8 @@ impl Shared<'_> {
                 normalized: batches,
                 coverage: self.coverage,
                 slots: self.slots,
-                chunk_objects: self.chunk_objects,
+                chunk_objects: PART_BATCH_OBJECTS,
+                format: TableFormat::ArrowStream,
             },
         )?;
         for (total, part) in tally.status_counts.iter_mut().zip(status_counts) {
@@ -544,7 +549,8 @@ fn absorb(total: &mut MatchStats, part: &MatchStats, level: usize) {
 }
 
 /// Joins the tables of the parts into `staging`, in the whole run's order and
-/// with a build's chunking, and returns their records.
+/// with a build's chunking, and returns their records. The tables are joined
+/// side by side, each on a thread of its own.
 fn join_parts(
     staging: &mut Staging,
     plan: &Plan,
@@ -554,67 +560,100 @@ fn join_parts(
     let names: Vec<String> = plan.catalogs.iter().map(|c| c.name.clone()).collect();
     let ranker = Ranker::new(&names);
     let metadata = table_metadata(plan, slots)?;
-    let mut outputs = Vec::new();
     let which = plan.tables;
-    for (file, kind, chunk_rows, wanted) in [
+    let jobs: Vec<(&str, TableKind, usize, PathBuf)> = [
         (
-            "objects.parquet",
+            "objects",
             TableKind::PerObject,
             WRITE_CHUNK_OBJECTS,
             which.objects,
         ),
         (
-            "photometry.parquet",
+            "photometry",
             TableKind::PerObject,
             WRITE_CHUNK_OBJECTS * slots.len().max(1),
             which.photometry,
         ),
+        ("links", TableKind::Links, WRITE_CHUNK_OBJECTS, which.links),
         (
-            "links.parquet",
-            TableKind::Links,
-            WRITE_CHUNK_OBJECTS,
-            which.links,
-        ),
-        (
-            "hard_sources.parquet",
+            "hard_sources",
             TableKind::HardSources,
             usize::MAX,
             which.objects,
         ),
-    ] {
-        if !wanted {
-            continue;
+    ]
+    .into_iter()
+    .filter(|job| job.3)
+    .map(|(stem, kind, chunk_rows, _)| {
+        let path = staging.path(&TableFormat::Parquet.file_name(stem));
+        (stem, kind, chunk_rows, path)
+    })
+    .collect();
+    std::thread::scope(|scope| {
+        let handles: Vec<_> = jobs
+            .iter()
+            .map(|(stem, kind, chunk_rows, path)| {
+                let (ranker, metadata) = (&ranker, metadata.clone());
+                scope.spawn(move || {
+                    join_table(
+                        plan,
+                        slots,
+                        parts,
+                        (stem, *kind, *chunk_rows),
+                        path,
+                        ranker,
+                        metadata,
+                    )
+                })
+            })
+            .collect();
+        handles
+            .into_iter()
+            .map(|h| h.join().expect("a table join does not panic"))
+            .collect()
+    })
+}
+
+/// Joins table `stem` of the parts into the Parquet file `path`.
+fn join_table(
+    plan: &Plan,
+    slots: &[crate::sed::BandSlot],
+    parts: &[PathBuf],
+    (stem, kind, chunk_rows): (&str, TableKind, usize),
+    path: &Path,
+    ranker: &Ranker,
+    metadata: Vec<(String, String)>,
+) -> Result<OutputRecord> {
+    let file = TableFormat::Parquet.file_name(stem);
+    let part_file = TableFormat::ArrowStream.file_name(stem);
+    let files: Vec<PathBuf> = parts.iter().map(|p| p.join(&part_file)).collect();
+    let mut writer: Option<ParquetOutput> = None;
+    let format = TableFormat::ArrowStream;
+    let schema = merge_parts(&files, format, kind, ranker, chunk_rows, |chunk| {
+        let schema = Arc::new(Schema::new(chunk.schema().fields().clone()));
+        let chunk = chunk
+            .with_schema(schema.clone())
+            .map_err(|e| Error::columnar(path, e))?;
+        if writer.is_none() {
+            writer = Some(ParquetOutput::create(path, schema, metadata.clone())?);
         }
-        let files: Vec<PathBuf> = parts.iter().map(|p| p.join(file)).collect();
-        let path = staging.path(file);
-        let mut writer: Option<ParquetOutput> = None;
-        let schema = merge_parts(&files, kind, &ranker, chunk_rows, |chunk| {
-            let schema = Arc::new(Schema::new(chunk.schema().fields().clone()));
-            let chunk = chunk
-                .with_schema(schema.clone())
-                .map_err(|e| Error::columnar(&path, e))?;
-            if writer.is_none() {
-                writer = Some(ParquetOutput::create(&path, schema, metadata.clone())?);
-            }
-            writer.as_mut().map_or(Ok(()), |w| w.write(&chunk))
-        })?;
-        let writer = match writer {
-            Some(w) => w,
-            None => {
-                // No rows anywhere: the empty table of a part, or of a build without rows.
-                let schema = match schema {
-                    Some(s) => Arc::new(Schema::new(s.fields().clone())),
-                    None => empty_schema(plan, slots, file)?,
-                };
-                ParquetOutput::create(&path, schema, metadata.clone())?
-            }
-        };
-        outputs.push(OutputRecord {
-            file: file.to_string(),
-            rows: writer.finish()?,
-        });
-    }
-    Ok(outputs)
+        writer.as_mut().map_or(Ok(()), |w| w.write(&chunk))
+    })?;
+    let writer = match writer {
+        Some(w) => w,
+        None => {
+            // No rows anywhere: the empty table of a part, or of a build without rows.
+            let schema = match schema {
+                Some(s) => Arc::new(Schema::new(s.fields().clone())),
+                None => empty_schema(plan, slots, &file)?,
+            };
+            ParquetOutput::create(path, schema, metadata)?
+        }
+    };
+    Ok(OutputRecord {
+        file,
+        rows: writer.finish()?,
+    })
 }
 
 /// The schema of table `file` when no part wrote one.

@@ -3,17 +3,15 @@
 //! in that order, a chunk at a time: a k-way merge on the keys of
 //! [`super::merge`], so memory holds one batch per part and one chunk.
 
-use std::fs::File;
 use std::path::{Path, PathBuf};
 
 use arrow::array::{Array, ArrayData, AsArray, RecordBatch, StringArray, make_array};
 use arrow::compute::interleave_record_batch;
 use arrow::datatypes::SchemaRef;
 use arrow::error::ArrowError;
-use arrow::record_batch::RecordBatchReader;
-use parquet::arrow::arrow_reader::{ParquetRecordBatchReader, ParquetRecordBatchReaderBuilder};
 
 use super::merge::{Ranker, TableKind};
+use super::table_file::{TableBatches, TableFormat, read_table};
 use crate::error::{Error, Result};
 
 /// Rows read from a part at a time.
@@ -103,7 +101,7 @@ fn keys_of(
 
 /// A part being read: its current batch, that batch's keys and the next row.
 struct Cursor {
-    reader: ParquetRecordBatchReader,
+    reader: TableBatches,
     origin: PathBuf,
     batch: RecordBatch,
     keys: Vec<KeyColumn>,
@@ -187,7 +185,7 @@ fn without_empty_nulls(batch: &RecordBatch) -> std::result::Result<RecordBatch, 
     RecordBatch::try_new(batch.schema(), columns)
 }
 
-/// Merges the Parquet files `parts` (each in the whole run's order for `kind`)
+/// Merges the table files `parts` (stored as `format`, each in the whole run's order for `kind`)
 /// and hands `sink` the joined rows in chunks of `chunk_rows` (the last
 /// shorter). Hard-source rows repeated across parts are kept once. Returns the
 /// schema of the rows (`None` when no part has any).
@@ -197,6 +195,7 @@ fn without_empty_nulls(batch: &RecordBatch) -> std::result::Result<RecordBatch, 
 /// lacks, naming the file; whatever `sink` returns.
 pub fn merge_parts(
     parts: &[PathBuf],
+    format: TableFormat,
     kind: TableKind,
     ranker: &Ranker,
     chunk_rows: usize,
@@ -205,13 +204,10 @@ pub fn merge_parts(
     let mut cursors: Vec<Cursor> = Vec::with_capacity(parts.len());
     let mut schema = None;
     for path in parts {
-        let file = File::open(path).map_err(|e| Error::io(path, e))?;
-        let reader = ParquetRecordBatchReaderBuilder::try_new(file)
-            .and_then(|b| b.with_batch_size(READ_BATCH_ROWS).build())
-            .map_err(|e| Error::columnar(path, e))?;
-        schema.get_or_insert_with(|| reader.schema());
+        let (part_schema, reader) = read_table(format, path, READ_BATCH_ROWS)?;
+        schema.get_or_insert_with(|| part_schema.clone());
         let mut cursor = Cursor {
-            batch: RecordBatch::new_empty(reader.schema()),
+            batch: RecordBatch::new_empty(part_schema),
             reader,
             origin: path.clone(),
             keys: Vec::new(),

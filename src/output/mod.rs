@@ -10,5 +10,6 @@ pub mod merge;
 pub mod parquet;
 pub mod run_record;
 pub mod staging;
+pub mod table_file;
 pub mod tables;
 pub mod votable;
