@@ -5,19 +5,17 @@
 use std::path::{Path, PathBuf};
 use std::sync::Arc;
 
-use arrow::array::RecordBatch;
 use arrow::datatypes::Schema;
 use clap::Args;
-use parquet::arrow::arrow_reader::ParquetRecordBatchReaderBuilder;
 
 use super::build::{WRITE_CHUNK_OBJECTS, finish_folder, write_exports, write_science};
 use crate::error::{Error, Result};
-use crate::output::merge::{
-    Ranker, TableKind, check_subsets, join_records, join_table, read_records,
-};
-use crate::output::parquet::{META_VERSION, ParquetOutput};
+use crate::output::kway::merge_parts;
+use crate::output::merge::{Ranker, TableKind, check_subsets, join_records, read_records};
+use crate::output::parquet::{META_VERSION, ParquetOutput, read_metadata};
 use crate::output::run_record::OutputRecord;
 use crate::output::staging::Staging;
+use crate::output::table_file::TableFormat;
 use crate::output::tables::for_export;
 use crate::plan::Plan;
 
@@ -34,29 +32,13 @@ pub struct MergeArgs {
     pub out: Option<PathBuf>,
 }
 
-/// Parquet key-value metadata pairs.
-type KeyValues = Vec<(String, String)>;
-
-/// One Parquet file of a part: its batches and its key-value metadata
-/// (without the entries the writer adds itself).
-fn read_part(path: &Path) -> Result<(Vec<RecordBatch>, KeyValues)> {
-    let file = std::fs::File::open(path).map_err(|e| Error::io(path, e))?;
-    let builder =
-        ParquetRecordBatchReaderBuilder::try_new(file).map_err(|e| Error::columnar(path, e))?;
-    let metadata: Vec<(String, String)> = builder
-        .metadata()
-        .file_metadata()
-        .key_value_metadata()
+/// The key-value metadata of a part's Parquet file, without the entries the
+/// writer adds itself.
+fn part_metadata(path: &Path) -> Result<Vec<(String, String)>> {
+    Ok(read_metadata(path)?
         .into_iter()
-        .flatten()
-        .filter(|kv| kv.key != META_VERSION && kv.key != "ARROW:schema")
-        .map(|kv| (kv.key.clone(), kv.value.clone().unwrap_or_default()))
-        .collect();
-    let reader = builder.build().map_err(|e| Error::columnar(path, e))?;
-    let batches = reader
-        .collect::<std::result::Result<Vec<_>, _>>()
-        .map_err(|e| Error::columnar(path, e))?;
-    Ok((batches, metadata))
+        .filter(|(k, _)| k != META_VERSION && k != "ARROW:schema")
+        .collect())
 }
 
 /// Runs `fluxloom merge`.
@@ -97,34 +79,42 @@ pub fn run(args: &MergeArgs) -> Result<()> {
                 args.parts[present.iter().position(|&p| p).unwrap_or(0)].display()
             )));
         }
-        let mut batches = Vec::new();
-        let mut metadata = Vec::new();
-        for p in &args.parts {
-            let (b, m) = read_part(&p.join(file))?;
-            batches.extend(b);
-            metadata = m;
-        }
-        let origin = args.parts[0].join(file);
-        let joined = join_table(&batches, kind, &ranker, &origin)?;
-        let schema = Arc::new(Schema::new(joined.schema().fields().clone()));
-        let joined = joined
-            .with_schema(schema.clone())
-            .map_err(|e| Error::columnar(&origin, e))?;
-        let mut w = ParquetOutput::create(&staging.path(file), schema, metadata)?;
-        let n = joined.num_rows();
-        let mut start = 0;
-        while start < n {
-            let len = chunk_rows.min(n - start);
-            let chunk = joined.slice(start, len);
-            w.write(&chunk)?;
-            if exporting && file == "objects.parquet" {
-                objects.push(for_export(&chunk)?);
+        let files: Vec<PathBuf> = args.parts.iter().map(|p| p.join(file)).collect();
+        let metadata = part_metadata(&files[0])?;
+        let path = staging.path(file);
+        let mut writer: Option<ParquetOutput> = None;
+        let schema = merge_parts(
+            &files,
+            TableFormat::Parquet,
+            kind,
+            &ranker,
+            chunk_rows,
+            |chunk| {
+                let schema = Arc::new(Schema::new(chunk.schema().fields().clone()));
+                let chunk = chunk
+                    .with_schema(schema.clone())
+                    .map_err(|e| Error::columnar(&path, e))?;
+                if exporting && file == "objects.parquet" {
+                    objects.push(for_export(&chunk)?);
+                }
+                if exporting && file == "photometry.parquet" {
+                    photometry.push(for_export(&chunk)?);
+                }
+                if writer.is_none() {
+                    writer = Some(ParquetOutput::create(&path, schema, metadata.clone())?);
+                }
+                writer.as_mut().map_or(Ok(()), |w| w.write(&chunk))
+            },
+        )?;
+        let w = match (writer, schema) {
+            (Some(w), _) => w,
+            // Every part's table is empty: an empty table with their schema.
+            (None, Some(schema)) => {
+                let schema = Arc::new(Schema::new(schema.fields().clone()));
+                ParquetOutput::create(&path, schema, metadata)?
             }
-            if exporting && file == "photometry.parquet" {
-                photometry.push(for_export(&chunk)?);
-            }
-            start += len;
-        }
+            (None, None) => return Err(Error::Usage("no parts to merge".to_string())),
+        };
         outputs.push(OutputRecord {
             file: file.to_string(),
             rows: w.finish()?,

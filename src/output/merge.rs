@@ -8,13 +8,12 @@
 //! The whole run orders its tables by rank — catalog in plan order, then
 //! source identifier — of the object's anchor (objects, photometry, hard
 //! cases, then the source's rank), or of the pair's two sources (links); so
-//! the parts join by concatenation and a stable sort on those keys. run.json
-//! joins by adding the counts and checking that everything else agrees.
+//! the parts, each already in that order, join by a k-way merge on those keys
+//! ([`super::kway`]). run.json joins by adding the counts and checking that
+//! everything else agrees.
 
 use std::path::{Path, PathBuf};
 
-use arrow::array::{Array, AsArray, RecordBatch, UInt32Array};
-use arrow::compute::{concat_batches, take_record_batch};
 use serde_json::Value;
 
 use super::run_record::SubsetRecord;
@@ -65,34 +64,6 @@ impl<'a> Ranker<'a> {
     }
 }
 
-fn strings<'b>(batch: &'b RecordBatch, name: &str, origin: &Path) -> Result<Vec<&'b str>> {
-    let a = batch
-        .column_by_name(name)
-        .and_then(|c| c.as_string_opt::<i32>())
-        .ok_or_else(|| Error::format(origin, format!("no text column \"{name}\"")))?;
-    Ok((0..a.len())
-        .map(|i| if a.is_null(i) { "" } else { a.value(i) })
-        .collect())
-}
-
-/// The rank of the source named by columns `catalog` and `source_id` of each row.
-fn source_ranks<'b>(
-    batch: &'b RecordBatch,
-    catalog: &str,
-    source_id: &str,
-    ranker: &Ranker,
-    origin: &Path,
-) -> Result<Vec<Rank<'b>>> {
-    let (c, s) = (
-        strings(batch, catalog, origin)?,
-        strings(batch, source_id, origin)?,
-    );
-    c.iter()
-        .zip(s)
-        .map(|(c, s)| Ok((ranker.catalog(c, origin)?, s)))
-        .collect()
-}
-
 /// Which table is being joined, and so which key orders it.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
 pub enum TableKind {
@@ -102,55 +73,6 @@ pub enum TableKind {
     Links,
     /// hard_sources.parquet: the object's rank, then the source's.
     HardSources,
-}
-
-/// Joins the batches of one table from every part into one batch in the
-/// whole run's order.
-///
-/// # Errors
-/// [`Error::Format`] naming `origin` when a key column is missing or names a
-/// catalog the plan does not have.
-pub fn join_table(
-    parts: &[RecordBatch],
-    kind: TableKind,
-    ranker: &Ranker,
-    origin: &Path,
-) -> Result<RecordBatch> {
-    let schema = parts
-        .first()
-        .map(|b| b.schema())
-        .ok_or_else(|| Error::Usage("no parts to merge".to_string()))?;
-    let all = concat_batches(&schema, parts).map_err(|e| Error::columnar(origin, e))?;
-    let n = all.num_rows();
-    let mut order: Vec<u32> = (0..n as u32).collect();
-    match kind {
-        TableKind::PerObject => {
-            let ids = strings(&all, "object_id", origin)?;
-            let keys: Vec<Rank> = ids
-                .iter()
-                .map(|id| ranker.object(id, origin))
-                .collect::<Result<_>>()?;
-            order.sort_by_key(|&i| keys[i as usize]);
-        }
-        TableKind::Links => {
-            let a = source_ranks(&all, "catalog_a", "source_id_a", ranker, origin)?;
-            let b = source_ranks(&all, "catalog_b", "source_id_b", ranker, origin)?;
-            order.sort_by_key(|&i| (a[i as usize], b[i as usize]));
-        }
-        TableKind::HardSources => {
-            let ids = strings(&all, "object_id", origin)?;
-            let objects: Vec<Rank> = ids
-                .iter()
-                .map(|id| ranker.object(id, origin))
-                .collect::<Result<_>>()?;
-            let sources = source_ranks(&all, "catalog", "source_id", ranker, origin)?;
-            let keys: Vec<(Rank, Rank)> = objects.into_iter().zip(sources).collect();
-            order.sort_by_key(|&i| keys[i as usize]);
-            // A source tied to hard cases of two parts appears in both, alike.
-            order.dedup_by_key(|i| keys[*i as usize]);
-        }
-    }
-    take_record_batch(&all, &UInt32Array::from(order)).map_err(|e| Error::columnar(origin, e))
 }
 
 /// Reads the run.json of each part folder.
