@@ -168,3 +168,66 @@ fn settings_a_limited_build_cannot_honour_are_named() {
     );
     assert!(String::from_utf8_lossy(&o.stderr).contains("\"lots\" is not a memory size like 2G"));
 }
+
+#[test]
+fn a_killed_limited_build_resumes_from_its_journal_with_identical_files() {
+    let dir = tempfile::tempdir().unwrap();
+    let whole = dir.path().join("whole");
+    let plan = plan_in(dir.path(), &whole);
+    built(&plan, &whole, &["--cell-order", "10"]);
+    let out = dir.path().join("resumed");
+    let journal = dir.path().join(".resumed.fluxloom-journal");
+    // Groups of a few cells each.
+    let limited = [
+        "--memory-limit",
+        "300M",
+        "--group-rows",
+        "500",
+        "--cell-order",
+        "10",
+        "--threads",
+        "1",
+    ];
+    let mut child = Command::new(env!("CARGO_BIN_EXE_fluxloom"))
+        .args(["--quiet", "build"])
+        .arg(&plan)
+        .args(limited)
+        .args(["--pause-after-cells", "8", "--out"])
+        .arg(&out)
+        .stdout(std::process::Stdio::null())
+        .stderr(std::process::Stdio::null())
+        .spawn()
+        .unwrap();
+    let journaled = || -> usize {
+        std::fs::read_dir(&journal).map_or(0, |d| {
+            d.filter(|e| {
+                e.as_ref()
+                    .is_ok_and(|e| e.file_name().to_string_lossy().ends_with(".arrows"))
+            })
+            .count()
+        })
+    };
+    let start = std::time::Instant::now();
+    while journaled() < 8 {
+        assert!(
+            start.elapsed().as_secs() < 600,
+            "the build journaled {} cells",
+            journaled()
+        );
+        std::thread::sleep(std::time::Duration::from_millis(50));
+    }
+    child.kill().unwrap();
+    child.wait().unwrap();
+    assert!(!out.exists(), "a killed build wrote no output folder");
+    let summary = built(&plan, &out, &limited);
+    assert!(
+        summary.contains("resumed: 8 cells taken from the journal"),
+        "{summary}"
+    );
+    assert_same_files(&out, &whole, "resumed limited build");
+    assert!(
+        !journal.exists(),
+        "the journal is removed once the folder commits"
+    );
+    assert!(!dir.path().join(".resumed.fluxloom-spill").exists());
+}

@@ -223,22 +223,19 @@ pub fn build_with(plan: &Plan, out_dir: &Path, run: RunOptions) -> Result<BuildO
     let (read, tables, setup) = (&read[..], &tables[..], setup);
     let offsets = offsets.clone();
     let bar = spinner("cross-matching", quiet);
+    let digests: Vec<&str> = read.iter().map(|r| r.sha256.as_str()).collect();
     let journal = Journal::open(
         out_dir,
-        &run_key(plan, read, &matching, &run),
+        &run_key(
+            plan,
+            &digests,
+            matching.partition_order,
+            run.cells.as_deref(),
+            "",
+        ),
         matching.partition_order,
     )?;
-    let journaled = std::sync::atomic::AtomicUsize::new(0);
-    let record_cell = |id: u64, out: &crate::crossmatch::cells::CellOutput| -> Result<()> {
-        journal.record(id, out)?;
-        let n = journaled.fetch_add(1, std::sync::atomic::Ordering::SeqCst) + 1;
-        if run.pause_after_cells.is_some_and(|k| n >= k) {
-            loop {
-                std::thread::sleep(std::time::Duration::from_secs(3600));
-            }
-        }
-        Ok(())
-    };
+    let record_cell = journal_recorder(&journal, run.pause_after_cells);
     let result = setup.run(
         &matching,
         CellRun {
@@ -248,6 +245,7 @@ pub fn build_with(plan: &Plan, out_dir: &Path, run: RunOptions) -> Result<BuildO
             ..CellRun::default()
         },
     )?;
+    drop(record_cell);
     clock.matching = started.elapsed().as_secs_f64() - clock.read;
     bar.set_message("estimating false matches");
     let false_matches: Vec<FalseMatchEstimate> = if plan.false_matches {
@@ -756,26 +754,50 @@ impl Prepared {
 }
 
 /// What the cells' outputs of a run depend on, hashed: the version, the plan,
-/// the inputs' bytes, the cell order and the subset (the journal's key).
-fn run_key(
+/// the inputs' bytes (`digests`), the cell order, the subset and the `layout`
+/// of a build in bounded memory (empty for a build holding everything), whose
+/// cell outputs refer to the sources of their group (the journal's key).
+pub(crate) fn run_key(
     plan: &Plan,
-    read: &[ReadCatalog],
-    matching: &crate::crossmatch::MatchConfig,
-    run: &RunOptions,
+    digests: &[&str],
+    order: u8,
+    cells: Option<&[u64]>,
+    layout: &str,
 ) -> String {
     let mut h = Sha256::new();
+    h.update(layout.as_bytes());
+    h.update([0]);
     h.update(env!("CARGO_PKG_VERSION").as_bytes());
     h.update([0]);
     h.update(plan.text.as_bytes());
-    for r in read {
+    for d in digests {
         h.update([0]);
-        h.update(r.sha256.as_bytes());
+        h.update(d.as_bytes());
     }
-    h.update([0, matching.partition_order]);
-    for c in run.cells.iter().flatten() {
+    h.update([0, order]);
+    for c in cells.into_iter().flatten() {
         h.update(c.to_le_bytes());
     }
     h.finalize().iter().map(|b| format!("{b:02x}")).collect()
+}
+
+/// Journals each finished cell; after `pause_after` cells it sleeps for good
+/// (a hidden test option, so that a test can kill a run part-way).
+pub(crate) fn journal_recorder(
+    journal: &Journal,
+    pause_after: Option<usize>,
+) -> impl Fn(u64, &crate::crossmatch::cells::CellOutput) -> Result<()> + Sync + '_ {
+    let journaled = std::sync::atomic::AtomicUsize::new(0);
+    move |id, out| {
+        journal.record(id, out)?;
+        let n = journaled.fetch_add(1, std::sync::atomic::Ordering::SeqCst) + 1;
+        if pause_after.is_some_and(|k| n >= k) {
+            loop {
+                std::thread::sleep(std::time::Duration::from_secs(3600));
+            }
+        }
+        Ok(())
+    }
 }
 
 /// SHA-256 of a file's bytes (hex) and its size.

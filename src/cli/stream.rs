@@ -28,16 +28,20 @@ use arrow::datatypes::Schema;
 
 use super::build::{
     BuildOutcome, RunOptions, TableInputs, WRITE_CHUNK_OBJECTS, Written, band_slots, finish_folder,
-    input_record, sed_counts, summary, table_metadata, write_science, write_tables,
+    input_record, journal_recorder, run_key, sed_counts, summary, table_metadata, write_science,
+    write_tables,
 };
 use super::progress::spinner;
 use super::route::{Routed, route};
 use crate::crossmatch::SourceTable;
 use crate::crossmatch::candidates::EpochStats;
-use crate::crossmatch::cells::{CellContext, CellRun, WIDEST_MARGIN_DEG, first_margin_arcsec};
+use crate::crossmatch::cells::{
+    CellContext, CellRun, OnCellComplete, WIDEST_MARGIN_DEG, first_margin_arcsec,
+};
 use crate::crossmatch::density::Occupancy;
 use crate::crossmatch::engine::{MatchResult, MatchSetup, MatchStats, density_per_sr};
 use crate::error::{Error, Result};
+use crate::output::journal::Journal;
 use crate::output::kway::merge_parts;
 use crate::output::merge::{Ranker, TableKind};
 use crate::output::parquet::ParquetOutput;
@@ -206,7 +210,29 @@ pub fn build_within(
         })
         .collect::<Result<_>>()?;
     let slots = band_slots(plan);
+    let group_rows = run
+        .group_rows
+        .unwrap_or((budget / BYTES_PER_GROUP_ROW).max(10_000));
+    // A group's cell outputs refer to the group's sources, which the groups and
+    // the routing margin decide: a run resumes only a journal of the same layout.
+    let layout = format!("groups of {group_rows} rows, routing margin {margin_arcsec}");
+    let digests: Vec<&str> = routed.catalogs.iter().map(|c| c.sha256.as_str()).collect();
+    let journal = Journal::open(
+        out_dir,
+        &run_key(
+            plan,
+            &digests,
+            matching.partition_order,
+            run.cells.as_deref(),
+            &layout,
+        ),
+        matching.partition_order,
+    )?;
+    let record_cell = journal_recorder(&journal, run.pause_after_cells);
     let shared = Shared {
+        journal: &journal,
+        journaled: journal.cells()?,
+        record_cell: &record_cell,
         plan,
         matching: &matching,
         routed: &routed,
@@ -222,9 +248,6 @@ pub fn build_within(
         status_counts: vec![[0u64; SedStatus::ALL.len()]; slots.len()],
         parts: Vec::new(),
     };
-    let group_rows = run
-        .group_rows
-        .unwrap_or((budget / BYTES_PER_GROUP_ROW).max(10_000));
     let groups = cell_groups(&routed, run.cells.as_deref(), group_rows);
     let bar = spinner("matching cell groups", quiet);
     for (k, cells) in groups.iter().enumerate() {
@@ -291,6 +314,9 @@ pub fn build_within(
             cells_with_sources_in_all: result.stats.cells.cells,
         });
     let (files, report) = finish_folder(staging, plan, &record.to_json()?)?;
+    drop(shared);
+    drop(record_cell);
+    journal.remove()?;
     let total = started.elapsed().as_secs_f64();
     let reports: Vec<_> = routed.catalogs.iter().map(|c| &c.report).collect();
     Ok(BuildOutcome {
@@ -367,6 +393,10 @@ struct Shared<'a> {
     coverage: &'a [Coverage],
     slots: &'a [crate::sed::BandSlot],
     spill: &'a Path,
+    /// The restart journal, the cells it held at the start, and its recorder.
+    journal: &'a Journal,
+    journaled: Vec<u64>,
+    record_cell: OnCellComplete<'a>,
 }
 
 impl Shared<'_> {
@@ -379,10 +409,17 @@ impl Shared<'_> {
             .iter()
             .map(|c| c.rows_of(cells, true))
             .collect::<Result<Vec<_>>>()?;
+        let finished = cells
+            .iter()
+            .filter(|c| self.journaled.binary_search(c).is_ok())
+            .map(|&c| Ok((c, self.journal.read(c)?)))
+            .collect::<Result<_>>()?;
         let deferred = self.match_part(
             &batches,
             CellRun {
                 subset: Some(cells.to_vec()),
+                finished,
+                on_complete: Some(self.record_cell),
                 max_margin_arcsec: Some(self.routed.margin_arcsec),
                 ..CellRun::default()
             },
@@ -393,6 +430,8 @@ impl Shared<'_> {
             self.matching,
             &self.epochs,
         ));
+        // A cell taken up again is not journaled: its output refers to the
+        // sources of its own neighbourhood, and a resumed run defers it again.
         for (cell, mut margin) in deferred {
             loop {
                 let reach = self.cells_within(cell, margin);
@@ -533,6 +572,7 @@ fn absorb(total: &mut MatchStats, part: &MatchStats, level: usize) {
     total.approximate_groups += part.approximate_groups;
     total.objects += part.objects;
     total.objects_not_primary += part.objects_not_primary;
+    total.cells.resumed += part.cells.resumed;
     for (k, v) in &part.objects_by_members {
         *total.objects_by_members.entry(*k).or_insert(0) += v;
     }

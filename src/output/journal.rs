@@ -62,29 +62,48 @@ impl Journal {
         self.dir.join(format!("cell-{}-{id}.arrows", self.order))
     }
 
+    /// The indices of the cells finished so far, ascending.
+    ///
+    /// # Errors
+    /// [`Error::Io`] when the journal folder cannot be read.
+    pub fn cells(&self) -> Result<Vec<u64>> {
+        let prefix = format!("cell-{}-", self.order);
+        let mut found = Vec::new();
+        let entries = std::fs::read_dir(&self.dir).map_err(|e| Error::io(&self.dir, e))?;
+        for entry in entries {
+            let entry = entry.map_err(|e| Error::io(&self.dir, e))?;
+            let name = entry.file_name().to_string_lossy().into_owned();
+            if let Some(id) = name
+                .strip_prefix(&prefix)
+                .and_then(|n| n.strip_suffix(".arrows"))
+                .and_then(|n| n.parse::<u64>().ok())
+            {
+                found.push(id);
+            }
+        }
+        found.sort_unstable();
+        Ok(found)
+    }
+
+    /// The output of finished cell `id`.
+    ///
+    /// # Errors
+    /// [`Error::Io`] / [`Error::Format`] naming the journal file if it cannot be read.
+    pub fn read(&self, id: u64) -> Result<CellOutput> {
+        let path = self.cell_file(id);
+        let file = std::fs::File::open(&path).map_err(|e| Error::io(&path, e))?;
+        read_output(BufReader::new(file), &path)
+    }
+
     /// The outputs of the cells finished so far, by cell index.
     ///
     /// # Errors
     /// [`Error::Io`] / [`Error::Format`] naming a journal file that cannot be read.
     pub fn finished(&self) -> Result<BTreeMap<u64, CellOutput>> {
-        let prefix = format!("cell-{}-", self.order);
-        let mut found = BTreeMap::new();
-        let entries = std::fs::read_dir(&self.dir).map_err(|e| Error::io(&self.dir, e))?;
-        for entry in entries {
-            let entry = entry.map_err(|e| Error::io(&self.dir, e))?;
-            let name = entry.file_name().to_string_lossy().into_owned();
-            let Some(id) = name
-                .strip_prefix(&prefix)
-                .and_then(|n| n.strip_suffix(".arrows"))
-                .and_then(|n| n.parse::<u64>().ok())
-            else {
-                continue;
-            };
-            let path = entry.path();
-            let file = std::fs::File::open(&path).map_err(|e| Error::io(&path, e))?;
-            found.insert(id, read_output(BufReader::new(file), &path)?);
-        }
-        Ok(found)
+        self.cells()?
+            .into_iter()
+            .map(|id| Ok((id, self.read(id)?)))
+            .collect()
     }
 
     /// Records the output of cell `id`.
