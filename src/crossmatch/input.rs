@@ -36,6 +36,10 @@ pub struct SourceTable {
     /// `forced` column); empty when the catalog has none. Read it through
     /// [`SourceTable::is_forced`].
     pub forced: Vec<bool>,
+    /// True for extended rows (the normalized table's `extended` column, from
+    /// a schema's `[position] extended`); empty when the catalog has none. Read
+    /// it through [`SourceTable::is_extended`].
+    pub extended: Vec<bool>,
 }
 
 impl SourceTable {
@@ -58,6 +62,17 @@ impl SourceTable {
     /// True when some source of the table was measured by forced photometry.
     pub fn has_forced(&self) -> bool {
         self.forced.iter().any(|f| *f)
+    }
+
+    /// Whether source `i` is extended: a galaxy, which is never taken as a
+    /// moving object.
+    pub fn is_extended(&self, i: usize) -> bool {
+        self.extended.get(i).copied().unwrap_or(false)
+    }
+
+    /// True when some source of the table is extended.
+    pub fn has_extended(&self) -> bool {
+        self.extended.iter().any(|f| *f)
     }
 
     /// Appends one source with a circular error and no proper motion (handy in tests).
@@ -148,6 +163,17 @@ impl SourceTable {
             opt(f64s("pos_err_pa_deg")?, &mut t.err_pa_deg);
             opt(f64s("pmra_cosdec_masyr")?, &mut t.pmra_cosdec_masyr);
             opt(f64s("pmdec_masyr")?, &mut t.pmdec_masyr);
+            if let Some(ext) = batch.column_by_name(crate::catalog::normalize::EXTENDED_COLUMN) {
+                let ext = ext.as_boolean_opt().ok_or_else(|| {
+                    Error::format(
+                        origin,
+                        "normalized table's \"extended\" column is not Boolean",
+                    )
+                })?;
+                t.extended.resize(t.ra_deg.len() - ext.len(), false);
+                t.extended
+                    .extend((0..ext.len()).map(|i| ext.is_valid(i) && ext.value(i)));
+            }
             if let Some(forced) = batch.column_by_name(crate::catalog::normalize::FORCED_COLUMN) {
                 let forced = forced.as_boolean_opt().ok_or_else(|| {
                     Error::format(
@@ -163,6 +189,9 @@ impl SourceTable {
         }
         if !t.forced.is_empty() {
             t.forced.resize(t.ra_deg.len(), false);
+        }
+        if !t.extended.is_empty() {
+            t.extended.resize(t.ra_deg.len(), false);
         }
         Ok(t)
     }

@@ -47,6 +47,9 @@ pub struct Sources {
     /// ([`SourceTable::is_forced`]); empty when no source was. Read it through
     /// [`Sources::is_forced`].
     pub forced: Vec<bool>,
+    /// Whether each source is extended ([`SourceTable::is_extended`]); empty
+    /// when no source is. Read it through [`Sources::is_extended`].
+    pub extended: Vec<bool>,
 }
 
 impl Sources {
@@ -63,6 +66,11 @@ impl Sources {
     /// Whether source `i` was measured by forced photometry.
     pub fn is_forced(&self, i: usize) -> bool {
         self.forced.get(i).copied().unwrap_or(false)
+    }
+
+    /// Whether source `i` is extended (a galaxy: it never moves).
+    pub fn is_extended(&self, i: usize) -> bool {
+        self.extended.get(i).copied().unwrap_or(false)
     }
 
     /// Flattens `tables` into rank order at `config.reference_epoch_yr`.
@@ -98,8 +106,10 @@ impl Sources {
             sigma_rad: Vec::with_capacity(total),
             catalog_start: Vec::with_capacity(tables.len() + 1),
             forced: Vec::new(),
+            extended: Vec::new(),
         };
         let any_forced = tables.iter().any(SourceTable::has_forced);
+        let any_extended = tables.iter().any(SourceTable::has_extended);
         for (c, table) in tables.iter().enumerate() {
             s.catalog_start.push(s.len());
             let mut order: Vec<u32> = (0..table.len() as u32).collect();
@@ -155,6 +165,9 @@ impl Sources {
                 if any_forced {
                     s.forced.push(table.is_forced(i));
                 }
+                if any_extended {
+                    s.extended.push(table.is_extended(i));
+                }
             }
         }
         s.catalog_start.push(s.len());
@@ -189,6 +202,11 @@ impl Sources {
                 Vec::new()
             } else {
                 ranks.iter().map(|i| self.forced[pick(i)]).collect()
+            },
+            extended: if self.extended.is_empty() {
+                Vec::new()
+            } else {
+                ranks.iter().map(|i| self.extended[pick(i)]).collect()
             },
         };
         for c in 0..ncat {

@@ -101,6 +101,25 @@ pub fn objects_batch(
         field("pos_err_arcsec", DataType::Float64, false, Some("arcsec")),
         field("pmra_cosdec_masyr", DataType::Float64, true, Some("mas/yr")),
         field("pmdec_masyr", DataType::Float64, true, Some("mas/yr")),
+        field(
+            "pm_fit_ra_cosdec_masyr",
+            DataType::Float64,
+            true,
+            Some("mas/yr"),
+        ),
+        field("pm_fit_dec_masyr", DataType::Float64, true, Some("mas/yr")),
+        field(
+            "pm_fit_ra_cosdec_err_masyr",
+            DataType::Float64,
+            true,
+            Some("mas/yr"),
+        ),
+        field(
+            "pm_fit_dec_err_masyr",
+            DataType::Float64,
+            true,
+            Some("mas/yr"),
+        ),
         described(
             "epoch_yr",
             DataType::Float64,
@@ -130,6 +149,10 @@ pub fn objects_batch(
         )),
         f64s(objects.iter().map(|o| opt(o.pmra_cosdec_masyr)).collect()),
         f64s(objects.iter().map(|o| opt(o.pmdec_masyr)).collect()),
+        f64s(objects.iter().map(|o| opt(o.pm_fit_masyr[0])).collect()),
+        f64s(objects.iter().map(|o| opt(o.pm_fit_masyr[1])).collect()),
+        f64s(objects.iter().map(|o| opt(o.pm_fit_err_masyr[0])).collect()),
+        f64s(objects.iter().map(|o| opt(o.pm_fit_err_masyr[1])).collect()),
         Arc::new(Float64Array::from_iter_values(
             objects.iter().map(|_| reference_epoch_yr),
         )),

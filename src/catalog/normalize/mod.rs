@@ -44,7 +44,8 @@
 //! Without an error column, errors come from the `snr` column when the schema
 //! names one (σ_m = 1.085736 / SNR, σ = |F| / |SNR|). Rows of a `[forced]`
 //! schema carry a Boolean `forced` column. The position error may come from a
-//! band's S/N (kind `snr`) and grows for extended sources (`[position] extended`).
+//! band's S/N (kind `snr`) and grows for extended sources (`[position] extended`);
+//! rows given that size term are marked in a Boolean `extended` column.
 //!
 //! An error value that is zero or negative is read as "no error" (catalogs use
 //! such values as sentinels).
@@ -275,7 +276,12 @@ impl Normalizer {
 
         // Row-level fields first; in strict mode stop at the first bad row, but
         // report a band problem of an earlier row if there is one (below).
-        let mut out = RowBuilders::new(n, &self.schema.survey, self.schema.forced.is_some());
+        let mut out = RowBuilders::new(
+            n,
+            &self.schema.survey,
+            self.schema.forced.is_some(),
+            self.schema.extended.is_some(),
+        );
         let mut kept: Vec<u32> = Vec::with_capacity(n);
         let mut contexts: Vec<RowContext> = Vec::with_capacity(n);
         let mut row_error: Option<(usize, RowProblem)> = None;
@@ -453,6 +459,9 @@ pub fn output_schema(schema: &SurveySchema) -> SchemaRef {
     if schema.forced.is_some() {
         fields.push(Field::new(FORCED_COLUMN, DataType::Boolean, false));
     }
+    if schema.extended.is_some() {
+        fields.push(Field::new(EXTENDED_COLUMN, DataType::Boolean, false));
+    }
     for band in &schema.bands {
         let id = &band.band.id;
         if band.has_flux() {
@@ -490,6 +499,11 @@ pub fn output_schema(schema: &SurveySchema) -> SchemaRef {
 /// photometry (present only when the schema has a `[forced]` table).
 pub const FORCED_COLUMN: &str = "forced";
 
+/// The column of normalized tables that marks extended rows, those given a
+/// size term (present only when the schema has `[position] extended`). The
+/// matcher never takes an extended source for a moving star.
+pub const EXTENDED_COLUMN: &str = "extended";
+
 /// The type of status columns: text, dictionary-encoded (one byte per row).
 pub fn status_type() -> DataType {
     DataType::Dictionary(Box::new(DataType::Int8), Box::new(DataType::Utf8))
@@ -523,6 +537,7 @@ struct RowFields<'a> {
     ellipse: (f64, f64, f64),
     pm: Option<(f64, f64)>,
     forced: bool,
+    extended: bool,
 }
 
 /// What a band measurement needs to know of its row.
@@ -828,9 +843,11 @@ impl RowInputs {
                 (sigma, sigma, 0.0)
             }
         };
+        let mut extended = false;
         if let (Some(spec), Some(input)) = (&schema.extended, &self.extended) {
             let r_half = extended_radius(spec, input, i)?;
             if r_half > 0.0 {
+                extended = true;
                 // A circular term added to both axes keeps the ellipse's axes.
                 ellipse.0 = add_extent_arcsec(ellipse.0, r_half, Some(spec.coeff));
                 ellipse.1 = add_extent_arcsec(ellipse.1, r_half, Some(spec.coeff));
@@ -870,6 +887,7 @@ impl RowInputs {
             ellipse,
             pm,
             forced,
+            extended,
         })
     }
 }
@@ -919,10 +937,11 @@ struct RowBuilders {
     pmra: Float64Builder,
     pmdec: Float64Builder,
     forced: Option<BooleanBuilder>,
+    extended: Option<BooleanBuilder>,
 }
 
 impl RowBuilders {
-    fn new(n: usize, survey: &str, forced: bool) -> RowBuilders {
+    fn new(n: usize, survey: &str, forced: bool, extended: bool) -> RowBuilders {
         RowBuilders {
             survey: survey.to_string(),
             source_id: StringBuilder::with_capacity(n, n * 8),
@@ -931,6 +950,7 @@ impl RowBuilders {
             pmra: Float64Builder::with_capacity(n),
             pmdec: Float64Builder::with_capacity(n),
             forced: forced.then(|| BooleanBuilder::with_capacity(n)),
+            extended: extended.then(|| BooleanBuilder::with_capacity(n)),
         }
     }
 
@@ -956,6 +976,9 @@ impl RowBuilders {
         if let Some(b) = &mut self.forced {
             b.append_value(f.forced);
         }
+        if let Some(b) = &mut self.extended {
+            b.append_value(f.extended);
+        }
     }
 
     fn finish(mut self) -> Vec<ArrayRef> {
@@ -975,6 +998,9 @@ impl RowBuilders {
         cols.push(Arc::new(self.pmra.finish()));
         cols.push(Arc::new(self.pmdec.finish()));
         if let Some(mut b) = self.forced {
+            cols.push(Arc::new(b.finish()));
+        }
+        if let Some(mut b) = self.extended {
             cols.push(Arc::new(b.finish()));
         }
         cols
@@ -1944,6 +1970,19 @@ error = "e"
         );
         close(major[1], 0.1);
         close(major[2], 0.1);
+        // Rows given a size term are marked extended; the others (no size, size 0) are not.
+        let marked = out.column_by_name(EXTENDED_COLUMN).unwrap().as_boolean();
+        assert_eq!(
+            (0..3).map(|i| marked.value(i)).collect::<Vec<_>>(),
+            [true, false, false]
+        );
+        let table = crate::crossmatch::SourceTable::from_batches(
+            "s",
+            std::slice::from_ref(&out),
+            Path::new("s"),
+        )
+        .unwrap();
+        assert!(table.is_extended(0) && !table.is_extended(1) && table.has_extended());
         // A Gaussian FWHM of 2" is a half-light radius of 1".
         let fwhm = sized
             .replace(
