@@ -87,8 +87,19 @@ pub fn test_pair(sources: &Sources, config: &MatchConfig, a: u32, b: u32) -> Opt
             sources.position_for_pair(ia, ib, config.reference_epoch_yr);
         tangent_offsets_arcsec(ra_a, dec_a, ra_b, dec_b)
     });
-    let d2 = sources.cov[ia]
-        .combine(&sources.cov[ib], floor)
+    // A source carried by its motion to the other's epoch has the positional
+    // error of that epoch (its motion's errors grow it, Sources::cov_at).
+    let t_ref = config.reference_epoch_yr;
+    let at_pair_epoch = |i: usize, other: usize| {
+        if sources.has_pm(i) && !sources.has_pm(other) && sources.epoch_yr[other].is_finite() {
+            sources.cov_at(i, sources.epoch_yr[other], t_ref)
+        } else {
+            (sources.cov[i], sources.sigma_rad[i])
+        }
+    };
+    let ((cov_a, sigma_a), (cov_b, sigma_b)) = (at_pair_epoch(ia, ib), at_pair_epoch(ib, ia));
+    let d2 = cov_a
+        .combine(&cov_b, floor)
         .normalized_distance2(east, north);
     let moving_only = if accepts(&tolerance, sep_arcsec, d2) {
         false
@@ -108,11 +119,7 @@ pub fn test_pair(sources: &Sources, config: &MatchConfig, a: u32, b: u32) -> Opt
         b: a.max(b),
         sep_arcsec,
         norm_dist: d2.sqrt(),
-        ln_bayes: ln_bayes_factor_pair(
-            sources.sigma_rad[ia],
-            sources.sigma_rad[ib],
-            sep_arcsec * RAD_PER_ARCSEC,
-        ),
+        ln_bayes: ln_bayes_factor_pair(sigma_a, sigma_b, sep_arcsec * RAD_PER_ARCSEC),
         east_arcsec: if a < b { east } else { -east },
         north_arcsec: if a < b { north } else { -north },
         moving_only,

@@ -7,7 +7,9 @@
 //! (`pmra_cosdec_masyr`, `pmdec_masyr`, NaN when unknown), covariance
 //! (`cov_ee_arcsec2`, `cov_nn_arcsec2`, `cov_en_arcsec2`), `sigma_rad`,
 //! `forced` (Boolean) when some source was measured by forced photometry, and
-//! `extended` (Boolean) when some source is extended. The schema's metadata
+//! `extended` (Boolean) when some source is extended, and
+//! `pmra_cosdec_err_masyr`, `pmdec_err_masyr` when some source has errors of
+//! its proper motion. The schema's metadata
 //! carries what every cell shares: the cell (`fluxloom.cell.order`,
 //! `fluxloom.cell.id`, `fluxloom.cell.margin_arcsec`), the catalogs' ln
 //! densities and the epoch statistics. Numbers in metadata are written with
@@ -180,9 +182,22 @@ pub fn input_batch(input: &CellInput) -> Result<RecordBatch> {
             columns.push(Arc::new(BooleanArray::from(marks.clone())));
         }
     }
+    if !s.pm_err_masyr.is_empty() {
+        for (k, name) in PM_ERROR_INPUT_COLUMNS.iter().enumerate() {
+            fields.push(float_field(name));
+            columns.push(floats(
+                s.pm_err_masyr
+                    .iter()
+                    .map(|e| if k == 0 { e.0 } else { e.1 }),
+            ));
+        }
+    }
     let schema = Arc::new(Schema::new_with_metadata(fields, schema.metadata().clone()));
     RecordBatch::try_new(schema, columns).map_err(|e| Error::Usage(e.to_string()))
 }
+
+/// Optional columns of the proper-motion errors, present when some source has them.
+const PM_ERROR_INPUT_COLUMNS: [&str; 2] = ["pmra_cosdec_err_masyr", "pmdec_err_masyr"];
 
 const FLOAT_INPUT_COLUMNS: [&str; 12] = [
     "ra_deg",
@@ -392,6 +407,16 @@ pub fn input_from_batch(batch: &RecordBatch, origin: &Path) -> Result<CellInput>
         catalog_start: Vec::with_capacity(ncat + 1),
         forced: c.optional_marks("forced")?,
         extended: c.optional_marks("extended")?,
+        pm_err_masyr: match batch.column_by_name(PM_ERROR_INPUT_COLUMNS[0]) {
+            None => Vec::new(),
+            Some(_) => {
+                let (a, d) = (
+                    c.floats(PM_ERROR_INPUT_COLUMNS[0])?,
+                    c.floats(PM_ERROR_INPUT_COLUMNS[1])?,
+                );
+                a.iter().zip(d).map(|(&a, &d)| (a, d)).collect()
+            }
+        },
     };
     for k in 0..ncat {
         sources
@@ -703,6 +728,12 @@ mod tests {
         let back = input_from_batch(&marked, Path::new("cell")).unwrap();
         assert_eq!(back.sources.extended, [true, false]);
         assert!(back.sources.is_extended(0) && !back.sources.is_extended(1));
+        assert!(back.sources.pm_err_masyr.is_empty());
+        t.pm_err_masyr = vec![(1.5, 2.5), (f64::NAN, f64::NAN)];
+        let marked = input_batch(&input(&t)).unwrap();
+        let back = input_from_batch(&marked, Path::new("cell")).unwrap();
+        // No proper motion: the errors are kept unknown.
+        assert!(back.sources.pm_err_masyr.iter().all(|e| e.0.is_nan()));
     }
 
     #[test]

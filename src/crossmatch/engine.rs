@@ -145,6 +145,9 @@ pub struct Link {
     pub dra_cosdec_arcsec: f64,
     /// Offset of the second source from the first toward the north, arcsec.
     pub ddec_arcsec: f64,
+    /// True when the pair passes only the tolerance widened for motion
+    /// (`max_motion_masyr`): it can be chosen only within a moving object.
+    pub moving_only: bool,
     /// Anchor of the object of the first source (its identifier is
     /// `<catalog>:<source id>` of this source, built when the link is written).
     pub object_a: SourceRef,
@@ -576,6 +579,7 @@ fn assemble(ctx: &Context, cells: CellOutput) -> MatchResult {
                 chosen: l.object_a == l.object_b,
                 dra_cosdec_arcsec: c.east_arcsec,
                 ddec_arcsec: c.north_arcsec,
+                moving_only: c.moving_only,
                 object_a: anchor_of_rank(l.object_a),
                 object_b: anchor_of_rank(l.object_b),
             }

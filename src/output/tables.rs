@@ -441,6 +441,7 @@ pub fn links_batch(links: &[Link], tables: &[SourceTable]) -> Result<RecordBatch
             Some("arcsec"),
         ),
         field("ddec_arcsec", DataType::Float64, false, Some("arcsec")),
+        field("moving_only", DataType::Boolean, false, None),
     ];
     let columns: Vec<ArrayRef> = vec![
         object_ids(links.iter().map(|l| l.object_a), tables),
@@ -481,6 +482,9 @@ pub fn links_batch(links: &[Link], tables: &[SourceTable]) -> Result<RecordBatch
         )),
         Arc::new(Float64Array::from_iter_values(
             links.iter().map(|l| l.ddec_arcsec),
+        )),
+        Arc::new(BooleanArray::from(
+            links.iter().map(|l| l.moving_only).collect::<Vec<_>>(),
         )),
     ];
     RecordBatch::try_new(Arc::new(Schema::new(fields)), columns)
