@@ -37,6 +37,9 @@ use crate::photometry::BandLibrary;
 pub const MAX_ARCSEC: f64 = 3600.0;
 /// Largest accepted tolerance multiple `k` of a sigma tolerance.
 pub const MAX_TOLERANCE_K: f64 = 100.0;
+/// Largest accepted `max_motion_masyr`, mas/yr: 10″/yr, above the fastest
+/// known stars (about 10.4″/yr, FIELD notes §5.8's illustrative inputs).
+pub const MAX_MOTION_LIMIT_MASYR: f64 = 10_000.0;
 /// The area of the whole sky, square degrees (4 pi sr = 129600 / pi deg^2).
 pub const FULL_SKY_DEG2: f64 = 41252.96124941928;
 
@@ -154,6 +157,8 @@ struct RawMatch {
     tolerance: Option<Spanned<RawTolerance>>,
     min_probability: Option<Spanned<f64>>,
     common_fraction: Option<Spanned<f64>>,
+    max_motion_masyr: Option<Spanned<f64>>,
+    moving_fraction: Option<Spanned<f64>>,
     partition_order: Option<Spanned<u8>>,
     primary: Option<Vec<Spanned<String>>>,
     astrometric_reference: Option<Spanned<String>>,
@@ -335,6 +340,28 @@ impl Plan {
                 ));
             }
             matching.common_fraction = v;
+        }
+        if let Some(f) = &m.max_motion_masyr {
+            let v = *f.get_ref();
+            if !(0.0..=MAX_MOTION_LIMIT_MASYR).contains(&v) {
+                return Err(err(
+                    f.span(),
+                    format!(
+                        "max_motion_masyr must lie in [0, {MAX_MOTION_LIMIT_MASYR}] mas/yr (0 turns moving objects off), found {v}"
+                    ),
+                ));
+            }
+            matching.max_motion_masyr = v;
+        }
+        if let Some(f) = &m.moving_fraction {
+            let v = *f.get_ref();
+            if !(v > 0.0 && v < 1.0) {
+                return Err(err(
+                    f.span(),
+                    format!("moving_fraction must lie in (0, 1), found {v}"),
+                ));
+            }
+            matching.moving_fraction = v;
         }
         if let Some(o) = &m.partition_order {
             let v = *o.get_ref();

@@ -365,6 +365,10 @@ pub struct ProperMotion {
     pub dec: String,
     /// True when the RA component is mu_alpha* = mu_alpha cos(dec) (the usual convention).
     pub ra_includes_cos_dec: bool,
+    /// 1-sigma error columns of the two components (RA first, in the same
+    /// convention as `ra`), mas/yr; they grow the positional error away from
+    /// the catalog's epoch.
+    pub errors: Option<(String, String)>,
 }
 
 /// How a band marks a measurement that is an upper limit or a non-detection.
@@ -666,6 +670,10 @@ impl SurveySchema {
         if let Some(pm) = &self.proper_motion {
             add(&pm.ra, top);
             add(&pm.dec, top);
+            if let Some((ra, dec)) = &pm.errors {
+                add(ra, top);
+                add(dec, top);
+            }
         }
         if let Some(forced) = &self.forced {
             add(forced.test.column(), top);
@@ -846,6 +854,8 @@ struct RawProperMotion {
     dec: String,
     ra_includes_cos_dec: Option<bool>,
     unit: Option<String>,
+    ra_error: Option<String>,
+    dec_error: Option<String>,
 }
 
 #[derive(Deserialize)]
@@ -971,10 +981,21 @@ impl Validator<'_> {
                         "proper_motion needs ra_includes_cos_dec = true or false: catalogs differ, and guessing moves stars by up to 1/cos(dec)",
                     ));
                 };
+                let errors = match (&inner.ra_error, &inner.dec_error) {
+                    (Some(ra), Some(dec)) => Some((ra.clone(), dec.clone())),
+                    (None, None) => None,
+                    (Some(_), None) | (None, Some(_)) => {
+                        return Err(self.err(
+                            pm.span(),
+                            "proper_motion ra_error and dec_error go together: give both error columns (mas/yr) or neither",
+                        ));
+                    }
+                };
                 Some(ProperMotion {
                     ra: inner.ra.clone(),
                     dec: inner.dec.clone(),
                     ra_includes_cos_dec: cos,
+                    errors,
                 })
             }
         };
@@ -2103,6 +2124,26 @@ quality = [{ column = "cc", reject = ["D", "H"] }]
         let text = GOOD.replace("id = \"src\"", "id = \"src\"\nidentifier = \"x\"");
         let err = parse(&text).unwrap_err().to_string();
         assert!(err.contains("unknown field `identifier`"), "{err}");
+    }
+
+    #[test]
+    fn proper_motion_errors_come_in_pairs() {
+        let text = format!(
+            "{GOOD}\n[proper_motion]\nra = \"pmra\"\ndec = \"pmde\"\nra_includes_cos_dec = true\nra_error = \"e_pmra\"\n"
+        );
+        let err = parse(&text).unwrap_err().to_string();
+        assert!(
+            err.ends_with(
+                "proper_motion ra_error and dec_error go together: give both error columns (mas/yr) or neither"
+            ),
+            "{err}"
+        );
+        let both = text.replace(
+            "ra_error = \"e_pmra\"\n",
+            "ra_error = \"e_pmra\"\ndec_error = \"e_pmde\"\n",
+        );
+        let pm = parse(&both).unwrap().proper_motion.unwrap();
+        assert_eq!(pm.errors, Some(("e_pmra".into(), "e_pmde".into())));
     }
 
     #[test]

@@ -10,6 +10,10 @@
 //! A source with a proper motion is also indexed at the epochs of catalogs without
 //! proper motions, so a fast star meets its counterpart of another epoch
 //! ([`IndexPoints`]); every pair is then tested at a common epoch ([`test_pair`]).
+//! Two sources without proper motions seen at different epochs may be one star
+//! moving up to `config.max_motion_masyr`: their tolerance is widened by
+//! μ_max·|t_i − t_j| (FIELD notes §5.11), and a pair passing only so is marked
+//! [`Candidate::moving_only`].
 //! [`find_candidates_in_cell`] is the per-cell function: sources in, pairs out.
 
 use std::collections::BTreeMap;
@@ -46,6 +50,10 @@ pub struct Candidate {
     pub east_arcsec: f64,
     /// Offset of b from a toward the north (Δδ), arcsec.
     pub north_arcsec: f64,
+    /// True when the pair passes only the tolerance widened by μ_max·|t_a − t_b|
+    /// (two sources without proper motions at different epochs): it may join a
+    /// moving object, never a stationary one.
+    pub moving_only: bool,
 }
 
 /// Moving sources get an extra index entry at another catalog's epoch when
@@ -67,7 +75,8 @@ pub fn test_pair(sources: &Sources, config: &MatchConfig, a: u32, b: u32) -> Opt
     let (va, vb) = sources.vectors_for_pair(ia, ib, config.reference_epoch_yr);
     let sep_arcsec = separation_vec_rad(va, vb) / RAD_PER_ARCSEC;
     let tolerance = config.tolerance_for(ca, cb);
-    if sep_arcsec > tolerance.max_arcsec() {
+    let widening = widening_arcsec(sources, config, ia, ib);
+    if sep_arcsec > tolerance.max_arcsec() + widening {
         return None;
     }
     let floor = config.catalogs[ca].systematic_arcsec.powi(2)
@@ -78,25 +87,58 @@ pub fn test_pair(sources: &Sources, config: &MatchConfig, a: u32, b: u32) -> Opt
             sources.position_for_pair(ia, ib, config.reference_epoch_yr);
         tangent_offsets_arcsec(ra_a, dec_a, ra_b, dec_b)
     });
-    let d2 = sources.cov[ia]
-        .combine(&sources.cov[ib], floor)
+    // A source carried by its motion to the other's epoch has the positional
+    // error of that epoch (its motion's errors grow it, Sources::cov_at).
+    let t_ref = config.reference_epoch_yr;
+    let at_pair_epoch = |i: usize, other: usize| {
+        if sources.has_pm(i) && !sources.has_pm(other) && sources.epoch_yr[other].is_finite() {
+            sources.cov_at(i, sources.epoch_yr[other], t_ref)
+        } else {
+            (sources.cov[i], sources.sigma_rad[i])
+        }
+    };
+    let ((cov_a, sigma_a), (cov_b, sigma_b)) = (at_pair_epoch(ia, ib), at_pair_epoch(ib, ia));
+    let d2 = cov_a
+        .combine(&cov_b, floor)
         .normalized_distance2(east, north);
-    if !accepts(&tolerance, sep_arcsec, d2) {
+    let moving_only = if accepts(&tolerance, sep_arcsec, d2) {
+        false
+    } else if widening > 0.0 {
+        // The offset shortened by μ_max·|Δt| (the farthest the star can have
+        // moved) must pass the tolerance; d² scales with the offset squared.
+        let shrink = (1.0 - widening / sep_arcsec).max(0.0);
+        if !accepts(&tolerance, sep_arcsec * shrink, d2 * shrink * shrink) {
+            return None;
+        }
+        true
+    } else {
         return None;
-    }
+    };
     Some(Candidate {
         a: a.min(b),
         b: a.max(b),
         sep_arcsec,
         norm_dist: d2.sqrt(),
-        ln_bayes: ln_bayes_factor_pair(
-            sources.sigma_rad[ia],
-            sources.sigma_rad[ib],
-            sep_arcsec * RAD_PER_ARCSEC,
-        ),
+        ln_bayes: ln_bayes_factor_pair(sigma_a, sigma_b, sep_arcsec * RAD_PER_ARCSEC),
         east_arcsec: if a < b { east } else { -east },
         north_arcsec: if a < b { north } else { -north },
+        moving_only,
     })
+}
+
+/// How far the tolerance of sources `a` and `b` is widened for motion, arcsec:
+/// μ_max·|t_a − t_b| when neither has a proper motion and their epochs differ
+/// (a source with one is compared at the other's epoch already), else 0.
+pub fn widening_arcsec(sources: &Sources, config: &MatchConfig, a: usize, b: usize) -> f64 {
+    if config.max_motion_masyr <= 0.0 || sources.has_pm(a) || sources.has_pm(b) {
+        return 0.0;
+    }
+    let dt = (sources.epoch_yr[a] - sources.epoch_yr[b]).abs();
+    if dt.is_finite() {
+        config.max_motion_masyr / 1000.0 * dt
+    } else {
+        0.0
+    }
 }
 
 /// The points put in the spatial index: every source at its stored position,
@@ -110,7 +152,8 @@ pub struct IndexPoints {
     pub dec_deg: Vec<f64>,
     /// The source (rank) each point stands for.
     pub source: Vec<u32>,
-    /// Extra search radius for catalogs whose epochs spread around their median, arcsec.
+    /// Extra search radius, arcsec: for catalogs whose epochs spread around
+    /// their median, plus the widest widening for motion.
     pub slack_arcsec: f64,
 }
 
@@ -258,9 +301,39 @@ impl EpochStats {
 
     /// Largest separation of the stored positions of two sources that can be a
     /// candidate pair, arcsec: the largest tolerance plus the farthest a moving
-    /// source travels between the reference epoch and an epoch of observation.
+    /// source travels between the reference epoch and an epoch of observation,
+    /// plus the widest widening for motion ([`EpochStats::max_widening_arcsec`]).
     pub fn max_stored_separation_arcsec(&self, config: &MatchConfig) -> f64 {
-        config.max_radius_arcsec() + self.fastest_arcsec_per_yr * self.max_abs_dt_yr
+        config.max_radius_arcsec()
+            + self.fastest_arcsec_per_yr * self.max_abs_dt_yr
+            + self.max_widening_arcsec(config)
+    }
+
+    /// Largest difference of epochs of two sources without proper motion from
+    /// different catalogs, bounded from each catalog's median and spread, years
+    /// (0 with fewer than two such catalogs).
+    pub fn no_motion_span_yr(&self) -> f64 {
+        let ranges: Vec<(f64, f64)> = self
+            .no_motion_epochs
+            .iter()
+            .flatten()
+            .map(|&(median, spread)| (median - spread, median + spread))
+            .collect();
+        if ranges.len() < 2 {
+            return 0.0;
+        }
+        let lo = ranges.iter().map(|r| r.0).fold(f64::INFINITY, f64::min);
+        let hi = ranges.iter().map(|r| r.1).fold(f64::NEG_INFINITY, f64::max);
+        hi - lo
+    }
+
+    /// The widest widening of a pair tolerance for motion, arcsec:
+    /// μ_max times [`EpochStats::no_motion_span_yr`] (see [`widening_arcsec`]).
+    pub fn max_widening_arcsec(&self, config: &MatchConfig) -> f64 {
+        if config.max_motion_masyr <= 0.0 {
+            return 0.0;
+        }
+        config.max_motion_masyr / 1000.0 * self.no_motion_span_yr()
     }
 }
 
@@ -281,7 +354,7 @@ impl IndexPoints {
             ra_deg: sources.ra_deg.clone(),
             dec_deg: sources.dec_deg.clone(),
             source: (0..n as u32).collect(),
-            slack_arcsec: stats.slack_arcsec(),
+            slack_arcsec: stats.slack_arcsec() + stats.max_widening_arcsec(config),
         };
         let epochs: Vec<(usize, f64)> = stats
             .no_motion_epochs

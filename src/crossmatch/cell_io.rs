@@ -5,8 +5,11 @@
 //! input's rank order — `rank`, `core`, `catalog`, `row`, the stored position
 //! (`ra_deg`, `dec_deg`, `x`, `y`, `z`), `epoch_yr`, proper motion
 //! (`pmra_cosdec_masyr`, `pmdec_masyr`, NaN when unknown), covariance
-//! (`cov_ee_arcsec2`, `cov_nn_arcsec2`, `cov_en_arcsec2`), `sigma_rad`, and
-//! `forced` (Boolean) when some source was measured by forced photometry. The schema's metadata
+//! (`cov_ee_arcsec2`, `cov_nn_arcsec2`, `cov_en_arcsec2`), `sigma_rad`,
+//! `forced` (Boolean) when some source was measured by forced photometry, and
+//! `extended` (Boolean) when some source is extended, and
+//! `pmra_cosdec_err_masyr`, `pmdec_err_masyr` when some source has errors of
+//! its proper motion. The schema's metadata
 //! carries what every cell shares: the cell (`fluxloom.cell.order`,
 //! `fluxloom.cell.id`, `fluxloom.cell.margin_arcsec`), the catalogs' ln
 //! densities and the epoch statistics. Numbers in metadata are written with
@@ -15,7 +18,8 @@
 //! **Output** (two streams, one after the other): the objects (`members`,
 //! `member_probability`, `score`, `probability`, `flags`, `related`; ranks of
 //! the whole input) and the links (`a`, `b`, `sep_arcsec`, `norm_dist`,
-//! `ln_bayes`, `east_arcsec`, `north_arcsec`, `object_a`, `object_b`). The
+//! `ln_bayes`, `east_arcsec`, `north_arcsec`, `object_a`, `object_b`,
+//! `moving_only`). The
 //! objects' metadata carries the group counts.
 
 use std::collections::HashMap;
@@ -169,20 +173,31 @@ pub fn input_batch(input: &CellInput) -> Result<RecordBatch> {
         floats(s.cov.iter().map(|c| c.en)),
         floats(s.sigma_rad.iter().copied()),
     ];
-    let (schema, columns) = if s.forced.is_empty() {
-        (schema, columns)
-    } else {
-        let mut fields: Vec<Field> = schema.fields().iter().map(|f| f.as_ref().clone()).collect();
-        fields.push(Field::new("forced", DataType::Boolean, false));
-        let mut columns = columns;
-        columns.push(Arc::new(BooleanArray::from(s.forced.clone())));
-        (
-            Arc::new(Schema::new_with_metadata(fields, schema.metadata().clone())),
-            columns,
-        )
-    };
+    // Optional markers, present only when some source carries them.
+    let mut fields: Vec<Field> = schema.fields().iter().map(|f| f.as_ref().clone()).collect();
+    let mut columns = columns;
+    for (name, marks) in [("forced", &s.forced), ("extended", &s.extended)] {
+        if !marks.is_empty() {
+            fields.push(Field::new(name, DataType::Boolean, false));
+            columns.push(Arc::new(BooleanArray::from(marks.clone())));
+        }
+    }
+    if !s.pm_err_masyr.is_empty() {
+        for (k, name) in PM_ERROR_INPUT_COLUMNS.iter().enumerate() {
+            fields.push(float_field(name));
+            columns.push(floats(
+                s.pm_err_masyr
+                    .iter()
+                    .map(|e| if k == 0 { e.0 } else { e.1 }),
+            ));
+        }
+    }
+    let schema = Arc::new(Schema::new_with_metadata(fields, schema.metadata().clone()));
     RecordBatch::try_new(schema, columns).map_err(|e| Error::Usage(e.to_string()))
 }
+
+/// Optional columns of the proper-motion errors, present when some source has them.
+const PM_ERROR_INPUT_COLUMNS: [&str; 2] = ["pmra_cosdec_err_masyr", "pmdec_err_masyr"];
 
 const FLOAT_INPUT_COLUMNS: [&str; 12] = [
     "ra_deg",
@@ -228,6 +243,19 @@ impl Columns<'_> {
             .as_primitive_opt::<Float64Type>()
             .ok_or_else(|| self.mistyped(name, "Float64"))?;
         Ok(a.values())
+    }
+
+    /// The values of an optional Boolean column; empty when it is absent.
+    fn optional_marks(&self, name: &str) -> Result<Vec<bool>> {
+        match self.batch.column_by_name(name) {
+            None => Ok(Vec::new()),
+            Some(f) => {
+                let f = f
+                    .as_boolean_opt()
+                    .ok_or_else(|| self.mistyped(name, "Boolean"))?;
+                Ok((0..f.len()).map(|i| f.value(i)).collect())
+            }
+        }
     }
 
     fn u32s(&self, name: &str) -> Result<&[u32]> {
@@ -377,13 +405,16 @@ pub fn input_from_batch(batch: &RecordBatch, origin: &Path) -> Result<CellInput>
         sigma_rad: c.floats("sigma_rad")?.to_vec(),
         catalog,
         catalog_start: Vec::with_capacity(ncat + 1),
-        forced: match batch.column_by_name("forced") {
+        forced: c.optional_marks("forced")?,
+        extended: c.optional_marks("extended")?,
+        pm_err_masyr: match batch.column_by_name(PM_ERROR_INPUT_COLUMNS[0]) {
             None => Vec::new(),
-            Some(f) => {
-                let f = f
-                    .as_boolean_opt()
-                    .ok_or_else(|| c.mistyped("forced", "Boolean"))?;
-                (0..f.len()).map(|i| f.value(i)).collect()
+            Some(_) => {
+                let (a, d) = (
+                    c.floats(PM_ERROR_INPUT_COLUMNS[0])?,
+                    c.floats(PM_ERROR_INPUT_COLUMNS[1])?,
+                );
+                a.iter().zip(d).map(|(&a, &d)| (a, d)).collect()
             }
         },
     };
@@ -453,6 +484,7 @@ pub fn output_batches(out: &CellOutput) -> Result<(RecordBatch, RecordBatch)> {
         float_field("north_arcsec"),
         Field::new("object_a", DataType::UInt32, false),
         Field::new("object_b", DataType::UInt32, false),
+        Field::new("moving_only", DataType::Boolean, false),
     ]));
     let links = RecordBatch::try_new(
         links_schema,
@@ -466,6 +498,9 @@ pub fn output_batches(out: &CellOutput) -> Result<(RecordBatch, RecordBatch)> {
             floats(l.iter().map(|x| x.pair.north_arcsec)),
             u32s(l.iter().map(|x| x.object_a)),
             u32s(l.iter().map(|x| x.object_b)),
+            Arc::new(BooleanArray::from(
+                l.iter().map(|x| x.pair.moving_only).collect::<Vec<_>>(),
+            )),
         ],
     )
     .map_err(|e| Error::Usage(e.to_string()))?;
@@ -530,6 +565,10 @@ pub fn output_from_batches(
     );
     let (east, north) = (c.floats("east_arcsec")?, c.floats("north_arcsec")?);
     let (object_a, object_b) = (c.u32s("object_a")?, c.u32s("object_b")?);
+    let moving_only = c
+        .column("moving_only")?
+        .as_boolean_opt()
+        .ok_or_else(|| c.mistyped("moving_only", "Boolean"))?;
     let links = (0..a.len())
         .map(|i| CellLink {
             pair: Candidate {
@@ -540,6 +579,7 @@ pub fn output_from_batches(
                 ln_bayes: ln_bayes[i],
                 east_arcsec: east[i],
                 north_arcsec: north[i],
+                moving_only: moving_only.value(i),
             },
             object_a: object_a[i],
             object_b: object_b[i],
@@ -635,6 +675,7 @@ mod tests {
                     ln_bayes: -f64::MIN_POSITIVE,
                     east_arcsec: 1e-300,
                     north_arcsec: -0.0,
+                    moving_only: true,
                 },
                 object_a: 3,
                 object_b: 3,
@@ -681,6 +722,18 @@ mod tests {
         let back = input_from_batch(&marked, Path::new("cell")).unwrap();
         assert_eq!(back.sources.forced, [false, true]);
         assert!(back.sources.is_forced(1) && !back.sources.is_forced(0));
+        assert!(back.sources.extended.is_empty());
+        t.extended = vec![true, false];
+        let marked = input_batch(&input(&t)).unwrap();
+        let back = input_from_batch(&marked, Path::new("cell")).unwrap();
+        assert_eq!(back.sources.extended, [true, false]);
+        assert!(back.sources.is_extended(0) && !back.sources.is_extended(1));
+        assert!(back.sources.pm_err_masyr.is_empty());
+        t.pm_err_masyr = vec![(1.5, 2.5), (f64::NAN, f64::NAN)];
+        let marked = input_batch(&input(&t)).unwrap();
+        let back = input_from_batch(&marked, Path::new("cell")).unwrap();
+        // No proper motion: the errors are kept unknown.
+        assert!(back.sources.pm_err_masyr.iter().all(|e| e.0.is_nan()));
     }
 
     #[test]

@@ -254,6 +254,10 @@ pub fn match_cell(
         o.related.sort_unstable();
         o.related.dedup();
     }
+    // Objects by anchor, whatever the order their groups were resolved in (a
+    // group's objects need not precede the next group's), so a cell's output
+    // is the same as its part of the joined output.
+    out.objects.sort_unstable_by_key(|o| o.members[0]);
     out.links = candidates
         .iter()
         .filter(|c| core[c.a as usize])

@@ -10,9 +10,29 @@
 //!   (default 1) times the density of the sparsest of them, i.e. by default every
 //!   source of the sparsest catalog is assumed to have counterparts in the others;
 //! - minimum probability for a clean association: 0.8;
-//! - partition order 7 (cells of about 27′; results do not depend on it).
+//! - partition order 7 (cells of about 27′; results do not depend on it);
+//! - moving sources without a catalog proper motion: motions up to
+//!   `max_motion_masyr` = 300 mas/yr are searched for (FIELD notes §5.11: a
+//!   few per cent of field stars move 20–300 mas/yr), with the motion prior
+//!   described at [`MatchConfig::motion_prior_sigma_arcsec_yr`] and a prior
+//!   fraction of such movers `moving_fraction` = 0.03 ("a few per cent", same
+//!   place). The cost: pairs of catalogs without proper motions are searched
+//!   μ_max·|t_i − t_j| farther (1.65″ more for epochs 5.5 yr apart), and
+//!   cell margins grow by as much.
 
 use std::collections::BTreeMap;
+
+/// Default fastest motion searched for, mas/yr (FIELD notes §5.11: a few per
+/// cent of field stars move 20–300 mas/yr; common practice).
+pub const DEFAULT_MAX_MOTION_MASYR: f64 = 300.0;
+
+/// Default prior fraction of moving objects: 0.03, "a few per cent" of field
+/// stars (FIELD notes §5.11; common practice).
+pub const DEFAULT_MOVING_FRACTION: f64 = 0.03;
+
+/// μ_max over the motion prior's per-axis dispersion: 3.439, the 99.73 % point
+/// of the Rayleigh distribution (FIELD notes §5.3; standard).
+pub const MOTION_PRIOR_K: f64 = 3.439;
 
 /// How close two sources of a catalog pair must be to be candidates.
 #[derive(Debug, Clone, Copy, PartialEq, serde::Serialize)]
@@ -84,6 +104,14 @@ pub struct MatchConfig {
     pub primary: Vec<usize>,
     /// Largest group (in sources) resolved by exact search; larger ones are resolved greedily.
     pub max_exact_group: usize,
+    /// Fastest motion searched for among sources without a catalog proper
+    /// motion, mas/yr (μ_max): the tolerance of two such sources seen at
+    /// epochs t_i ≠ t_j is widened by μ_max·|t_i − t_j|, and such groups may
+    /// resolve into one moving object. 0 turns moving objects off.
+    pub max_motion_masyr: f64,
+    /// Prior fraction of objects that move (the broad component of the motion
+    /// prior; the rest are stationary), in (0, 1).
+    pub moving_fraction: f64,
 }
 
 /// Writes the pair tolerances as a list of `{catalogs: [a, b], tolerance}` (JSON
@@ -113,7 +141,20 @@ impl MatchConfig {
             partition_order: 7,
             primary: Vec::new(),
             max_exact_group: 24,
+            max_motion_masyr: DEFAULT_MAX_MOTION_MASYR,
+            moving_fraction: DEFAULT_MOVING_FRACTION,
         }
+    }
+
+    /// Per-axis dispersion s of the isotropic Gaussian motion prior of a moving
+    /// object, arcsec/yr: s = μ_max / 3.439, so that 99.73 % of the prior's
+    /// motions are slower than μ_max (|μ| of a 2-D Gaussian is Rayleigh
+    /// distributed, r_P = s·sqrt(−2 ln(1 − P)); standard), the same enclosed
+    /// fraction the default positional tolerance uses. The widened search then
+    /// finds the pairs of nearly every motion the prior believes in. 0 when
+    /// `max_motion_masyr` is 0.
+    pub fn motion_prior_sigma_arcsec_yr(&self) -> f64 {
+        self.max_motion_masyr / MOTION_PRIOR_K / 1000.0
     }
 
     /// The tolerance of catalogs `a` and `b` (in either order).

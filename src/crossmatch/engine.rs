@@ -14,7 +14,11 @@
 //! Object positions are at the reference epoch: the inverse-variance weighted mean
 //! of the members' positions, where a member without proper motion is carried
 //! from its own epoch with the object's proper motion (the mean of its moving
-//! members'), when it has one.
+//! members'), when it has one. A moving object (flag `moving`) is placed on its
+//! fitted track at the reference epoch (the posterior mean of
+//! [`super::motion::fit_motion`], with its error), carries the fitted motion
+//! and its errors, and its members' separations are from the track at their
+//! own epochs.
 //!
 //! Ownership for partitioned runs: an object belongs to the HEALPix cell of its
 //! anchor's position at the reference epoch; `healpix29` is that cell at order 29,
@@ -33,8 +37,10 @@ use super::config::MatchConfig;
 use super::density::footprint_area_sr;
 use super::flags;
 use super::input::SourceTable;
+use super::moving::{MovingFit, fit_moving};
 use super::prepare::Sources;
 use super::resolve::Context;
+use super::resolve::ResolvedObject;
 use crate::error::Result;
 use crate::sky::partition::home_cell;
 use crate::sky::propagation::propagate_deg;
@@ -71,6 +77,12 @@ pub struct MatchedObject {
     pub pmra_cosdec_masyr: f64,
     /// Proper motion in Dec, mas/yr; NaN when no member has one.
     pub pmdec_masyr: f64,
+    /// Fitted proper motion of a moving object (flag `moving`), (μ_α cos δ,
+    /// μ_δ) in mas/yr, and its 1σ errors: the posterior of the moving-source
+    /// fit; NaN for other objects.
+    pub pm_fit_masyr: [f64; 2],
+    /// 1σ errors of `pm_fit_masyr`, mas/yr.
+    pub pm_fit_err_masyr: [f64; 2],
     /// Members, one per catalog, in catalog order.
     pub members: Vec<Member>,
     /// Flag bits, see [`super::flags`].
@@ -133,6 +145,9 @@ pub struct Link {
     pub dra_cosdec_arcsec: f64,
     /// Offset of the second source from the first toward the north, arcsec.
     pub ddec_arcsec: f64,
+    /// True when the pair passes only the tolerance widened for motion
+    /// (`max_motion_masyr`): it can be chosen only within a moving object.
+    pub moving_only: bool,
     /// Anchor of the object of the first source (its identifier is
     /// `<catalog>:<source id>` of this source, built when the link is written).
     pub object_a: SourceRef,
@@ -368,6 +383,59 @@ impl MatchSetup {
     }
 }
 
+/// A moving object from its members' fit: position on the track at the
+/// reference epoch (the fit's tangent offsets carried back onto the sphere),
+/// its per-axis error (the mean of the two axes' variances), the fitted
+/// motion with errors, and each member's offset from the track at its epoch.
+fn moving_object(
+    o: &ResolvedObject,
+    m: &MovingFit,
+    healpix29: u64,
+    anchor_of_rank: &dyn Fn(u32) -> SourceRef,
+    sources: &Sources,
+) -> MatchedObject {
+    let fit = &m.fit;
+    // Normalising u₀ + ξ E + η N inverts the gnomonic projection exactly, and
+    // that is what one year of "motion" (ξ, η) per year does.
+    let (ra_deg, dec_deg) = propagate_deg(
+        m.tangent_deg.0,
+        m.tangent_deg.1,
+        fit.pos_ref_arcsec[0] * 1000.0,
+        fit.pos_ref_arcsec[1] * 1000.0,
+        1.0,
+    );
+    let cov = fit.pos_ref_cov_arcsec2;
+    MatchedObject {
+        anchor: anchor_of_rank(o.members[0]),
+        ra_deg,
+        dec_deg,
+        pos_err_arcsec: (0.5 * (cov[0][0] + cov[1][1])).sqrt(),
+        pmra_cosdec_masyr: f64::NAN,
+        pmdec_masyr: f64::NAN,
+        pm_fit_masyr: [fit.pm_arcsec_yr[0] * 1000.0, fit.pm_arcsec_yr[1] * 1000.0],
+        pm_fit_err_masyr: [
+            fit.pm_cov_arcsec2_yr2[0][0].sqrt() * 1000.0,
+            fit.pm_cov_arcsec2_yr2[1][1].sqrt() * 1000.0,
+        ],
+        members: o
+            .members
+            .iter()
+            .zip(&o.member_probability)
+            .enumerate()
+            .map(|(k, (&r, &p))| Member {
+                catalog: sources.catalog[r as usize] as usize,
+                row: sources.row[r as usize] as usize,
+                sep_arcsec: m.residual_arcsec[k],
+                probability: p,
+            })
+            .collect(),
+        flags: o.flags,
+        probability: o.probability,
+        related: o.related.iter().map(|&r| anchor_of_rank(r)).collect(),
+        healpix29,
+    }
+}
+
 fn assemble(ctx: &Context, cells: CellOutput) -> MatchResult {
     let (sources, config) = (ctx.sources, ctx.config);
     let CellOutput {
@@ -407,6 +475,8 @@ fn assemble(ctx: &Context, cells: CellOutput) -> MatchResult {
                     pos_err_arcsec: sources.sigma_rad[anchor] / RAD_PER_ARCSEC,
                     pmra_cosdec_masyr: sources.pm_masyr[anchor].0,
                     pmdec_masyr: sources.pm_masyr[anchor].1,
+                    pm_fit_masyr: [f64::NAN; 2],
+                    pm_fit_err_masyr: [f64::NAN; 2],
                     members: vec![Member {
                         catalog: sources.catalog[anchor] as usize,
                         row: sources.row[anchor] as usize,
@@ -418,6 +488,12 @@ fn assemble(ctx: &Context, cells: CellOutput) -> MatchResult {
                     related: o.related.iter().map(|&r| anchor_of_rank(r)).collect(),
                     healpix29,
                 };
+            }
+            if o.flags & flags::MOVING != 0 {
+                let ranks: Vec<usize> = o.members.iter().map(|&m| m as usize).collect();
+                if let Some(fit) = fit_moving(sources, config, &ranks) {
+                    return moving_object(&o, &fit, healpix29, &anchor_of_rank, sources);
+                }
             }
             // The object's proper motion is the mean of its members' own; members
             // without one are carried with it from their epoch to the reference epoch.
@@ -475,6 +551,8 @@ fn assemble(ctx: &Context, cells: CellOutput) -> MatchResult {
                 pos_err_arcsec: (1.0 / weight).sqrt() / RAD_PER_ARCSEC,
                 pmra_cosdec_masyr: pm.0,
                 pmdec_masyr: pm.1,
+                pm_fit_masyr: [f64::NAN; 2],
+                pm_fit_err_masyr: [f64::NAN; 2],
                 members,
                 flags: o.flags,
                 probability: o.probability,
@@ -501,6 +579,7 @@ fn assemble(ctx: &Context, cells: CellOutput) -> MatchResult {
                 chosen: l.object_a == l.object_b,
                 dra_cosdec_arcsec: c.east_arcsec,
                 ddec_arcsec: c.north_arcsec,
+                moving_only: c.moving_only,
                 object_a: anchor_of_rank(l.object_a),
                 object_b: anchor_of_rank(l.object_b),
             }

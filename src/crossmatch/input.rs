@@ -32,10 +32,18 @@ pub struct SourceTable {
     pub pmra_cosdec_masyr: Vec<f64>,
     /// Proper motion in Dec, mas/yr; NaN when unknown.
     pub pmdec_masyr: Vec<f64>,
+    /// 1-sigma errors of the proper motion (μ_α cos δ, μ_δ), mas/yr; NaN when
+    /// unknown; empty when the catalog gives none. They grow the positional
+    /// error away from the source's epoch (see [`super::prepare::Sources::cov_at`]).
+    pub pm_err_masyr: Vec<(f64, f64)>,
     /// True for rows measured by forced photometry (the normalized table's
     /// `forced` column); empty when the catalog has none. Read it through
     /// [`SourceTable::is_forced`].
     pub forced: Vec<bool>,
+    /// True for extended rows (the normalized table's `extended` column, from
+    /// a schema's `[position] extended`); empty when the catalog has none. Read
+    /// it through [`SourceTable::is_extended`].
+    pub extended: Vec<bool>,
 }
 
 impl SourceTable {
@@ -58,6 +66,25 @@ impl SourceTable {
     /// True when some source of the table was measured by forced photometry.
     pub fn has_forced(&self) -> bool {
         self.forced.iter().any(|f| *f)
+    }
+
+    /// Whether source `i` is extended: a galaxy, which is never taken as a
+    /// moving object.
+    pub fn is_extended(&self, i: usize) -> bool {
+        self.extended.get(i).copied().unwrap_or(false)
+    }
+
+    /// The proper-motion errors of source `i`, mas/yr (NaN when unknown).
+    pub fn pm_err(&self, i: usize) -> (f64, f64) {
+        self.pm_err_masyr
+            .get(i)
+            .copied()
+            .unwrap_or((f64::NAN, f64::NAN))
+    }
+
+    /// True when some source of the table is extended.
+    pub fn has_extended(&self) -> bool {
+        self.extended.iter().any(|f| *f)
     }
 
     /// Appends one source with a circular error and no proper motion (handy in tests).
@@ -148,6 +175,26 @@ impl SourceTable {
             opt(f64s("pos_err_pa_deg")?, &mut t.err_pa_deg);
             opt(f64s("pmra_cosdec_masyr")?, &mut t.pmra_cosdec_masyr);
             opt(f64s("pmdec_masyr")?, &mut t.pmdec_masyr);
+            let [era, edec] = crate::catalog::normalize::PM_ERROR_COLUMNS;
+            if let (Some(_), Some(_)) = (batch.column_by_name(era), batch.column_by_name(edec)) {
+                let (mut a, mut d) = (Vec::new(), Vec::new());
+                opt(f64s(era)?, &mut a);
+                opt(f64s(edec)?, &mut d);
+                let before = t.ra_deg.len() - a.len();
+                t.pm_err_masyr.resize(before, (f64::NAN, f64::NAN));
+                t.pm_err_masyr.extend(a.into_iter().zip(d));
+            }
+            if let Some(ext) = batch.column_by_name(crate::catalog::normalize::EXTENDED_COLUMN) {
+                let ext = ext.as_boolean_opt().ok_or_else(|| {
+                    Error::format(
+                        origin,
+                        "normalized table's \"extended\" column is not Boolean",
+                    )
+                })?;
+                t.extended.resize(t.ra_deg.len() - ext.len(), false);
+                t.extended
+                    .extend((0..ext.len()).map(|i| ext.is_valid(i) && ext.value(i)));
+            }
             if let Some(forced) = batch.column_by_name(crate::catalog::normalize::FORCED_COLUMN) {
                 let forced = forced.as_boolean_opt().ok_or_else(|| {
                     Error::format(
@@ -163,6 +210,12 @@ impl SourceTable {
         }
         if !t.forced.is_empty() {
             t.forced.resize(t.ra_deg.len(), false);
+        }
+        if !t.extended.is_empty() {
+            t.extended.resize(t.ra_deg.len(), false);
+        }
+        if !t.pm_err_masyr.is_empty() {
+            t.pm_err_masyr.resize(t.ra_deg.len(), (f64::NAN, f64::NAN));
         }
         Ok(t)
     }

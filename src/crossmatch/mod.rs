@@ -9,7 +9,8 @@
 //! 4. [`blends`]: coarse sources covering several finer ones, kept apart;
 //!    [`groups`]: connected groups of the remaining candidate graph;
 //! 5. [`resolve`]: each group split into objects by maximum posterior, with
-//!    probabilities ([`bayes`]) and flags ([`flags`]);
+//!    probabilities ([`bayes`]; moving objects, [`moving`] and [`motion`]) and
+//!    flags ([`flags`]);
 //! 6. [`engine`]: the run, and the objects and links it assembles.
 //!
 //! Around it: astrometric offsets against a reference catalog ([`systematics`],
@@ -43,6 +44,7 @@ pub mod floors;
 pub mod groups;
 pub mod input;
 pub mod motion;
+pub mod moving;
 pub mod offsets;
 pub mod position_error;
 pub mod prepare;

@@ -67,6 +67,9 @@ pub struct MotionFit {
     pub pm_cov_arcsec2_yr2: [[f64; 2]; 2],
     /// Posterior mean position at the reference epoch t₀ (east, north), arcsec.
     pub pos_ref_arcsec: [f64; 2],
+    /// Posterior covariance of that position, arcsec²:
+    /// `W⁻¹ + W⁻¹ T₁ V T₁ W⁻¹` (block inverse of the normal equations of (x₀, μ)).
+    pub pos_ref_cov_arcsec2: [[f64; 2]; 2],
     /// χ² of the unpenalised weighted least-squares fit of `x₀ + μ (t − t₀)`
     /// (no prior), with [`MotionFit::dof`] degrees of freedom; `None` for fewer
     /// than 3 detections, or when the epochs do not constrain μ (all equal).
@@ -238,6 +241,8 @@ pub fn fit_motion(
     let ln_bayes = ln_b_arcsec - 2.0 * (n - 1) as f64 * RAD_PER_ARCSEC.ln();
     // x₀ = W⁻¹ Σ C_i⁻¹ (x_i − μ τ_i) = x̄ − W⁻¹ T₁ μ.
     let shift = apply2(&w_inv, apply2(&t1, pm));
+    let spread = mul2(&mul2(&w_inv, &t1), &v);
+    let pos_cov = sym2(add2(&w_inv, &mul2(&spread, &mul2(&t1, &w_inv)), 1.0));
     let det_g = det2(&g);
     // G is a difference of nearly equal terms when the epochs (almost) coincide.
     let chi2_lsq = (n >= 3 && det_g.is_finite() && det_g > 1e-10 * det2(&t2))
@@ -247,6 +252,7 @@ pub fn fit_motion(
         pm_arcsec_yr: pm,
         pm_cov_arcsec2_yr2: v,
         pos_ref_arcsec: [mean[0] - shift[0], mean[1] - shift[1]],
+        pos_ref_cov_arcsec2: pos_cov,
         chi2_lsq,
         dof: if chi2_lsq.is_some() { 2 * n - 4 } else { 0 },
     }
@@ -342,6 +348,10 @@ mod tests {
         assert!((fit.pm_cov_arcsec2_yr2[0][0] - 0.0025 / 6.0).abs() < 1e-15);
         assert!(fit.pm_cov_arcsec2_yr2[0][1].abs() < 1e-15);
         assert_eq!((fit.chi2_lsq, fit.dof), (None, 0));
+        // Position at t₀ = 2010: W = 125, T₁ = −10 · 100 = −1000, so the variance is
+        // 1/125 + (1000/125)² · V = 0.008 + 64 · 4.166667e-4 = 0.034667 arcsec² (by hand).
+        assert!((fit.pos_ref_cov_arcsec2[0][0] - (0.008 + 64.0 * 0.0025 / 6.0)).abs() < 1e-12);
+        assert!(fit.pos_ref_cov_arcsec2[0][1].abs() < 1e-15);
     }
 
     #[test]

@@ -37,16 +37,25 @@ pub struct Sources {
     pub pm_masyr: Vec<(f64, f64)>,
     /// Unit vectors of the positions.
     pub vec: Vec<Vec3>,
-    /// Positional covariance (east, north), arcsec², without systematic floors.
+    /// Positional covariance (east, north), arcsec², without systematic floors,
+    /// at the epoch of the stored position: a source with a proper motion and
+    /// its errors has (t_ref − t)² σ_μ² added on each axis (see [`Sources::cov_at`]).
     pub cov: Vec<Covariance>,
-    /// Circularized per-axis sigma including the catalog's systematic floor, radians.
+    /// Circularized per-axis sigma including the catalog's systematic floor, radians
+    /// (at the epoch of the stored position, like `cov`).
     pub sigma_rad: Vec<f64>,
+    /// Proper-motion errors (μ_α cos δ, μ_δ), mas/yr, NaN when unknown; empty
+    /// when no source has them.
+    pub pm_err_masyr: Vec<(f64, f64)>,
     /// First rank of each catalog, plus the total at the end.
     pub catalog_start: Vec<usize>,
     /// Whether each source was measured by forced photometry
     /// ([`SourceTable::is_forced`]); empty when no source was. Read it through
     /// [`Sources::is_forced`].
     pub forced: Vec<bool>,
+    /// Whether each source is extended ([`SourceTable::is_extended`]); empty
+    /// when no source is. Read it through [`Sources::is_extended`].
+    pub extended: Vec<bool>,
 }
 
 impl Sources {
@@ -63,6 +72,11 @@ impl Sources {
     /// Whether source `i` was measured by forced photometry.
     pub fn is_forced(&self, i: usize) -> bool {
         self.forced.get(i).copied().unwrap_or(false)
+    }
+
+    /// Whether source `i` is extended (a galaxy: it never moves).
+    pub fn is_extended(&self, i: usize) -> bool {
+        self.extended.get(i).copied().unwrap_or(false)
     }
 
     /// Flattens `tables` into rank order at `config.reference_epoch_yr`.
@@ -98,8 +112,12 @@ impl Sources {
             sigma_rad: Vec::with_capacity(total),
             catalog_start: Vec::with_capacity(tables.len() + 1),
             forced: Vec::new(),
+            extended: Vec::new(),
+            pm_err_masyr: Vec::new(),
         };
+        let any_pm_err = tables.iter().any(|t| !t.pm_err_masyr.is_empty());
         let any_forced = tables.iter().any(SourceTable::has_forced);
+        let any_extended = tables.iter().any(SourceTable::has_extended);
         for (c, table) in tables.iter().enumerate() {
             s.catalog_start.push(s.len());
             let mut order: Vec<u32> = (0..table.len() as u32).collect();
@@ -149,11 +167,32 @@ impl Sources {
                 s.epoch_yr.push(epoch);
                 s.pm_masyr.push((pmra, pmdec));
                 s.vec.push(radec_deg_to_vec(ra, dec));
-                s.cov.push(Covariance::from_ellipse(a, b, pa));
-                s.sigma_rad
-                    .push(circularized_sigma_arcsec(a, b, sys) * RAD_PER_ARCSEC);
+                // A moved position is as uncertain as the motion makes it:
+                // σ²(t) = σ² + (t − t_cat)² σ_μ² per axis.
+                let pm_err = if pmra.is_finite() {
+                    table.pm_err(i)
+                } else {
+                    (f64::NAN, f64::NAN)
+                };
+                let (grow_e, grow_n) =
+                    motion_growth_arcsec2(pm_err, config.reference_epoch_yr - epoch);
+                let mut cov = Covariance::from_ellipse(a, b, pa);
+                cov.ee += grow_e;
+                cov.nn += grow_n;
+                s.cov.push(cov);
+                let mut sigma = circularized_sigma_arcsec(a, b, sys);
+                if grow_e + grow_n > 0.0 {
+                    sigma = (sigma * sigma + 0.5 * (grow_e + grow_n)).sqrt();
+                }
+                s.sigma_rad.push(sigma * RAD_PER_ARCSEC);
+                if any_pm_err {
+                    s.pm_err_masyr.push(pm_err);
+                }
                 if any_forced {
                     s.forced.push(table.is_forced(i));
+                }
+                if any_extended {
+                    s.extended.push(table.is_extended(i));
                 }
             }
         }
@@ -189,6 +228,16 @@ impl Sources {
                 Vec::new()
             } else {
                 ranks.iter().map(|i| self.forced[pick(i)]).collect()
+            },
+            extended: if self.extended.is_empty() {
+                Vec::new()
+            } else {
+                ranks.iter().map(|i| self.extended[pick(i)]).collect()
+            },
+            pm_err_masyr: if self.pm_err_masyr.is_empty() {
+                Vec::new()
+            } else {
+                ranks.iter().map(|i| self.pm_err_masyr[pick(i)]).collect()
             },
         };
         for c in 0..ncat {
@@ -245,10 +294,50 @@ impl Sources {
         (radec_deg_to_vec(ra_a, dec_a), radec_deg_to_vec(ra_b, dec_b))
     }
 
+    /// The covariance of source `i` at `epoch_yr` when it is carried there by
+    /// its proper motion (stored at the reference epoch): the stored one with
+    /// the growth from the motion's errors taken at `epoch_yr` instead,
+    /// σ²(t) = σ² + (t − t_cat)² σ_μ² per axis, and the circularized σ (radians)
+    /// to match. The stored values when the source has no motion errors.
+    pub fn cov_at(&self, i: usize, epoch_yr: f64, reference_epoch_yr: f64) -> (Covariance, f64) {
+        let (cov, sigma) = (self.cov[i], self.sigma_rad[i]);
+        let Some(&err) = self.pm_err_masyr.get(i) else {
+            return (cov, sigma);
+        };
+        if !err.0.is_finite() || !self.has_pm(i) {
+            return (cov, sigma);
+        }
+        let t_cat = self.epoch_yr[i];
+        let (stored_e, stored_n) = motion_growth_arcsec2(err, reference_epoch_yr - t_cat);
+        let (want_e, want_n) = motion_growth_arcsec2(err, epoch_yr - t_cat);
+        let (de, dn) = (want_e - stored_e, want_n - stored_n);
+        let sigma_arcsec = sigma / RAD_PER_ARCSEC;
+        (
+            Covariance {
+                ee: cov.ee + de,
+                nn: cov.nn + dn,
+                en: cov.en,
+            },
+            (sigma_arcsec * sigma_arcsec + 0.5 * (de + dn)).sqrt() * RAD_PER_ARCSEC,
+        )
+    }
+
     /// Number of sources of catalog `c`.
     pub fn catalog_len(&self, c: usize) -> usize {
         self.catalog_start[c + 1] - self.catalog_start[c]
     }
+}
+
+/// The positional variance (east, north) a proper motion with 1σ errors
+/// `pm_err_masyr` (mas/yr) adds after `dt_yr` years, arcsec²: (Δt σ_μ)² per
+/// axis; zero when the errors are unknown.
+pub fn motion_growth_arcsec2(pm_err_masyr: (f64, f64), dt_yr: f64) -> (f64, f64) {
+    if !(pm_err_masyr.0.is_finite() && pm_err_masyr.1.is_finite() && dt_yr.is_finite()) {
+        return (0.0, 0.0);
+    }
+    let e = dt_yr * pm_err_masyr.0 / 1000.0;
+    let n = dt_yr * pm_err_masyr.1 / 1000.0;
+    (e * e, n * n)
 }
 
 /// A source's position at `reference_epoch_yr` and its proper motion: carried
@@ -269,5 +358,78 @@ pub fn at_reference_epoch(
         )
     } else {
         ((ra, dec), (pmra, pmdec))
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::super::{MatchConfig, SourceTable, run_match};
+
+    #[test]
+    fn motion_errors_grow_the_positional_error_at_other_epochs() {
+        // A star with μ = (100, 0) mas/yr ± (5, 5) mas/yr, σ = 0.05″, seen in 2016 (the
+        // reference epoch); a catalog without motions saw it in 2000, 0.1″ north of where
+        // the motion puts it then, σ = 0.05″. Compared at 2000:
+        // σ²(2000) = 0.0025 + (16 · 0.005)² = 0.0089 arcsec² per axis, so with the other
+        // 0.0025: d² = 0.1² / 0.0114 = 0.877193, d = 0.936586 (by hand; FIELD notes §5.2).
+        // Without the motion errors d² = 0.01 / 0.005 = 2, d = 1.414214.
+        let dec0: f64 = 20.0;
+        let mut fast = SourceTable {
+            name: "fast".into(),
+            ..SourceTable::default()
+        };
+        fast.push(
+            "a",
+            150.0,
+            dec0,
+            2016.0,
+            (0.05, 0.05, 0.0),
+            Some((100.0, 0.0)),
+        );
+        let mut old = SourceTable {
+            name: "old".into(),
+            ..SourceTable::default()
+        };
+        let ra_2000 = 150.0 - 1.6 / 3600.0 / dec0.to_radians().cos();
+        old.push_simple("b", ra_2000, dec0 + 0.1 / 3600.0, 2000.0, 0.05);
+        let config = MatchConfig::new(2, 2016.0);
+        let plain = run_match(&[fast.clone(), old.clone()], &config).unwrap();
+        assert!(
+            (plain.links[0].norm_dist - 2f64.sqrt()).abs() < 1e-4,
+            "{:?}",
+            plain.links
+        );
+        fast.pm_err_masyr = vec![(5.0, 5.0)];
+        let grown = run_match(&[fast, old], &config).unwrap();
+        assert!(
+            (grown.links[0].norm_dist - 0.936_586).abs() < 1e-4,
+            "{:?}",
+            grown.links
+        );
+        assert_eq!(grown.objects.len(), 1);
+        // At the reference epoch, the catalog's own, nothing grows.
+        let sources = super::Sources::prepare(
+            &[
+                {
+                    let mut t = SourceTable::default();
+                    t.push(
+                        "a",
+                        150.0,
+                        dec0,
+                        2016.0,
+                        (0.05, 0.05, 0.0),
+                        Some((100.0, 0.0)),
+                    );
+                    t.pm_err_masyr = vec![(5.0, 5.0)];
+                    t
+                },
+                SourceTable::default(),
+            ],
+            &config,
+        )
+        .unwrap();
+        assert!((sources.cov[0].ee - 0.0025).abs() < 1e-15);
+        let (at_2000, _) = sources.cov_at(0, 2000.0, 2016.0);
+        assert!((at_2000.ee - 0.0089).abs() < 1e-12);
     }
 }

@@ -25,6 +25,16 @@
 //! `forced_only`: such measurements confirm objects that others detect and
 //! found none alone. Blends are found before resolution, in
 //! [`super::blends`].
+//!
+//! Moving objects: B(O) is the mixture of a stationary and a moving component
+//! of [`super::moving`] (`(1 − f) B_stat + f B_move`, the same prior P₀) for an
+//! object whose members may move (no catalog proper motion, none extended, two
+//! or more epochs). An object that is connected through candidate pairs only
+//! with the help of pairs that pass only the tolerance widened for motion
+//! ([`Candidate::moving_only`]) cannot be stationary: its B is `f B_move`
+//! alone, or it is not formed. An object whose moving component carries the
+//! larger share of B is flagged `moving`; such pairs count for the ambiguity
+//! flag of moving objects only.
 
 use std::collections::HashMap;
 use std::hash::{BuildHasherDefault, Hasher};
@@ -33,6 +43,7 @@ use super::bayes::{ln_bayes_factor, ln_posterior_odds};
 use super::candidates::Candidate;
 use super::config::MatchConfig;
 use super::flags;
+use super::moving::{fit_moving, ln_mixture, may_move};
 use super::prepare::Sources;
 use crate::sky::propagation::propagate_deg;
 use crate::sky::separation::separation_deg;
@@ -98,6 +109,10 @@ struct Group<'a> {
     sep: Vec<f64>,
     /// Whether each pair is a candidate pair (m × m).
     candidate: Vec<bool>,
+    /// Whether each candidate pair passes only the tolerance widened for motion (m × m).
+    moving_only: Vec<bool>,
+    /// True when some candidate pair of the group is `moving_only`.
+    any_moving_only: bool,
     catalog: Vec<usize>,
 }
 
@@ -114,19 +129,59 @@ impl Group<'_> {
         self.candidate[i * self.m() + j]
     }
 
+    /// Whether the pair is a candidate pair that passes the ordinary tolerance.
+    fn stationary_adjacent(&self, i: usize, j: usize) -> bool {
+        self.adjacent(i, j) && !self.moving_only[i * self.m() + j]
+    }
+
+    /// True when `locals` are connected through candidate pairs but only with
+    /// the help of pairs that pass the widened tolerance alone: such sources
+    /// cannot be one stationary object.
+    fn needs_motion(&self, locals: &[usize]) -> bool {
+        if !self.any_moving_only {
+            return false;
+        }
+        let reach = |edge: &dyn Fn(usize, usize) -> bool| {
+            let mut seen = 1u64;
+            let mut frontier = 1u64;
+            while frontier != 0 {
+                let mut next = 0u64;
+                for a in bits(frontier) {
+                    for (b, &l) in locals.iter().enumerate() {
+                        if edge(locals[a], l) {
+                            next |= 1u64 << b;
+                        }
+                    }
+                }
+                frontier = next & !seen;
+                seen |= frontier;
+            }
+            seen.count_ones() as usize == locals.len()
+        };
+        !reach(&|i, j| self.stationary_adjacent(i, j)) && reach(&|i, j| self.adjacent(i, j))
+    }
+
     /// Log posterior odds of the sources `locals` being one object.
     fn score(&self, locals: &[usize]) -> f64 {
+        self.score_and_motion(locals).0
+    }
+
+    /// Log posterior odds of the sources `locals` being one object, and whether
+    /// it is one moving object (see the module documentation).
+    fn score_and_motion(&self, locals: &[usize]) -> (f64, bool) {
         let n = locals.len();
         if n < 2 {
-            return 0.0;
+            return (0.0, false);
         }
         // An object has at most one source per catalog, so at most MAX_MEMBERS.
         let sources = self.ctx.sources;
         let mut sigma = [0.0f64; MAX_MEMBERS];
         let mut cats = [0usize; MAX_MEMBERS];
+        let mut ranks = [0usize; MAX_MEMBERS];
         let (mut pm_sum, mut moving) = ((0.0, 0.0), 0usize);
         for (k, &l) in locals.iter().enumerate() {
             let r = self.members[l] as usize;
+            ranks[k] = r;
             sigma[k] = sources.sigma_rad[r];
             cats[k] = self.catalog[l];
             if sources.has_pm(r) {
@@ -135,20 +190,33 @@ impl Group<'_> {
                 moving += 1;
             }
         }
-        let ln_b = ln_bayes_factor(&sigma[..n], |i, j| {
-            let (a, b) = (locals[i], locals[j]);
-            if moving > 0 {
-                // Two members without proper motion, seen at different epochs, are
-                // compared after carrying one to the other's epoch with the
-                // object's motion (the mean of its moving members').
-                let pm = (pm_sum.0 / moving as f64, pm_sum.1 / moving as f64);
-                if let Some(sep_arcsec) = self.sep_with_motion(a, b, pm) {
-                    return sep_arcsec * RAD_PER_ARCSEC;
+        let ln_prior = self.ctx.ln_prior(&cats[..n]);
+        let config = self.ctx.config;
+        let ln_b_move = if may_move(sources, config, &ranks[..n]) {
+            fit_moving(sources, config, &ranks[..n]).map(|f| f.fit.ln_bayes)
+        } else {
+            None
+        };
+        let ln_b_stat = (!self.needs_motion(locals)).then(|| {
+            ln_bayes_factor(&sigma[..n], |i, j| {
+                let (a, b) = (locals[i], locals[j]);
+                if moving > 0 {
+                    // Two members without proper motion, seen at different epochs, are
+                    // compared after carrying one to the other's epoch with the
+                    // object's motion (the mean of its moving members').
+                    let pm = (pm_sum.0 / moving as f64, pm_sum.1 / moving as f64);
+                    if let Some(sep_arcsec) = self.sep_with_motion(a, b, pm) {
+                        return sep_arcsec * RAD_PER_ARCSEC;
+                    }
                 }
-            }
-            self.sep(a, b) * RAD_PER_ARCSEC
+                self.sep(a, b) * RAD_PER_ARCSEC
+            })
         });
-        ln_posterior_odds(ln_b, self.ctx.ln_prior(&cats[..n]))
+        let (ln_b, is_moving) = ln_mixture(ln_b_stat, ln_b_move, config.moving_fraction);
+        if ln_b == f64::NEG_INFINITY {
+            return (f64::NEG_INFINITY, false);
+        }
+        (ln_posterior_odds(ln_b, ln_prior), is_moving)
     }
 
     /// The separation of two members without proper motion after carrying `b` to
@@ -427,12 +495,15 @@ fn resolve_split(ctx: &Context, members: &[u32], candidates: &[Candidate]) -> Ve
     };
     let mut sep = vec![f64::NAN; m * m];
     let mut candidate = vec![false; m * m];
+    let mut moving_only = vec![false; m * m];
     for c in candidates {
         let (i, j) = (local(c.a), local(c.b));
         sep[i * m + j] = c.sep_arcsec;
         sep[j * m + i] = c.sep_arcsec;
         candidate[i * m + j] = true;
         candidate[j * m + i] = true;
+        moving_only[i * m + j] = c.moving_only;
+        moving_only[j * m + i] = c.moving_only;
     }
     // Pairs that are not candidates still enter the Bayes factor of an object
     // holding both: their separation at a common epoch.
@@ -453,6 +524,8 @@ fn resolve_split(ctx: &Context, members: &[u32], candidates: &[Candidate]) -> Ve
         members,
         sep,
         candidate,
+        any_moving_only: moving_only.iter().any(|&x| x),
+        moving_only,
         catalog: members
             .iter()
             .map(|&r| ctx.sources.catalog[r as usize] as usize)
@@ -508,12 +581,23 @@ fn describe(
 ) -> ResolvedObject {
     let extra = if approximate { flags::APPROXIMATE } else { 0 };
     let mut fl = extra;
+    let (score, is_moving) = if object.len() > 1 {
+        group.score_and_motion(object)
+    } else {
+        (0.0, false)
+    };
     // Ambiguity: a member with two candidates in one catalog, or whose candidate
-    // went to another object.
+    // went to another object. Pairs that pass only the widened tolerance are
+    // candidates of moving objects only.
     for &i in object {
         let mut seen: Vec<usize> = Vec::new();
         for j in 0..group.m() {
-            if j == i || !group.adjacent(i, j) {
+            let counts = if is_moving {
+                group.adjacent(i, j)
+            } else {
+                group.stationary_adjacent(i, j)
+            };
+            if j == i || !counts {
                 continue;
             }
             if seen.contains(&group.catalog[j]) || object_of[j] != object_of[i] {
@@ -526,7 +610,9 @@ fn describe(
     if object.len() == 1 {
         return single(members[0], fl);
     }
-    let score = group.score(object);
+    if is_moving {
+        fl |= flags::MOVING;
+    }
     let probability = logistic(score);
     if probability < group.ctx.config.min_probability {
         fl |= flags::LOW_PROBABILITY;
@@ -554,8 +640,116 @@ fn describe(
 
 #[cfg(test)]
 mod tests {
+    use super::super::candidates::find_candidates;
     use super::super::{MatchConfig, SourceTable, run_match};
     use super::*;
+
+    /// Three catalogs without proper motions at 2000, 2010, 2020, one source
+    /// each at `east_arcsec` east of (150°, 10°), σ = 0.1″.
+    fn three_epochs(east_arcsec: [f64; 3]) -> Vec<SourceTable> {
+        let dec0: f64 = 10.0;
+        (0..3)
+            .map(|k| {
+                let mut t = SourceTable {
+                    name: format!("c{k}"),
+                    ..SourceTable::default()
+                };
+                let ra = 150.0 + east_arcsec[k] / 3600.0 / dec0.to_radians().cos();
+                t.push_simple("s", ra, dec0, 2000.0 + 10.0 * k as f64, 0.1);
+                t
+            })
+            .collect()
+    }
+
+    #[test]
+    fn a_moving_object_scores_as_computed_by_hand() {
+        // A star moving 0.2″/yr east: 0, 2, 4″ at 2000, 2010, 2020; σ = 0.1″ (C_i = 0.01 I
+        // arcsec²); μ_max = 300 mas/yr, so s = 0.3/3.439 = 0.0872346″/yr, s² = 0.00760989.
+        // By hand (FIELD notes §5.11; motion.rs formulas), per axis, τ about the mean epoch
+        // 2010 (B does not depend on t₀) = (−10, 0, 10) yr, w = 100 arcsec⁻²:
+        //   W = Σw = 300, T₁ = Σwτ = 0, G = Σwτ² − T₁²/W = 20000 yr²/arcsec²;
+        //   |Σ| |F| = Π|C_i| · |W| · |K| with K = 1 + s²G = 153.19772 (each axis);
+        //   x̄ = 2″ east, residuals (−2, 0, 2)″: χ²_stat = 100 · 8 = 800;
+        //   h = Σ τ w (x − x̄) = 2000 + 2000 = 4000; hᵀVh = h² s²/K = 800 s²G/K,
+        //   so χ² = 800/K = 5.222010.
+        //   ln B(arcsec) = 2 ln 2 − ½ · 3 ln 1e-4 − ½ · 2 ln 300 − ½ · 2 ln K − ½ χ²
+        //               = 1.386294 + 13.815511 − 5.703782 − 5.031729 − 2.611005 = 1.855288;
+        //   in radians: + 4 · 12.236916 (−ln of 4.848137e-6 rad/″) → ln B_move = 50.802953.
+        // Stationary: ln B_stat = 2 ln 2 + ln(w³/Σw) − ½ · 800 in radians = −341.554 (its
+        // pairs pass only the widened tolerance, so it is not allowed anyway).
+        // Mixture: ln(0.03) + 50.802953 = 47.296395. Prior with 1e4 sources/deg² per catalog,
+        // ρ = 3.282806e7 sr⁻¹: ln P₀ = −2 ln ρ − 2 ln 4π = −34.613590 − 5.062049 = −39.675637.
+        // Score = 47.296395 − 39.675637 + P₀ (the −ln(1 − P₀) term) = 7.620758.
+        let tables = three_epochs([0.0, 2.0, 4.0]);
+        let config = MatchConfig::new(3, 2016.0);
+        let sources = Sources::prepare(&tables, &config).unwrap();
+        let candidates = find_candidates(&sources, &config);
+        assert_eq!(candidates.len(), 3, "{candidates:?}");
+        assert!(candidates.iter().all(|c| c.moving_only));
+        let rho_per_sr = 1e4 * (180.0 / std::f64::consts::PI).powi(2);
+        let ctx = Context {
+            sources: &sources,
+            config: &config,
+            ln_density_per_sr: vec![rho_per_sr.ln(); 3],
+        };
+        let resolved = resolve_group(&ctx, &[0, 1, 2], &candidates);
+        assert_eq!(resolved.len(), 1, "{resolved:?}");
+        let o = &resolved[0];
+        assert_eq!(o.flags, flags::MOVING);
+        assert!((o.score - 7.620758).abs() < 1e-5, "{}", o.score);
+        // The fitted motion is the prior-shrunk slope, (Δx/Δt) s²G/K = 0.2 · 152.19772/153.19772
+        // = 0.198694″/yr, with variance s²/K = 4.967362e-5 (error 0.007048″/yr), by hand.
+        let fit = super::super::moving::fit_moving(&sources, &config, &[0, 1, 2]).unwrap();
+        assert!((fit.fit.pm_arcsec_yr[0] - 0.198694).abs() < 1e-6);
+        // North: a parallel of declination curves on the tangent plane by ξ² tan δ / 2,
+        // 7e-6″ at 4″ and δ = 10°, so the north motion is below 1e-6″/yr.
+        assert!(fit.fit.pm_arcsec_yr[1].abs() < 1e-6);
+        assert!((fit.fit.pm_cov_arcsec2_yr2[0][0] - 4.967362e-5).abs() < 1e-10);
+        // Without the widening the three stay apart: no candidates at all.
+        let still = MatchConfig {
+            max_motion_masyr: 0.0,
+            ..config.clone()
+        };
+        assert!(find_candidates(&sources, &still).is_empty());
+    }
+
+    #[test]
+    fn pairs_passing_only_the_widened_tolerance_make_no_stationary_object() {
+        // Two sources 1″ apart at 2000 and 2010, σ = 0.1″: beyond 3.439 σ√2 = 0.486″, within
+        // 0.486″ + 0.3″/yr · 10 yr. Their stationary score would be
+        // ln B_stat = ln 2 − ln(0.02 · 2.35044e-11) − 1/0.04 = 29.08 − 25 = 4.08 in radians,
+        // plus ln P₀ − ln(1 − P₀) = −2.531 + 0.083 with ρ = 1 sr⁻¹ (P₀ = 1/4π, a very sparse
+        // prior): score 1.63 > 0, so an unconstrained resolution would merge them as stationary. Made extended (they
+        // cannot move), they must stay apart.
+        let mut tables = three_epochs([0.0, 1.0, 100.0]);
+        tables.truncate(2);
+        for t in &mut tables {
+            t.extended = vec![true];
+        }
+        let config = MatchConfig::new(2, 2016.0);
+        let sources = Sources::prepare(&tables, &config).unwrap();
+        let candidates = find_candidates(&sources, &config);
+        assert_eq!(candidates.len(), 1);
+        assert!(candidates[0].moving_only);
+        let ctx = Context {
+            sources: &sources,
+            config: &config,
+            ln_density_per_sr: vec![0.0; 2],
+        };
+        let resolved = resolve_group(&ctx, &[0, 1], &candidates);
+        assert_eq!(resolved.len(), 2, "{resolved:?}");
+        assert!(resolved.iter().all(|o| o.flags == flags::SINGLE_CATALOG));
+        // Not extended, the same pair is one moving object.
+        tables.iter_mut().for_each(|t| t.extended.clear());
+        let sources = Sources::prepare(&tables, &config).unwrap();
+        let ctx = Context {
+            sources: &sources,
+            ..ctx
+        };
+        let resolved = resolve_group(&ctx, &[0, 1], &candidates);
+        assert_eq!(resolved.len(), 1, "{resolved:?}");
+        assert_eq!(resolved[0].flags, flags::MOVING);
+    }
 
     #[test]
     fn an_object_of_forced_measurements_alone_is_flagged() {

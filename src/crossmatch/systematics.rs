@@ -152,6 +152,8 @@ fn generous_config(config: &MatchConfig) -> MatchConfig {
         arcsec: config.max_radius_arcsec(),
     };
     generous.pair_tolerance.clear();
+    // Offsets are measured on stationary pairs: no widening for motion.
+    generous.max_motion_masyr = 0.0;
     generous
 }
 

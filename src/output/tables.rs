@@ -101,6 +101,25 @@ pub fn objects_batch(
         field("pos_err_arcsec", DataType::Float64, false, Some("arcsec")),
         field("pmra_cosdec_masyr", DataType::Float64, true, Some("mas/yr")),
         field("pmdec_masyr", DataType::Float64, true, Some("mas/yr")),
+        field(
+            "pm_fit_ra_cosdec_masyr",
+            DataType::Float64,
+            true,
+            Some("mas/yr"),
+        ),
+        field("pm_fit_dec_masyr", DataType::Float64, true, Some("mas/yr")),
+        field(
+            "pm_fit_ra_cosdec_err_masyr",
+            DataType::Float64,
+            true,
+            Some("mas/yr"),
+        ),
+        field(
+            "pm_fit_dec_err_masyr",
+            DataType::Float64,
+            true,
+            Some("mas/yr"),
+        ),
         described(
             "epoch_yr",
             DataType::Float64,
@@ -130,6 +149,10 @@ pub fn objects_batch(
         )),
         f64s(objects.iter().map(|o| opt(o.pmra_cosdec_masyr)).collect()),
         f64s(objects.iter().map(|o| opt(o.pmdec_masyr)).collect()),
+        f64s(objects.iter().map(|o| opt(o.pm_fit_masyr[0])).collect()),
+        f64s(objects.iter().map(|o| opt(o.pm_fit_masyr[1])).collect()),
+        f64s(objects.iter().map(|o| opt(o.pm_fit_err_masyr[0])).collect()),
+        f64s(objects.iter().map(|o| opt(o.pm_fit_err_masyr[1])).collect()),
         Arc::new(Float64Array::from_iter_values(
             objects.iter().map(|_| reference_epoch_yr),
         )),
@@ -418,6 +441,7 @@ pub fn links_batch(links: &[Link], tables: &[SourceTable]) -> Result<RecordBatch
             Some("arcsec"),
         ),
         field("ddec_arcsec", DataType::Float64, false, Some("arcsec")),
+        field("moving_only", DataType::Boolean, false, None),
     ];
     let columns: Vec<ArrayRef> = vec![
         object_ids(links.iter().map(|l| l.object_a), tables),
@@ -458,6 +482,9 @@ pub fn links_batch(links: &[Link], tables: &[SourceTable]) -> Result<RecordBatch
         )),
         Arc::new(Float64Array::from_iter_values(
             links.iter().map(|l| l.ddec_arcsec),
+        )),
+        Arc::new(BooleanArray::from(
+            links.iter().map(|l| l.moving_only).collect::<Vec<_>>(),
         )),
     ];
     RecordBatch::try_new(Arc::new(Schema::new(fields)), columns)

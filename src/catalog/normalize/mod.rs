@@ -44,7 +44,8 @@
 //! Without an error column, errors come from the `snr` column when the schema
 //! names one (σ_m = 1.085736 / SNR, σ = |F| / |SNR|). Rows of a `[forced]`
 //! schema carry a Boolean `forced` column. The position error may come from a
-//! band's S/N (kind `snr`) and grows for extended sources (`[position] extended`).
+//! band's S/N (kind `snr`) and grows for extended sources (`[position] extended`);
+//! rows given that size term are marked in a Boolean `extended` column.
 //!
 //! An error value that is zero or negative is read as "no error" (catalogs use
 //! such values as sentinels).
@@ -275,7 +276,7 @@ impl Normalizer {
 
         // Row-level fields first; in strict mode stop at the first bad row, but
         // report a band problem of an earlier row if there is one (below).
-        let mut out = RowBuilders::new(n, &self.schema.survey, self.schema.forced.is_some());
+        let mut out = RowBuilders::new(n, &self.schema);
         let mut kept: Vec<u32> = Vec::with_capacity(n);
         let mut contexts: Vec<RowContext> = Vec::with_capacity(n);
         let mut row_error: Option<(usize, RowProblem)> = None;
@@ -450,8 +451,23 @@ pub fn output_schema(schema: &SurveySchema) -> SchemaRef {
         ),
         with_unit(Field::new("pmdec_masyr", DataType::Float64, true), "mas/yr"),
     ];
+    if schema
+        .proper_motion
+        .as_ref()
+        .is_some_and(|p| p.errors.is_some())
+    {
+        for name in PM_ERROR_COLUMNS {
+            fields.push(with_unit(
+                Field::new(name, DataType::Float64, true),
+                "mas/yr",
+            ));
+        }
+    }
     if schema.forced.is_some() {
         fields.push(Field::new(FORCED_COLUMN, DataType::Boolean, false));
+    }
+    if schema.extended.is_some() {
+        fields.push(Field::new(EXTENDED_COLUMN, DataType::Boolean, false));
     }
     for band in &schema.bands {
         let id = &band.band.id;
@@ -490,6 +506,16 @@ pub fn output_schema(schema: &SurveySchema) -> SchemaRef {
 /// photometry (present only when the schema has a `[forced]` table).
 pub const FORCED_COLUMN: &str = "forced";
 
+/// The columns of normalized tables with the 1-sigma errors of the proper
+/// motion (μ_α cos δ, μ_δ), mas/yr (present only when the schema's
+/// `[proper_motion]` names `ra_error` and `dec_error`; null without a motion).
+pub const PM_ERROR_COLUMNS: [&str; 2] = ["pmra_cosdec_err_masyr", "pmdec_err_masyr"];
+
+/// The column of normalized tables that marks extended rows, those given a
+/// size term (present only when the schema has `[position] extended`). The
+/// matcher never takes an extended source for a moving star.
+pub const EXTENDED_COLUMN: &str = "extended";
+
 /// The type of status columns: text, dictionary-encoded (one byte per row).
 pub fn status_type() -> DataType {
     DataType::Dictionary(Box::new(DataType::Int8), Box::new(DataType::Utf8))
@@ -522,7 +548,9 @@ struct RowFields<'a> {
     epoch_yr: f64,
     ellipse: (f64, f64, f64),
     pm: Option<(f64, f64)>,
+    pm_err: Option<(f64, f64)>,
     forced: bool,
+    extended: bool,
 }
 
 /// What a band measurement needs to know of its row.
@@ -586,6 +614,7 @@ struct RowInputs {
     errors: Vec<NumberColumn>,
     epoch: Option<NumberColumn>,
     pm: Option<(NumberColumn, NumberColumn)>,
+    pm_err: Option<(NumberColumn, NumberColumn)>,
     extended: Option<ExtendedInput>,
     forced: Option<FlagInput>,
 }
@@ -703,12 +732,21 @@ impl RowInputs {
                 numbers(batch, &pm.dec, path)?,
             )),
         };
+        let pm_err = match schema
+            .proper_motion
+            .as_ref()
+            .and_then(|p| p.errors.as_ref())
+        {
+            None => None,
+            Some((ra, dec)) => Some((numbers(batch, ra, path)?, numbers(batch, dec, path)?)),
+        };
         Ok(RowInputs {
             id,
             coordinates,
             errors,
             epoch,
             pm,
+            pm_err,
             extended,
             forced,
         })
@@ -828,9 +866,11 @@ impl RowInputs {
                 (sigma, sigma, 0.0)
             }
         };
+        let mut extended = false;
         if let (Some(spec), Some(input)) = (&schema.extended, &self.extended) {
             let r_half = extended_radius(spec, input, i)?;
             if r_half > 0.0 {
+                extended = true;
                 // A circular term added to both axes keeps the ellipse's axes.
                 ellipse.0 = add_extent_arcsec(ellipse.0, r_half, Some(spec.coeff));
                 ellipse.1 = add_extent_arcsec(ellipse.1, r_half, Some(spec.coeff));
@@ -862,6 +902,34 @@ impl RowInputs {
             }
             _ => None,
         };
+        // Errors of a proper motion, in its convention (μ_α* when the RA
+        // component includes cos δ; else scaled by cos δ like the motion).
+        let pm_err = match (&self.pm_err, &schema.proper_motion) {
+            (Some((ra_col, dec_col)), Some(spec)) if pm.is_some() => {
+                let (ra_name, dec_name) = spec.errors.as_ref().expect("error columns read");
+                let expected = "a proper-motion error in mas/yr >= 0";
+                let read = |col: &NumberColumn, name: &str| -> Result<Option<f64>, RowProblem> {
+                    match col.get(i, &[], &[]) {
+                        Ok(Some(v)) if v >= 0.0 && v.is_finite() => Ok(Some(v)),
+                        Ok(Some(v)) => Err(RowProblem::new(name, expected, v.to_string())),
+                        Ok(None) => Ok(None),
+                        Err(e) => Err(RowProblem::new(name, expected, e.found)),
+                    }
+                };
+                match (read(ra_col, ra_name)?, read(dec_col, dec_name)?) {
+                    (Some(a), Some(d)) => {
+                        let a = if spec.ra_includes_cos_dec {
+                            a
+                        } else {
+                            a * dec_deg.to_radians().cos()
+                        };
+                        Some((a, d))
+                    }
+                    _ => None,
+                }
+            }
+            _ => None,
+        };
         Ok(RowFields {
             id,
             ra_deg,
@@ -869,7 +937,9 @@ impl RowInputs {
             epoch_yr,
             ellipse,
             pm,
+            pm_err,
             forced,
+            extended,
         })
     }
 }
@@ -918,11 +988,20 @@ struct RowBuilders {
     values: [Float64Builder; 6],
     pmra: Float64Builder,
     pmdec: Float64Builder,
+    pm_err: Option<(Float64Builder, Float64Builder)>,
     forced: Option<BooleanBuilder>,
+    extended: Option<BooleanBuilder>,
 }
 
 impl RowBuilders {
-    fn new(n: usize, survey: &str, forced: bool) -> RowBuilders {
+    fn new(n: usize, schema: &SurveySchema) -> RowBuilders {
+        let survey = schema.survey.as_str();
+        let forced = schema.forced.is_some();
+        let extended = schema.extended.is_some();
+        let pm_err = schema
+            .proper_motion
+            .as_ref()
+            .is_some_and(|p| p.errors.is_some());
         RowBuilders {
             survey: survey.to_string(),
             source_id: StringBuilder::with_capacity(n, n * 8),
@@ -930,7 +1009,14 @@ impl RowBuilders {
             values: std::array::from_fn(|_| Float64Builder::with_capacity(n)),
             pmra: Float64Builder::with_capacity(n),
             pmdec: Float64Builder::with_capacity(n),
+            pm_err: pm_err.then(|| {
+                (
+                    Float64Builder::with_capacity(n),
+                    Float64Builder::with_capacity(n),
+                )
+            }),
             forced: forced.then(|| BooleanBuilder::with_capacity(n)),
+            extended: extended.then(|| BooleanBuilder::with_capacity(n)),
         }
     }
 
@@ -953,8 +1039,15 @@ impl RowBuilders {
         }
         self.pmra.append_option(f.pm.map(|p| p.0));
         self.pmdec.append_option(f.pm.map(|p| p.1));
+        if let Some((a, d)) = &mut self.pm_err {
+            a.append_option(f.pm_err.map(|p| p.0));
+            d.append_option(f.pm_err.map(|p| p.1));
+        }
         if let Some(b) = &mut self.forced {
             b.append_value(f.forced);
+        }
+        if let Some(b) = &mut self.extended {
+            b.append_value(f.extended);
         }
     }
 
@@ -974,7 +1067,14 @@ impl RowBuilders {
         }
         cols.push(Arc::new(self.pmra.finish()));
         cols.push(Arc::new(self.pmdec.finish()));
+        if let Some((mut a, mut d)) = self.pm_err {
+            cols.push(Arc::new(a.finish()));
+            cols.push(Arc::new(d.finish()));
+        }
         if let Some(mut b) = self.forced {
+            cols.push(Arc::new(b.finish()));
+        }
+        if let Some(mut b) = self.extended {
             cols.push(Arc::new(b.finish()));
         }
         cols
@@ -1944,6 +2044,19 @@ error = "e"
         );
         close(major[1], 0.1);
         close(major[2], 0.1);
+        // Rows given a size term are marked extended; the others (no size, size 0) are not.
+        let marked = out.column_by_name(EXTENDED_COLUMN).unwrap().as_boolean();
+        assert_eq!(
+            (0..3).map(|i| marked.value(i)).collect::<Vec<_>>(),
+            [true, false, false]
+        );
+        let table = crate::crossmatch::SourceTable::from_batches(
+            "s",
+            std::slice::from_ref(&out),
+            Path::new("s"),
+        )
+        .unwrap();
+        assert!(table.is_extended(0) && !table.is_extended(1) && table.has_extended());
         // A Gaussian FWHM of 2" is a half-light radius of 1".
         let fwhm = sized
             .replace(
@@ -1997,6 +2110,56 @@ error = "e"
         assert_eq!(
             normalize(&schema(&sized), &bad).err().unwrap().to_string(),
             "c.csv: row 2, column \"rh\": expected a source size >= 0, found \"-2\""
+        );
+    }
+
+    #[test]
+    fn proper_motion_errors_travel_with_the_motion() {
+        let pm = BASE.replace(
+            "[[band]]",
+            "[proper_motion]\nra = \"pmra\"\ndec = \"pmde\"\nra_includes_cos_dec = false\nra_error = \"epmra\"\ndec_error = \"epmde\"\n\n[[band]]",
+        );
+        let b = with_pos(&[
+            ("f", &["1.0", "1.0", "1.0"]),
+            ("e", &["0.1", "0.1", "0.1"]),
+            ("pmra", &["10", "10", ""]),
+            ("pmde", &["5", "5", ""]),
+            ("epmra", &["2.0", "", "1.0"]),
+            ("epmde", &["1.0", "1.0", "1.0"]),
+        ]);
+        let (out, _) = normalize(&schema(&pm), &b).unwrap();
+        // μ_α without cos δ at δ = 60°: the error is scaled like the motion, 2 · 0.5 = 1.
+        let era = floats(&out, PM_ERROR_COLUMNS[0]);
+        close(era[0], 1.0);
+        close(floats(&out, PM_ERROR_COLUMNS[1])[0], 1.0);
+        // One component missing, or no motion at all: no errors.
+        assert_eq!(era[1], None);
+        assert_eq!(era[2], None);
+        let table = crate::crossmatch::SourceTable::from_batches(
+            "s",
+            std::slice::from_ref(&out),
+            Path::new("s"),
+        )
+        .unwrap();
+        let (era0, ede0) = table.pm_err(0);
+        close(Some(era0), 1.0);
+        close(Some(ede0), 1.0);
+        assert!(table.pm_err(1).0.is_nan());
+        // Without error columns there are none.
+        let plain = output_schema(&schema(BASE));
+        assert!(plain.column_with_name(PM_ERROR_COLUMNS[0]).is_none());
+        // A negative error is bad input naming its column.
+        let bad = with_pos(&[
+            ("f", &["1.0", "1.0", "1.0"]),
+            ("e", &["0.1", "0.1", "0.1"]),
+            ("pmra", &["10", "10", "10"]),
+            ("pmde", &["5", "5", "5"]),
+            ("epmra", &["2.0", "1.0", "1.0"]),
+            ("epmde", &["1.0", "-3", "1.0"]),
+        ]);
+        assert_eq!(
+            normalize(&schema(&pm), &bad).err().unwrap().to_string(),
+            "c.csv: row 2, column \"epmde\": expected a proper-motion error in mas/yr >= 0, found \"-3\""
         );
     }
 
