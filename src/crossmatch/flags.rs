@@ -9,6 +9,7 @@
 //! | 4 | 16 | `single_catalog` | only one catalog saw this object |
 //! | 5 | 32 | `approximate` | the object's group was too large for the exact search and was resolved greedily |
 //! | 6 | 64 | `forced_only` | every member was measured by forced photometry (a survey schema's `[forced]` rows): no catalog detected it on its own |
+//! | 8 | 256 | `contaminated` | a member is a coarse source over this object and fainter ones whose estimated share of its flux is below the threshold: the flux is kept, with that share in `contamination_share` |
 //!
 //! The status is `clean` when no flag other than `single_catalog` is set and
 //! there are two or more members, `single` for a clean one-catalog object, and
@@ -28,9 +29,12 @@ pub const SINGLE_CATALOG: u32 = 16;
 pub const APPROXIMATE: u32 = 32;
 /// Every member comes from forced photometry: no detection founds the object.
 pub const FORCED_ONLY: u32 = 64;
+/// A coarse member also holds the light of fainter companions, below the
+/// share threshold: its flux is kept, contaminated by that share.
+pub const CONTAMINATED: u32 = 256;
 
 /// Every flag with its name, in bit order.
-pub const ALL: [(u32, &str); 7] = [
+pub const ALL: [(u32, &str); 8] = [
     (AMBIGUOUS, "ambiguous"),
     (BLEND, "blend"),
     (HAS_BLEND, "has_blend"),
@@ -38,6 +42,7 @@ pub const ALL: [(u32, &str); 7] = [
     (SINGLE_CATALOG, "single_catalog"),
     (APPROXIMATE, "approximate"),
     (FORCED_ONLY, "forced_only"),
+    (CONTAMINATED, "contaminated"),
 ];
 
 /// The readable status of a flag mask.
@@ -71,6 +76,7 @@ mod tests {
             status(SINGLE_CATALOG | FORCED_ONLY),
             "single_catalog+forced_only"
         );
+        assert_eq!(status(CONTAMINATED), "contaminated");
     }
 
     #[test]
@@ -79,6 +85,6 @@ mod tests {
             assert_eq!(acc & b, 0);
             acc | b
         });
-        assert_eq!(all, 127);
+        assert_eq!(all, 127 | 256);
     }
 }
