@@ -28,7 +28,7 @@ use serde::Deserialize;
 use toml::Spanned;
 
 use crate::catalog::schema::SurveySchema;
-use crate::crossmatch::{CatalogSettings, MatchConfig, Tolerance};
+use crate::crossmatch::{BandSettings, CatalogSettings, MatchConfig, Tolerance};
 use crate::error::{Error, Result, line_of_offset, read_toml_text, toml_error};
 use crate::photometry::BandLibrary;
 
@@ -156,6 +156,7 @@ struct RawField {
 struct RawMatch {
     tolerance: Option<Spanned<RawTolerance>>,
     min_probability: Option<Spanned<f64>>,
+    companion_share_limit: Option<Spanned<f64>>,
     common_fraction: Option<Spanned<f64>>,
     max_motion_masyr: Option<Spanned<f64>>,
     moving_fraction: Option<Spanned<f64>>,
@@ -270,6 +271,16 @@ impl Plan {
                     format!("coverage_order {o} is beyond HEALPix order 29"),
                 ));
             }
+            let bands = schema
+                .bands
+                .iter()
+                .map(|b| BandSettings {
+                    id: b.band.id.clone(),
+                    wavelength_um: b.band.wavelength_um,
+                    has_flux: b.has_flux(),
+                    resolution_arcsec: b.resolution_arcsec,
+                })
+                .collect();
             catalogs.push(PlanCatalog {
                 name: schema.survey.clone(),
                 file: resolve(&rc.file),
@@ -277,6 +288,7 @@ impl Plan {
                 settings: CatalogSettings {
                     systematic_arcsec: rc.systematic_arcsec.unwrap_or(0.0),
                     resolution_arcsec: rc.resolution_arcsec,
+                    bands,
                 },
                 coverage: rc.coverage.as_deref().map(resolve),
                 coverage_order: rc.coverage_order,
@@ -330,6 +342,18 @@ impl Plan {
                 ));
             }
             matching.min_probability = v;
+        }
+        if let Some(p) = &m.companion_share_limit {
+            let v = *p.get_ref();
+            if !(0.0..=0.5).contains(&v) {
+                return Err(err(
+                    p.span(),
+                    format!(
+                        "companion_share_limit must lie in [0, 0.5] (the companions' share of a coarse source's flux below which the brightest keeps it; 0: never), found {v}"
+                    ),
+                ));
+            }
+            matching.companion_share_limit = v;
         }
         if let Some(f) = &m.common_fraction {
             let v = *f.get_ref();

@@ -90,6 +90,7 @@ fn config(n: usize, order: u8) -> MatchConfig {
         .map(|i| CatalogSettings {
             systematic_arcsec: 0.05,
             resolution_arcsec: Some(1.0 + i as f64),
+            ..CatalogSettings::default()
         })
         .collect();
     c

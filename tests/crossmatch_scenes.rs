@@ -110,18 +110,22 @@ fn scene() -> (Vec<SourceTable>, MatchConfig, f64) {
         CatalogSettings {
             systematic_arcsec: 0.0,
             resolution_arcsec: Some(1.0),
+            ..CatalogSettings::default()
         },
         CatalogSettings {
             systematic_arcsec: 0.0,
             resolution_arcsec: Some(2.0),
+            ..CatalogSettings::default()
         },
         CatalogSettings {
             systematic_arcsec: 0.0,
             resolution_arcsec: Some(6.0),
+            ..CatalogSettings::default()
         },
         CatalogSettings {
             systematic_arcsec: 0.0,
             resolution_arcsec: Some(1.5),
+            ..CatalogSettings::default()
         },
     ];
     // The scene covers about 200" x 200".

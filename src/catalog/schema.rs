@@ -523,8 +523,12 @@ pub struct BandColumns {
     /// (`empty = "not_detected"`) where the band covers.
     pub empty_not_detected: bool,
     /// The band's footprint when it is smaller than the catalog's (a MOC file);
-    /// `None`: the band covers wherever the catalog has rows.
+    /// `None`: the band covers wherever the catalog has rows. Outside it the
+    /// band's SED points are `not_covered`.
     pub coverage: Option<crate::sky::coverage::Coverage>,
+    /// The band's own resolution (PSF FWHM), arcsec, overriding the catalog's
+    /// (`resolution_arcsec` in the plan) for this band's blends.
+    pub resolution_arcsec: Option<f64>,
     /// Schema line of this band's entry, for messages.
     pub line: usize,
 }
@@ -882,6 +886,7 @@ struct RawBand {
     saturated: Option<Spanned<RawFlagTest>>,
     empty: Option<Spanned<String>>,
     coverage: Option<Spanned<String>>,
+    resolution_arcsec: Option<Spanned<f64>>,
 }
 
 #[derive(Deserialize)]
@@ -1644,6 +1649,21 @@ impl Validator<'_> {
                 Some(coverage)
             }
         };
+        let resolution_arcsec = match &b.resolution_arcsec {
+            None => None,
+            Some(r) => {
+                let v = *r.get_ref();
+                if !(v > 0.0 && v <= MAX_POSITION_ERROR_ARCSEC) {
+                    return Err(self.err(
+                        r.span(),
+                        format!(
+                            "resolution_arcsec must be a PSF FWHM in (0, {MAX_POSITION_ERROR_ARCSEC}] arcsec, found {v}"
+                        ),
+                    ));
+                }
+                Some(v)
+            }
+        };
         let mut quality = Vec::with_capacity(b.quality.len());
         for q in &b.quality {
             quality.push(self.quality(q, char_rules)?);
@@ -1689,6 +1709,7 @@ impl Validator<'_> {
             saturated,
             empty_not_detected,
             coverage,
+            resolution_arcsec,
             line: self.line(raw.span()),
         };
         if let Some(d) = &b.depth_mag {

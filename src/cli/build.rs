@@ -362,6 +362,7 @@ pub(crate) fn band_slots(plan: &Plan) -> Vec<BandSlot> {
                 catalog: k,
                 catalog_name: c.name.clone(),
                 spec: b.clone(),
+                catalog_resolution_arcsec: c.settings.resolution_arcsec,
             })
         })
         .collect()
@@ -679,7 +680,7 @@ fn read_catalog(
     bar.finish_and_clear();
     let normalized = arrow::compute::concat_batches(&output_schema, &batches)
         .map_err(|e| Error::columnar(file, e))?;
-    let table = SourceTable::from_batches(&schema.survey, std::slice::from_ref(&normalized), file)?;
+    let table = SourceTable::from_normalized(schema, std::slice::from_ref(&normalized), file)?;
     Ok((
         ReadCatalog {
             normalized,
@@ -1121,6 +1122,7 @@ mod tests {
                     catalog: k,
                     catalog_name: c.survey.clone(),
                     spec: b.clone(),
+                    catalog_resolution_arcsec: None,
                 })
             })
             .collect();

@@ -513,9 +513,7 @@ impl Shared<'_> {
             .catalogs
             .iter()
             .zip(batches)
-            .map(|(c, b)| {
-                SourceTable::from_batches(&c.schema.survey, std::slice::from_ref(b), &c.file)
-            })
+            .map(|(c, b)| SourceTable::from_normalized(&c.schema, std::slice::from_ref(b), &c.file))
             .collect::<Result<_>>()?;
         let setup = MatchSetup::with_statistics(
             &tables,

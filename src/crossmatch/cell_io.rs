@@ -6,18 +6,22 @@
 //! (`ra_deg`, `dec_deg`, `x`, `y`, `z`), `epoch_yr`, proper motion
 //! (`pmra_cosdec_masyr`, `pmdec_masyr`, NaN when unknown), covariance
 //! (`cov_ee_arcsec2`, `cov_nn_arcsec2`, `cov_en_arcsec2`), `sigma_rad`,
-//! `forced` (Boolean) when some source was measured by forced photometry, and
-//! `extended` (Boolean) when some source is extended, and
+//! `forced` (Boolean) when some source was measured by forced photometry,
+//! `extended` (Boolean) when some source is extended,
 //! `pmra_cosdec_err_masyr`, `pmdec_err_masyr` when some source has errors of
-//! its proper motion. The schema's metadata
+//! its proper motion, and `band_value_0`, `band_value_1`, ... (one per band of
+//! the catalog with the most bands: [`super::input::BandValue::code`] of the
+//! source's value in that band of its catalog) when blends read them. The schema's metadata
 //! carries what every cell shares: the cell (`fluxloom.cell.order`,
 //! `fluxloom.cell.id`, `fluxloom.cell.margin_arcsec`), the catalogs' ln
 //! densities and the epoch statistics. Numbers in metadata are written with
 //! Rust's shortest round-trip form, so they read back bit for bit.
 //!
 //! **Output** (two streams, one after the other): the objects (`members`,
-//! `member_probability`, `score`, `probability`, `flags`, `related`; ranks of
-//! the whole input) and the links (`a`, `b`, `sep_arcsec`, `norm_dist`,
+//! `member_probability`, `score`, `probability`, `flags`, `related`,
+//! `contamination_share`, null when no member is contaminated, and
+//! `covered_by`, the coarse sources over the object that it does not hold;
+//! ranks of the whole input) and the links (`a`, `b`, `sep_arcsec`, `norm_dist`,
 //! `ln_bayes`, `east_arcsec`, `north_arcsec`, `object_a`, `object_b`,
 //! `moving_only`). The
 //! objects' metadata carries the group counts.
@@ -28,7 +32,7 @@ use std::path::Path;
 use std::sync::Arc;
 
 use arrow::array::{
-    ArrayRef, AsArray, BooleanArray, Float64Array, ListArray, PrimitiveArray, RecordBatch,
+    Array, ArrayRef, AsArray, BooleanArray, Float64Array, ListArray, PrimitiveArray, RecordBatch,
     UInt16Array, UInt32Array,
 };
 use arrow::buffer::OffsetBuffer;
@@ -189,6 +193,14 @@ pub fn input_batch(input: &CellInput) -> Result<RecordBatch> {
                 s.pm_err_masyr
                     .iter()
                     .map(|e| if k == 0 { e.0 } else { e.1 }),
+            ));
+        }
+    }
+    if !s.photometry.is_empty() {
+        for b in 0..s.bands {
+            fields.push(float_field(&format!("band_value_{b}")));
+            columns.push(floats(
+                s.photometry.iter().skip(b).step_by(s.bands).copied(),
             ));
         }
     }
@@ -417,7 +429,22 @@ pub fn input_from_batch(batch: &RecordBatch, origin: &Path) -> Result<CellInput>
                 a.iter().zip(d).map(|(&a, &d)| (a, d)).collect()
             }
         },
+        photometry: Vec::new(),
+        bands: 0,
     };
+    let mut band_columns: Vec<&[f64]> = Vec::new();
+    while batch
+        .column_by_name(&format!("band_value_{}", band_columns.len()))
+        .is_some()
+    {
+        band_columns.push(c.floats(&format!("band_value_{}", band_columns.len()))?);
+    }
+    if !band_columns.is_empty() {
+        sources.bands = band_columns.len();
+        sources.photometry = (0..sources.len())
+            .flat_map(|i| band_columns.iter().map(move |col| col[i]))
+            .collect();
+    }
     for k in 0..ncat {
         sources
             .catalog_start
@@ -458,6 +485,8 @@ pub fn output_batches(out: &CellOutput) -> Result<(RecordBatch, RecordBatch)> {
             float_field("probability"),
             Field::new("flags", DataType::UInt32, false),
             list_field("related", DataType::UInt32),
+            Field::new("contamination_share", DataType::Float64, true),
+            list_field("covered_by", DataType::UInt32),
         ],
         metadata,
     ));
@@ -470,6 +499,10 @@ pub fn output_batches(out: &CellOutput) -> Result<(RecordBatch, RecordBatch)> {
             floats(o.iter().map(|x| x.probability)),
             u32s(o.iter().map(|x| x.flags)),
             lists::<UInt32Type>(o.iter().map(|x| &x.related[..])),
+            Arc::new(Float64Array::from_iter(
+                o.iter().map(|x| x.contamination_share),
+            )),
+            lists::<UInt32Type>(o.iter().map(|x| &x.covered_by[..])),
         ],
     )
     .map_err(|e| Error::Usage(e.to_string()))?;
@@ -523,11 +556,16 @@ pub fn output_from_batches(
     let members = c.lists::<UInt32Type>("members")?;
     let member_probability = c.lists::<Float64Type>("member_probability")?;
     let related = c.lists::<UInt32Type>("related")?;
+    let mut covered_by = c.lists::<UInt32Type>("covered_by")?.into_iter();
     let (score, probability, flags) = (
         c.floats("score")?,
         c.floats("probability")?,
         c.u32s("flags")?,
     );
+    let share = c
+        .column("contamination_share")?
+        .as_primitive_opt::<Float64Type>()
+        .ok_or_else(|| c.mistyped("contamination_share", "Float64"))?;
     let objects: Vec<ResolvedObject> = members
         .into_iter()
         .zip(member_probability)
@@ -541,6 +579,8 @@ pub fn output_from_batches(
                 member_probability,
                 flags: flags[i],
                 related,
+                contamination_share: share.is_valid(i).then(|| share.value(i)),
+                covered_by: covered_by.next().unwrap_or_default(),
             },
         )
         .collect();
@@ -656,14 +696,18 @@ mod tests {
                     member_probability: vec![1.0, 0.985],
                     flags: flags::HAS_BLEND,
                     related: vec![12],
+                    contamination_share: None,
+                    covered_by: vec![12],
                 },
                 ResolvedObject {
                     members: vec![12],
                     score: 0.0,
                     probability: 1.0,
                     member_probability: vec![1.0],
-                    flags: flags::BLEND,
+                    flags: flags::BLEND | flags::CONTAMINATED,
                     related: vec![3],
+                    contamination_share: Some(3.845e-4),
+                    covered_by: Vec::new(),
                 },
             ],
             links: vec![CellLink {

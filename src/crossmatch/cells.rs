@@ -44,7 +44,7 @@ use std::collections::BTreeMap;
 
 use rayon::prelude::*;
 
-use super::blends::find_blends;
+use super::blends::{Blend, find_blends, usable_candidates};
 use super::candidates::{Candidate, EpochStats, find_candidates_with};
 use super::config::MatchConfig;
 use super::flags;
@@ -71,14 +71,9 @@ pub struct CellContext<'a> {
 
 impl CellContext<'_> {
     /// ρ for `config` and `epochs`: the largest stored separation of a candidate
-    /// pair plus the widest declared resolution.
+    /// pair plus the widest declared resolution (of a catalog or a band).
     pub fn influence_radius_arcsec(config: &MatchConfig, epochs: &EpochStats) -> f64 {
-        let widest_resolution = config
-            .catalogs
-            .iter()
-            .filter_map(|c| c.resolution_arcsec)
-            .fold(0.0, f64::max);
-        epochs.max_stored_separation_arcsec(config) + widest_resolution
+        epochs.max_stored_separation_arcsec(config) + config.widest_resolution_arcsec()
     }
 }
 
@@ -131,16 +126,8 @@ pub fn match_cell(
     }
     let config = ctx.config;
     let candidates = find_candidates_with(sources, config, ctx.epochs);
-    let blends = find_blends(sources, config);
-    let mut blended = vec![false; n];
-    for b in &blends {
-        blended[b.source as usize] = true;
-    }
-    let usable: Vec<Candidate> = candidates
-        .iter()
-        .filter(|c| !blended[c.a as usize] && !blended[c.b as usize])
-        .copied()
-        .collect();
+    let blends = find_blends(sources, config, &candidates);
+    let usable = usable_candidates(sources, &candidates, &blends);
     let groups = connected_groups(n, usable.iter().map(|c| (c.a, c.b)));
     let mut group_of = vec![0u32; n];
     for (g, members) in groups.iter().enumerate() {
@@ -164,6 +151,13 @@ pub fn match_cell(
             ties.push((group_of[c.a as usize], c.b));
         }
     }
+    // A core source of each group, if it has one.
+    let mut core_of_group: Vec<Option<u32>> = vec![None; groups.len()];
+    for (k, &is_core) in core.iter().enumerate() {
+        if is_core {
+            core_of_group[group_of[k] as usize].get_or_insert(k as u32);
+        }
+    }
     for b in &blends {
         if core[b.source as usize] {
             for &u in &b.under {
@@ -173,6 +167,20 @@ pub fn match_cell(
         for &u in &b.under {
             if core[u as usize] {
                 ties.push((group_of[b.source as usize], u));
+            }
+        }
+        // A contaminated source's flags tie the objects of the coarse source,
+        // its dominant source and their companions together: when one of their
+        // groups holds a core source, all of them are needed.
+        if b.dominant.is_some() {
+            let mut all = b.covered();
+            all.push(b.source);
+            let cores: Vec<u32> = all
+                .iter()
+                .filter_map(|&s| core_of_group[group_of[s as usize] as usize])
+                .collect();
+            for &k in &cores {
+                ties.extend(all.iter().map(|&s| (group_of[s as usize], k)));
             }
         }
     }
@@ -228,31 +236,78 @@ pub fn match_cell(
     // Blend relations: a blended source matches nothing (it is an object of its
     // own); every source within the cell's reach of an emitted member is held,
     // so the blends over and under each member are all known here.
+    // A contaminated coarse source counts only when it ended in its dominant
+    // source's object (its only candidate); left alone, it is a blend.
+    let kept = |b: &Blend| {
+        b.dominant.as_ref().is_some_and(|d| {
+            let holder = anchor_of[b.source as usize];
+            holder != u32::MAX && anchor_of[d.source as usize] == holder
+        })
+    };
     let mut over: Vec<(u32, u32)> = Vec::new();
     for (k, b) in blends.iter().enumerate() {
-        over.extend(b.under.iter().map(|&u| (u, k as u32)));
+        match &b.dominant {
+            Some(d) if kept(b) => over.extend(d.companions.iter().map(|&u| (u, k as u32))),
+            _ => over.extend(b.under.iter().map(|&u| (u, k as u32))),
+        }
     }
     over.sort_unstable();
     for o in &mut out.objects {
+        let anchor = o.members[0];
         for &m in &o.members {
             // `find_blends` gives the blends in source order.
             if let Ok(k) = blends.binary_search_by_key(&m, |b| b.source) {
-                o.flags |= flags::BLEND;
-                o.related
-                    .extend(blends[k].under.iter().map(|&u| anchor_of[u as usize]));
+                let b = &blends[k];
+                match &b.dominant {
+                    Some(d) if kept(b) => {
+                        o.flags |= flags::CONTAMINATED;
+                        o.contamination_share = Some(
+                            o.contamination_share
+                                .map_or(d.companion_share, |s| s.max(d.companion_share)),
+                        );
+                        o.related.extend(
+                            d.companions
+                                .iter()
+                                .map(|&u| anchor_of[u as usize])
+                                .filter(|&a| a != anchor),
+                        );
+                    }
+                    _ => {
+                        o.flags |= flags::BLEND;
+                        o.related
+                            .extend(b.under.iter().map(|&u| anchor_of[u as usize]));
+                    }
+                }
             }
             let first = over.partition_point(|&(u, _)| u < m);
             for &(_, k) in over[first..].iter().take_while(|&&(u, _)| u == m) {
-                // The blend is an object of its own, anchored on itself.
-                o.flags |= flags::HAS_BLEND;
-                o.related.push(blends[k as usize].source);
+                let b = &blends[k as usize];
+                // A blend is an object of its own, anchored on itself; a kept
+                // contaminated source is in its dominant source's object.
+                let holder = if kept(b) {
+                    anchor_of[b.source as usize]
+                } else {
+                    b.source
+                };
+                if holder != anchor {
+                    o.flags |= flags::HAS_BLEND;
+                    o.related.push(holder);
+                    o.covered_by.push(b.source);
+                }
             }
         }
-        for r in o.members.iter_mut().chain(o.related.iter_mut()) {
+        for r in o
+            .members
+            .iter_mut()
+            .chain(o.related.iter_mut())
+            .chain(o.covered_by.iter_mut())
+        {
             *r = global_rank[*r as usize];
         }
         o.related.sort_unstable();
         o.related.dedup();
+        o.covered_by.sort_unstable();
+        o.covered_by.dedup();
     }
     // Objects by anchor, whatever the order their groups were resolved in (a
     // group's objects need not precede the next group's), so a cell's output

@@ -19,6 +19,10 @@
 //!   place). The cost: pairs of catalogs without proper motions are searched
 //!   μ_max·|t_i − t_j| farther (1.65″ more for epochs 5.5 yr apart), and
 //!   cell margins grow by as much.
+//! - companion share limit 0.1: a coarse source over several finer ones whose
+//!   companions carry less than 10 % of the flux (FIELD notes §5.14, "e.g. 10 %";
+//!   common practice) stays with the dominant one, flagged `contaminated`
+//!   ([`super::shares`]).
 
 use std::collections::BTreeMap;
 
@@ -33,6 +37,10 @@ pub const DEFAULT_MOVING_FRACTION: f64 = 0.03;
 /// μ_max over the motion prior's per-axis dispersion: 3.439, the 99.73 % point
 /// of the Rayleigh distribution (FIELD notes §5.3; standard).
 pub const MOTION_PRIOR_K: f64 = 3.439;
+
+/// Default of [`MatchConfig::companion_share_limit`]: 10 % (FIELD notes §5.14
+/// gives "e.g. 10 %"; common practice).
+pub const DEFAULT_COMPANION_SHARE_LIMIT: f64 = 0.1;
 
 /// How close two sources of a catalog pair must be to be candidates.
 #[derive(Debug, Clone, Copy, PartialEq, serde::Serialize)]
@@ -80,6 +88,44 @@ pub struct CatalogSettings {
     /// Angular resolution (PSF FWHM), arcsec. A source of a catalog with a larger
     /// resolution than another's is "coarser"; it is needed to recognize blends.
     pub resolution_arcsec: Option<f64>,
+    /// The catalog's bands in schema order (the order of a source's entries in
+    /// [`super::input::SourceTable::photometry`]); empty when the fluxes are not
+    /// given to the matcher.
+    pub bands: Vec<BandSettings>,
+}
+
+/// What the matcher knows of one band of a catalog: where it lies in
+/// wavelength, whether its values are flux densities, and its own resolution.
+#[derive(Debug, Clone, PartialEq, Default, serde::Serialize)]
+pub struct BandSettings {
+    /// Band id.
+    pub id: String,
+    /// Wavelength, µm.
+    pub wavelength_um: f64,
+    /// True when the band's values are flux densities (not magnitudes only),
+    /// so shares of flux can be taken in it.
+    pub has_flux: bool,
+    /// The band's own resolution (PSF FWHM), arcsec, overriding the catalog's.
+    pub resolution_arcsec: Option<f64>,
+}
+
+impl CatalogSettings {
+    /// The resolution of band `b` of this catalog: its own, else the catalog's.
+    pub fn band_resolution_arcsec(&self, b: usize) -> Option<f64> {
+        self.bands
+            .get(b)
+            .and_then(|band| band.resolution_arcsec)
+            .or(self.resolution_arcsec)
+    }
+
+    /// The widest resolution of the catalog or any of its bands, arcsec.
+    pub fn widest_resolution_arcsec(&self) -> Option<f64> {
+        self.bands
+            .iter()
+            .filter_map(|b| b.resolution_arcsec)
+            .chain(self.resolution_arcsec)
+            .reduce(f64::max)
+    }
 }
 
 /// All settings of one cross-match run.
@@ -112,6 +158,10 @@ pub struct MatchConfig {
     /// Prior fraction of objects that move (the broad component of the motion
     /// prior; the rest are stationary), in (0, 1).
     pub moving_fraction: f64,
+    /// A coarse source over several finer ones is kept by the dominant one when
+    /// its companions' estimated share of the flux is below this (0 makes every
+    /// such source a blend); see [`super::shares`].
+    pub companion_share_limit: f64,
 }
 
 /// Writes the pair tolerances as a list of `{catalogs: [a, b], tolerance}` (JSON
@@ -143,6 +193,7 @@ impl MatchConfig {
             max_exact_group: 24,
             max_motion_masyr: DEFAULT_MAX_MOTION_MASYR,
             moving_fraction: DEFAULT_MOVING_FRACTION,
+            companion_share_limit: DEFAULT_COMPANION_SHARE_LIMIT,
         }
     }
 
@@ -164,6 +215,14 @@ impl MatchConfig {
             .get(&key)
             .copied()
             .unwrap_or(self.tolerance)
+    }
+
+    /// The widest resolution of any catalog or band, arcsec (0 when none is declared).
+    pub fn widest_resolution_arcsec(&self) -> f64 {
+        self.catalogs
+            .iter()
+            .filter_map(CatalogSettings::widest_resolution_arcsec)
+            .fold(0.0, f64::max)
     }
 
     /// The largest separation any catalog pair accepts, arcsec.

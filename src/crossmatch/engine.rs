@@ -91,6 +91,13 @@ pub struct MatchedObject {
     pub probability: f64,
     /// Related objects (blend relations), by anchor.
     pub related: Vec<SourceRef>,
+    /// For a `contaminated` object, the estimated share of its coarse
+    /// member's flux that its fainter companions carry.
+    pub contamination_share: Option<f64>,
+    /// Coarse sources over this object that it does not hold (blends, and
+    /// contaminated sources held by a brighter object): the SED gives their
+    /// flux as an upper limit.
+    pub covered_by: Vec<SourceRef>,
     /// NESTED HEALPix index at order 29 of the anchor's position: the same
     /// whatever the partition; objects of the cell of order k are those with
     /// `healpix29 >> 2(29 − k)` equal to its index.
@@ -432,6 +439,8 @@ fn moving_object(
         flags: o.flags,
         probability: o.probability,
         related: o.related.iter().map(|&r| anchor_of_rank(r)).collect(),
+        contamination_share: o.contamination_share,
+        covered_by: o.covered_by.iter().map(|&r| anchor_of_rank(r)).collect(),
         healpix29,
     }
 }
@@ -486,6 +495,8 @@ fn assemble(ctx: &Context, cells: CellOutput) -> MatchResult {
                     flags: o.flags,
                     probability: o.probability,
                     related: o.related.iter().map(|&r| anchor_of_rank(r)).collect(),
+                    contamination_share: o.contamination_share,
+                    covered_by: o.covered_by.iter().map(|&r| anchor_of_rank(r)).collect(),
                     healpix29,
                 };
             }
@@ -557,6 +568,8 @@ fn assemble(ctx: &Context, cells: CellOutput) -> MatchResult {
                 flags: o.flags,
                 probability: o.probability,
                 related: o.related.iter().map(|&r| anchor_of_rank(r)).collect(),
+                contamination_share: o.contamination_share,
+                covered_by: o.covered_by.iter().map(|&r| anchor_of_rank(r)).collect(),
                 healpix29,
             }
         })

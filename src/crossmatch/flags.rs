@@ -10,6 +10,7 @@
 //! | 5 | 32 | `approximate` | the object's group was too large for the exact search and was resolved greedily |
 //! | 6 | 64 | `forced_only` | every member was measured by forced photometry (a survey schema's `[forced]` rows): no catalog detected it on its own |
 //! | 7 | 128 | `moving` | one star moving across the sky, seen at two or more epochs by catalogs without proper motions; its fitted motion is in `pm_fit_*` |
+//! | 8 | 256 | `contaminated` | a member is a coarse source over this object and fainter ones whose estimated share of its flux is below the threshold: the flux is kept, with that share in `contamination_share` |
 //!
 //! The status is `clean` when no flag other than `single_catalog` is set and
 //! there are two or more members, `single` for a clean one-catalog object, and
@@ -31,9 +32,12 @@ pub const APPROXIMATE: u32 = 32;
 pub const FORCED_ONLY: u32 = 64;
 /// One moving star: its members are at their own epochs on a fitted linear track.
 pub const MOVING: u32 = 128;
+/// A coarse member also holds the light of fainter companions, below the
+/// share threshold: its flux is kept, contaminated by that share.
+pub const CONTAMINATED: u32 = 256;
 
 /// Every flag with its name, in bit order.
-pub const ALL: [(u32, &str); 8] = [
+pub const ALL: [(u32, &str); 9] = [
     (AMBIGUOUS, "ambiguous"),
     (BLEND, "blend"),
     (HAS_BLEND, "has_blend"),
@@ -42,6 +46,7 @@ pub const ALL: [(u32, &str); 8] = [
     (APPROXIMATE, "approximate"),
     (FORCED_ONLY, "forced_only"),
     (MOVING, "moving"),
+    (CONTAMINATED, "contaminated"),
 ];
 
 /// The readable status of a flag mask.
@@ -77,6 +82,7 @@ mod tests {
         );
         assert_eq!(status(MOVING), "moving");
         assert_eq!(status(MOVING | LOW_PROBABILITY), "low_probability+moving");
+        assert_eq!(status(CONTAMINATED), "contaminated");
     }
 
     #[test]
@@ -85,6 +91,6 @@ mod tests {
             assert_eq!(acc & b, 0);
             acc | b
         });
-        assert_eq!(all, 255);
+        assert_eq!(all, 511);
     }
 }

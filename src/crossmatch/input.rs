@@ -44,9 +44,165 @@ pub struct SourceTable {
     /// a schema's `[position] extended`); empty when the catalog has none. Read
     /// it through [`SourceTable::is_extended`].
     pub extended: Vec<bool>,
+    /// Per source, one [`BandValue`] code per band of the catalog's schema
+    /// (row-major, `bands` entries a row); empty when not read
+    /// ([`SourceTable::read_photometry`]). The matcher reads it for blends.
+    pub photometry: Vec<f64>,
+    /// Bands per row of `photometry`.
+    pub bands: usize,
+}
+
+/// What a source's value in one band tells the blend decisions, as stored in
+/// one `f64` ([`BandValue::code`], [`BandValue::from_code`]).
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub enum BandValue {
+    /// A detection with this flux density, Jy (> 0).
+    Detected(f64),
+    /// An upper limit on the flux density, Jy (> 0).
+    Limit(f64),
+    /// Measured in the band, but with no flux density to compare (a
+    /// saturated value, or a magnitude-only band).
+    Measured,
+    /// No measurement (missing, not detected, rejected).
+    None,
+}
+
+impl BandValue {
+    /// The stored form: the flux for a detection, minus the limit for a limit,
+    /// 0 for `Measured`, NaN for `None`.
+    pub fn code(self) -> f64 {
+        match self {
+            BandValue::Detected(f) => f,
+            BandValue::Limit(l) => -l,
+            BandValue::Measured => 0.0,
+            BandValue::None => f64::NAN,
+        }
+    }
+
+    /// The value of a stored code.
+    pub fn from_code(code: f64) -> BandValue {
+        if code > 0.0 {
+            BandValue::Detected(code)
+        } else if code < 0.0 {
+            BandValue::Limit(-code)
+        } else if code == 0.0 {
+            BandValue::Measured
+        } else {
+            BandValue::None
+        }
+    }
+
+    /// True when the source was detected in the band (a flux or a saturated
+    /// value): the band's image saw it, so its resolution applies to it.
+    pub fn is_detection(self) -> bool {
+        matches!(self, BandValue::Detected(_) | BandValue::Measured)
+    }
 }
 
 impl SourceTable {
+    /// [`SourceTable::from_batches`] with the band values of every band of
+    /// `schema` ([`SourceTable::read_photometry`]), named after its survey.
+    ///
+    /// # Errors
+    /// As [`SourceTable::from_batches`].
+    pub fn from_normalized(
+        schema: &crate::catalog::schema::SurveySchema,
+        batches: &[RecordBatch],
+        origin: &std::path::Path,
+    ) -> Result<SourceTable> {
+        let mut t = SourceTable::from_batches(&schema.survey, batches, origin)?;
+        let bands: Vec<(String, bool)> = schema
+            .bands
+            .iter()
+            .map(|b| (b.band.id.clone(), b.has_flux()))
+            .collect();
+        t.read_photometry(batches, &bands, origin)?;
+        Ok(t)
+    }
+
+    /// Reads each band's value of every row of normalized `batches` (in the
+    /// table's row order) into [`SourceTable::photometry`]; `bands` are the
+    /// schema's band ids in order, with whether each has flux densities.
+    ///
+    /// # Errors
+    /// [`Error::Format`] naming `origin` when a band's columns are missing.
+    pub fn read_photometry(
+        &mut self,
+        batches: &[RecordBatch],
+        bands: &[(String, bool)],
+        origin: &std::path::Path,
+    ) -> Result<()> {
+        let n: usize = batches.iter().map(RecordBatch::num_rows).sum();
+        let mut codes = vec![f64::NAN; n * bands.len()];
+        let mut start = 0;
+        for batch in batches {
+            for (b, (id, has_flux)) in bands.iter().enumerate() {
+                let status = batch
+                    .column_by_name(&format!("{id}_status"))
+                    .and_then(|c| arrow::compute::cast(c, &arrow::datatypes::DataType::Utf8).ok())
+                    .ok_or_else(|| {
+                        Error::format(origin, format!("normalized table lacks column {id}_status"))
+                    })?;
+                let status = status.as_string::<i32>();
+                let number = |suffix: &str| -> Result<&arrow::array::PrimitiveArray<Float64Type>> {
+                    batch
+                        .column_by_name(&format!("{id}_{suffix}"))
+                        .and_then(|c| c.as_primitive_opt::<Float64Type>())
+                        .ok_or_else(|| {
+                            Error::format(
+                                origin,
+                                format!(
+                                    "normalized table lacks a Float64 column \"{id}_{suffix}\""
+                                ),
+                            )
+                        })
+                };
+                let fluxes = if *has_flux {
+                    Some((number("flux_jy")?, number("ulim_jy")?))
+                } else {
+                    None
+                };
+                for i in 0..batch.num_rows() {
+                    let positive = |a: &arrow::array::PrimitiveArray<Float64Type>| {
+                        (a.is_valid(i) && a.value(i) > 0.0 && a.value(i).is_finite())
+                            .then(|| a.value(i))
+                    };
+                    let text = if status.is_valid(i) {
+                        status.value(i)
+                    } else {
+                        ""
+                    };
+                    let value = match (text, fluxes) {
+                        ("detected", Some((flux, _))) => {
+                            positive(flux).map_or(BandValue::Measured, BandValue::Detected)
+                        }
+                        ("upper_limit", Some((_, ulim))) => {
+                            positive(ulim).map_or(BandValue::None, BandValue::Limit)
+                        }
+                        ("detected" | "saturated", _) => BandValue::Measured,
+                        _ => BandValue::None,
+                    };
+                    codes[(start + i) * bands.len() + b] = value.code();
+                }
+            }
+            start += batch.num_rows();
+        }
+        self.photometry = codes;
+        self.bands = bands.len();
+        Ok(())
+    }
+
+    /// The value of source `i` in band `b` ([`BandValue::None`] when the
+    /// photometry was not read).
+    pub fn band_value(&self, i: usize, b: usize) -> BandValue {
+        if b >= self.bands {
+            return BandValue::None;
+        }
+        self.photometry
+            .get(i * self.bands + b)
+            .map_or(BandValue::None, |&c| BandValue::from_code(c))
+    }
+
     /// Number of sources.
     pub fn len(&self) -> usize {
         self.ra_deg.len()

@@ -6,7 +6,8 @@
 //! 1. [`prepare`]: sources in rank order at the reference epoch;
 //! 2. [`density`]: each catalog's surface density, for the prior;
 //! 3. [`candidates`]: pairs within tolerance ([`tolerance`]), per HEALPix cell;
-//! 4. [`blends`]: coarse sources covering several finer ones, kept apart;
+//! 4. [`blends`]: coarse sources covering several finer ones, kept apart
+//!    unless fainter companions carry little of the flux ([`shares`]);
 //!    [`groups`]: connected groups of the remaining candidate graph;
 //! 5. [`resolve`]: each group split into objects by maximum posterior, with
 //!    probabilities ([`bayes`]; moving objects, [`moving`] and [`motion`]) and
@@ -49,11 +50,12 @@ pub mod offsets;
 pub mod position_error;
 pub mod prepare;
 pub mod resolve;
+pub mod shares;
 pub mod systematics;
 pub mod tolerance;
 
-pub use config::{CatalogSettings, MatchConfig, Tolerance};
+pub use config::{BandSettings, CatalogSettings, MatchConfig, Tolerance};
 pub use engine::{
     Link, MatchResult, MatchedObject, Member, SourceRef, run_match, run_match_with_area,
 };
-pub use input::SourceTable;
+pub use input::{BandValue, SourceTable};

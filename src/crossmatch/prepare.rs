@@ -13,7 +13,7 @@
 
 use super::bayes::circularized_sigma_arcsec;
 use super::config::MatchConfig;
-use super::input::SourceTable;
+use super::input::{BandValue, SourceTable};
 use super::tolerance::Covariance;
 use crate::error::{Error, Result};
 use crate::sky::propagation::propagate_deg;
@@ -56,6 +56,12 @@ pub struct Sources {
     /// Whether each source is extended ([`SourceTable::is_extended`]); empty
     /// when no source is. Read it through [`Sources::is_extended`].
     pub extended: Vec<bool>,
+    /// Per source, [`Sources::bands`] band values ([`BandValue::code`]) in its
+    /// catalog's band order; empty unless some catalog declares a resolution
+    /// (only blends read it).
+    pub photometry: Vec<f64>,
+    /// Band values per source in `photometry` (the most bands of any catalog).
+    pub bands: usize,
 }
 
 impl Sources {
@@ -77,6 +83,32 @@ impl Sources {
     /// Whether source `i` is extended (a galaxy: it never moves).
     pub fn is_extended(&self, i: usize) -> bool {
         self.extended.get(i).copied().unwrap_or(false)
+    }
+
+    /// The value of source `i` in band `b` of its catalog.
+    pub fn band_value(&self, i: usize, b: usize) -> BandValue {
+        if b >= self.bands {
+            return BandValue::None;
+        }
+        self.photometry
+            .get(i * self.bands + b)
+            .map_or(BandValue::None, |&c| BandValue::from_code(c))
+    }
+
+    /// The resolution source `i` was seen at, arcsec: the finest resolution of
+    /// the bands it was detected in (a band's own, else its catalog's); its
+    /// catalog's when it has no detection or no photometry was read. `None`
+    /// when a band it was detected in has no declared resolution.
+    pub fn resolution_arcsec(&self, i: usize, config: &MatchConfig) -> Option<f64> {
+        let settings = &config.catalogs[self.catalog[i] as usize];
+        let mut finest: Option<f64> = None;
+        for b in 0..settings.bands.len() {
+            if self.band_value(i, b).is_detection() {
+                let r = settings.band_resolution_arcsec(b)?;
+                finest = Some(finest.map_or(r, |f: f64| f.min(r)));
+            }
+        }
+        finest.or(settings.resolution_arcsec)
     }
 
     /// Flattens `tables` into rank order at `config.reference_epoch_yr`.
@@ -114,8 +146,16 @@ impl Sources {
             forced: Vec::new(),
             extended: Vec::new(),
             pm_err_masyr: Vec::new(),
+            photometry: Vec::new(),
+            bands: 0,
         };
         let any_pm_err = tables.iter().any(|t| !t.pm_err_masyr.is_empty());
+        if config.widest_resolution_arcsec() > 0.0 {
+            s.bands = tables.iter().map(|t| t.bands).max().unwrap_or(0);
+            if s.bands > 0 {
+                s.photometry = Vec::with_capacity(total * s.bands);
+            }
+        }
         let any_forced = tables.iter().any(SourceTable::has_forced);
         let any_extended = tables.iter().any(SourceTable::has_extended);
         for (c, table) in tables.iter().enumerate() {
@@ -194,6 +234,10 @@ impl Sources {
                 if any_extended {
                     s.extended.push(table.is_extended(i));
                 }
+                if s.bands > 0 {
+                    s.photometry
+                        .extend((0..s.bands).map(|b| table.band_value(i, b).code()));
+                }
             }
         }
         s.catalog_start.push(s.len());
@@ -239,6 +283,18 @@ impl Sources {
             } else {
                 ranks.iter().map(|i| self.pm_err_masyr[pick(i)]).collect()
             },
+            photometry: if self.bands == 0 {
+                Vec::new()
+            } else {
+                ranks
+                    .iter()
+                    .flat_map(|&i| {
+                        let at = i as usize * self.bands;
+                        self.photometry[at..at + self.bands].iter().copied()
+                    })
+                    .collect()
+            },
+            bands: self.bands,
         };
         for c in 0..ncat {
             s.catalog_start

@@ -99,6 +99,12 @@ pub struct ResolvedObject {
     /// Anchor ranks of related objects: for a blend, the objects under it; for an
     /// object under a blend, the blend.
     pub related: Vec<u32>,
+    /// The companions' share of a contaminated member's flux (the largest,
+    /// when several members are).
+    pub contamination_share: Option<f64>,
+    /// Ranks of the coarse sources over this object that it does not hold:
+    /// blends, and contaminated sources held by a brighter object.
+    pub covered_by: Vec<u32>,
 }
 
 /// The candidates of one group, in local indices.
@@ -569,6 +575,8 @@ fn single(rank: u32, extra_flags: u32) -> ResolvedObject {
         member_probability: vec![1.0],
         flags: flags::SINGLE_CATALOG | extra_flags,
         related: Vec::new(),
+        contamination_share: None,
+        covered_by: Vec::new(),
     }
 }
 
@@ -635,6 +643,8 @@ fn describe(
         member_probability,
         flags: fl,
         related: Vec::new(),
+        contamination_share: None,
+        covered_by: Vec::new(),
     }
 }
 

@@ -133,6 +133,7 @@ pub fn objects_batch(
         field("status", DataType::Utf8, false, None),
         field("probability", DataType::Float64, false, None),
         field("related", DataType::Utf8, true, None),
+        field("contamination_share", DataType::Float64, true, None),
         field("healpix29", DataType::UInt64, false, None),
     ];
     let opt = |v: f64| (!v.is_nan()).then_some(v);
@@ -175,6 +176,7 @@ pub fn objects_batch(
             objects.iter().map(|o| o.probability),
         )),
         related_ids(objects, tables),
+        f64s(objects.iter().map(|o| o.contamination_share).collect()),
         Arc::new(UInt64Array::from_iter_values(
             objects.iter().map(|o| o.healpix29),
         )),

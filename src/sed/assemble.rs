@@ -1,14 +1,12 @@
 //! Assembling one SED per object from the matched members' normalized rows,
 //! the catalogs' coverage, and the blend relations.
 
-use std::collections::HashMap;
-
 use arrow::array::{Array, AsArray, RecordBatch};
 use arrow::datatypes::Float64Type;
 use serde::Serialize;
 
 use crate::catalog::schema::BandColumns;
-use crate::crossmatch::{MatchedObject, SourceRef, flags};
+use crate::crossmatch::MatchedObject;
 use crate::error::{Error, Result};
 use crate::sky::coverage::Coverage;
 
@@ -85,12 +83,21 @@ pub struct BandSlot {
     pub catalog_name: String,
     /// The band and how the catalog gives it.
     pub spec: BandColumns,
+    /// The catalog's resolution (PSF FWHM), arcsec, when declared.
+    pub catalog_resolution_arcsec: Option<f64>,
 }
 
 impl BandSlot {
     /// The band id.
     pub fn id(&self) -> &str {
         &self.spec.band.id
+    }
+
+    /// The band's resolution: its own, else the catalog's.
+    pub fn resolution_arcsec(&self) -> Option<f64> {
+        self.spec
+            .resolution_arcsec
+            .or(self.catalog_resolution_arcsec)
     }
 
     /// The survey depth in output units (Jy, or magnitudes for a magnitude-only band).
@@ -223,7 +230,6 @@ pub struct SedAssembler<'a> {
     objects: &'a [MatchedObject],
     coverage: &'a [Coverage],
     data: Vec<BandColumnsData<'a>>,
-    index: HashMap<SourceRef, usize>,
     depths: Vec<Option<f64>>,
 }
 
@@ -242,19 +248,44 @@ impl<'a> SedAssembler<'a> {
             .iter()
             .map(|s| band_data(&tables[s.catalog], s))
             .collect::<Result<_>>()?;
-        let index: HashMap<SourceRef, usize> = objects
-            .iter()
-            .enumerate()
-            .map(|(i, o)| (o.anchor, i))
-            .collect();
         Ok(SedAssembler {
             slots,
             objects,
             coverage,
             data,
-            index,
             depths: slots.iter().map(BandSlot::depth).collect(),
         })
+    }
+
+    /// Whether the blended source at `row` of `slot`'s catalog blends
+    /// `slot`'s band: the band's resolution is at least the one the source was
+    /// seen at (the finest of the bands it was detected in, as the matcher
+    /// takes it; see [`crate::crossmatch::prepare::Sources::resolution_arcsec`]).
+    /// A row detected only in a coarse band of its catalog blends that band,
+    /// not the catalog's finer ones.
+    fn blends_band(&self, slot: &BandSlot, row: usize) -> bool {
+        let mut seen_at: Option<Option<f64>> = None;
+        for (s, d) in self.slots.iter().zip(&self.data) {
+            if s.catalog != slot.catalog {
+                continue;
+            }
+            let status = d.point(row).status;
+            if matches!(status, SedStatus::Detected | SedStatus::Saturated) {
+                let r = s.resolution_arcsec();
+                seen_at = Some(match (seen_at, r) {
+                    (None, r) => r,
+                    (Some(Some(a)), Some(b)) => Some(a.min(b)),
+                    (Some(_), _) => None,
+                });
+            }
+        }
+        let source = seen_at.unwrap_or(slot.catalog_resolution_arcsec);
+        match (slot.resolution_arcsec(), source) {
+            (Some(band), Some(source)) => band >= source,
+            // Without declared resolutions every band of a blend is blended.
+            (None, None) => true,
+            _ => false,
+        }
     }
 
     /// The SEDs of objects `range` (indices into the objects given to [`SedAssembler::new`]).
@@ -263,7 +294,7 @@ impl<'a> SedAssembler<'a> {
     /// None at present; kept fallible for callers that stream.
     pub fn seds(&self, range: std::ops::Range<usize>) -> Result<Vec<Sed>> {
         let (slots, objects, coverage) = (self.slots, self.objects, self.coverage);
-        let (data, index, depths) = (&self.data, &self.index, &self.depths);
+        let (data, depths) = (&self.data, &self.depths);
         Ok(objects[range]
             .iter()
             .map(|o| {
@@ -272,27 +303,37 @@ impl<'a> SedAssembler<'a> {
                     .zip(data)
                     .zip(depths)
                     .map(|((slot, d), depth)| {
+                        let band_covers = slot
+                            .spec
+                            .coverage
+                            .as_ref()
+                            .map(|c| c.contains(o.ra_deg, o.dec_deg));
                         if let Some(m) = o.member(slot.catalog) {
                             let mut p = d.point(m.row);
+                            if band_covers == Some(false)
+                                && matches!(p.status, SedStatus::NotDetected | SedStatus::Missing)
+                            {
+                                return SedPoint::bare(SedStatus::NotCovered);
+                            }
                             if p.status == SedStatus::NotDetected && p.ulim.is_none() {
                                 p.ulim = *depth;
                             }
                             return p;
                         }
-                        if o.flags & flags::HAS_BLEND != 0 {
-                            let blend = o
-                                .related
-                                .iter()
-                                .filter_map(|a| index.get(a).map(|&i| &objects[i]))
-                                .find_map(|b| b.member(slot.catalog));
-                            if let Some(m) = blend {
-                                let source = d.point(m.row);
-                                let mut p = SedPoint::bare(SedStatus::Blended);
-                                p.ulim = source.value.or(source.ulim);
-                                return p;
-                            }
+                        let blend = o
+                            .covered_by
+                            .iter()
+                            .find(|s| s.catalog as usize == slot.catalog)
+                            .filter(|s| self.blends_band(slot, s.row as usize));
+                        if let Some(s) = blend {
+                            let source = d.point(s.row as usize);
+                            let mut p = SedPoint::bare(SedStatus::Blended);
+                            p.ulim = source.value.or(source.ulim);
+                            return p;
                         }
-                        if coverage[slot.catalog].contains(o.ra_deg, o.dec_deg) {
+                        if band_covers
+                            .unwrap_or_else(|| coverage[slot.catalog].contains(o.ra_deg, o.dec_deg))
+                        {
                             let mut p = SedPoint::bare(SedStatus::NotDetected);
                             p.ulim = *depth;
                             p
@@ -340,6 +381,7 @@ mod tests {
             catalog: 0,
             catalog_name: "cat".into(),
             spec: schema.bands[0].clone(),
+            catalog_resolution_arcsec: None,
         };
         let data = band_data(&normalized, &slot).unwrap();
         let saturated = data.point(0);

@@ -1,0 +1,310 @@
+//! Blends decided by flux, end to end through `fluxloom build`: a coarse
+//! source over a bright star and a much fainter companion stays with the star
+//! (flagged `contaminated`, with the companions' share), while one over two
+//! equal stars, or one not consistent with the bright star alone, is a blend.
+//! Invented catalogs of an invented field.
+
+mod common;
+
+use std::fs;
+use std::path::{Path, PathBuf};
+use std::process::Command;
+
+use arrow::array::{Array, AsArray, RecordBatch};
+use arrow::datatypes::{DataType, Float64Type, UInt32Type};
+
+use common::read_parquet;
+
+/// 8 µm photometry at 1.8″ resolution. A: 3.4 mJy with a companion a2 2″
+/// east, 2600 times fainter; b1, b2: two equal stars 2″ apart; d: 3.4 mJy
+/// with a companion d2 2″ east 100 times fainter.
+const FINE: &str = "# invented 8 um sources
+id,ra,dec,f80,e80
+a,150.0000000,10.0,3.4,0.05
+a2,150.0005641,10.0,0.0013076923,0.0002
+b1,150.0100000,10.0,2.0,0.05
+b2,150.0105641,10.0,2.0,0.05
+d,150.0200000,10.0,3.4,0.05
+d2,150.0205641,10.0,0.034,0.002
+";
+
+/// 24 µm photometry at 6″: c1 on a, c2 between b1 and b2, c3 3″ west of d
+/// (within 6″ of d and d2, not consistent with d alone).
+const COARSE: &str = "# invented 24 um sources
+id,ra,dec,f24,e24
+c1,150.0000000,10.0,3.0,0.1
+c2,150.0102820,10.0,4.0,0.1
+c3,150.0191538,10.0,3.0,0.1
+";
+
+const FINE_SCHEMA: &str = r#"survey = "fine"
+format = "csv"
+id = "id"
+
+[position]
+ra = "ra"
+dec = "dec"
+error = { kind = "fixed", arcsec = 0.1 }
+
+[epoch]
+year = 2016.0
+
+[[band]]
+band = "irac_80"
+value = "f80"
+unit = "mJy"
+error = "e80"
+"#;
+
+const COARSE_SCHEMA: &str = r#"survey = "coarse"
+format = "csv"
+id = "id"
+
+[position]
+ra = "ra"
+dec = "dec"
+error = { kind = "fixed", arcsec = 0.5 }
+
+[epoch]
+year = 2016.0
+
+[[band]]
+band = "mips_24"
+value = "f24"
+unit = "mJy"
+error = "e24"
+"#;
+
+fn plan(extra_match: &str) -> String {
+    format!(
+        r#"[field]
+name = "shares"
+reference_epoch = 2016.0
+area_deg2 = 0.01
+
+[match]
+tolerance = {{ kind = "sigma", k = 3.439, max_arcsec = 2.0 }}
+{extra_match}
+
+[[catalog]]
+file = "fine.csv"
+schema = "fine.toml"
+resolution_arcsec = 1.8
+
+[[catalog]]
+file = "coarse.csv"
+schema = "coarse.toml"
+resolution_arcsec = 6.0
+
+[output]
+folder = "out"
+"#
+    )
+}
+
+fn build(dir: &Path, extra_match: &str) -> PathBuf {
+    for (name, body) in [
+        ("fine.csv", FINE),
+        ("coarse.csv", COARSE),
+        ("fine.toml", FINE_SCHEMA),
+        ("coarse.toml", COARSE_SCHEMA),
+    ] {
+        fs::write(dir.join(name), body).unwrap();
+    }
+    fs::write(dir.join("plan.toml"), plan(extra_match)).unwrap();
+    let o = Command::new(env!("CARGO_BIN_EXE_fluxloom"))
+        .args(["build", dir.join("plan.toml").to_str().unwrap(), "--quiet"])
+        .output()
+        .unwrap();
+    assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
+    dir.join("out")
+}
+
+fn text(batch: &RecordBatch, name: &str) -> Vec<String> {
+    let a = arrow::compute::cast(batch.column_by_name(name).unwrap(), &DataType::Utf8).unwrap();
+    a.as_string::<i32>()
+        .iter()
+        .map(|s| s.unwrap_or("").to_string())
+        .collect()
+}
+
+fn floats(batch: &RecordBatch, name: &str) -> Vec<Option<f64>> {
+    let a = batch
+        .column_by_name(name)
+        .unwrap()
+        .as_primitive::<Float64Type>();
+    (0..a.len())
+        .map(|i| a.is_valid(i).then(|| a.value(i)))
+        .collect()
+}
+
+/// Per object id: (coarse member, flags, status, share, related, 24 µm status,
+/// 24 µm flux, 24 µm limit).
+#[allow(clippy::type_complexity)]
+fn rows(
+    out: &Path,
+) -> Vec<(
+    String,
+    String,
+    u32,
+    String,
+    Option<f64>,
+    String,
+    String,
+    Option<f64>,
+    Option<f64>,
+)> {
+    let o = read_parquet(&out.join("objects.parquet"));
+    let flags = o
+        .column_by_name("flags")
+        .unwrap()
+        .as_primitive::<UInt32Type>();
+    let (id, coarse, status, related, s24) = (
+        text(&o, "object_id"),
+        text(&o, "coarse_source_id"),
+        text(&o, "status"),
+        text(&o, "related"),
+        text(&o, "mips_24_status"),
+    );
+    let (share, f24, u24) = (
+        floats(&o, "contamination_share"),
+        floats(&o, "mips_24_flux_jy"),
+        floats(&o, "mips_24_ulim_jy"),
+    );
+    (0..o.num_rows())
+        .map(|k| {
+            (
+                id[k].clone(),
+                coarse[k].clone(),
+                flags.value(k),
+                status[k].clone(),
+                share[k],
+                related[k].clone(),
+                s24[k].clone(),
+                f24[k],
+                u24[k],
+            )
+        })
+        .collect()
+}
+
+#[test]
+fn a_faint_companion_leaves_the_coarse_flux_to_the_star() {
+    let dir = tempfile::tempdir().unwrap();
+    let out = build(dir.path(), "");
+    let rows = rows(&out);
+    let get = |id: &str| rows.iter().find(|r| r.0 == id).unwrap().clone();
+    let ids: Vec<&str> = rows.iter().map(|r| r.0.as_str()).collect();
+    assert_eq!(
+        ids,
+        [
+            "fine:a",
+            "fine:a2",
+            "fine:b1",
+            "fine:b2",
+            "fine:d",
+            "fine:d2",
+            "coarse:c2",
+            "coarse:c3"
+        ]
+    );
+
+    // a keeps c1 as a member and its 24 µm detection, contaminated (bit 256)
+    // by a2's share 1/2601 = 3.845e-4 (arithmetic).
+    let a = get("fine:a");
+    assert_eq!(a.1, "c1");
+    assert_eq!(a.2, 256);
+    assert_eq!(a.3, "contaminated");
+    assert!((a.4.unwrap() - 1.0 / 2601.0).abs() < 1e-9, "{:?}", a.4);
+    assert_eq!(a.5, "fine:a2");
+    assert_eq!(a.6, "detected");
+    assert!((a.7.unwrap() - 0.003).abs() < 1e-15);
+    // a2 gets no flux from c1: only an upper limit, flagged under a coarse source.
+    let a2 = get("fine:a2");
+    assert_eq!(a2.1, "");
+    assert_eq!(a2.3, "has_blend+single_catalog");
+    assert_eq!(a2.5, "fine:a");
+    assert_eq!((a2.6.as_str(), a2.7), ("blended", None));
+    assert!((a2.8.unwrap() - 0.003).abs() < 1e-15);
+    assert_eq!(a2.4, None);
+
+    // Two equal stars: c2 is a blend of its own, an upper limit for each.
+    let c2 = get("coarse:c2");
+    assert_eq!(c2.3, "blend+single_catalog");
+    assert_eq!(c2.5, "fine:b1,fine:b2");
+    assert_eq!(c2.4, None);
+    for b in ["fine:b1", "fine:b2"] {
+        let r = get(b);
+        assert_eq!(r.3, "has_blend+single_catalog", "{b}");
+        assert_eq!((r.6.as_str(), r.7), ("blended", None), "{b}");
+        assert!((r.8.unwrap() - 0.004).abs() < 1e-15, "{b}");
+    }
+
+    // d2 carries 1/101 of the flux, below 10 %, but c3 lies 3″ from d, beyond
+    // the pair's tolerance: the light is not where the shares put it, so c3 is
+    // a blend.
+    let c3 = get("coarse:c3");
+    assert_eq!(c3.3, "blend+single_catalog");
+    assert_eq!(c3.5, "fine:d,fine:d2");
+    assert_eq!(get("fine:d").6, "blended");
+
+    // The photometry table agrees.
+    let p = read_parquet(&out.join("photometry.parquet"));
+    let (pid, band, status) = (text(&p, "object_id"), text(&p, "band"), text(&p, "status"));
+    let point = |id: &str| {
+        (0..p.num_rows())
+            .find(|&k| pid[k] == id && band[k] == "mips_24")
+            .map(|k| status[k].clone())
+            .unwrap()
+    };
+    assert_eq!(point("fine:a"), "detected");
+    assert_eq!(point("fine:a2"), "blended");
+    assert_eq!(point("fine:b1"), "blended");
+}
+
+#[test]
+fn a_zero_share_limit_makes_every_such_source_a_blend() {
+    let dir = tempfile::tempdir().unwrap();
+    let out = build(dir.path(), "companion_share_limit = 0.0");
+    let rows = rows(&out);
+    let a = rows.iter().find(|r| r.0 == "fine:a").unwrap();
+    assert_eq!(a.1, "");
+    assert_eq!(a.3, "has_blend+single_catalog");
+    assert_eq!(a.6, "blended");
+    let c1 = rows.iter().find(|r| r.0 == "coarse:c1").unwrap();
+    assert_eq!(c1.3, "blend+single_catalog");
+    assert!(rows.iter().all(|r| r.2 & 256 == 0 && r.4.is_none()));
+}
+
+#[test]
+fn the_share_limit_is_checked_in_the_plan() {
+    let dir = tempfile::tempdir().unwrap();
+    for (name, body) in [
+        ("fine.csv", FINE),
+        ("coarse.csv", COARSE),
+        ("fine.toml", FINE_SCHEMA),
+        ("coarse.toml", COARSE_SCHEMA),
+    ] {
+        fs::write(dir.path().join(name), body).unwrap();
+    }
+    fs::write(
+        dir.path().join("plan.toml"),
+        plan("companion_share_limit = 0.7"),
+    )
+    .unwrap();
+    let o = Command::new(env!("CARGO_BIN_EXE_fluxloom"))
+        .args([
+            "build",
+            dir.path().join("plan.toml").to_str().unwrap(),
+            "--quiet",
+        ])
+        .output()
+        .unwrap();
+    assert!(!o.status.success());
+    let err = String::from_utf8_lossy(&o.stderr);
+    assert!(
+        err.contains("plan.toml:8: companion_share_limit must lie in [0, 0.5]"),
+        "{err}"
+    );
+    assert!(err.contains("found 0.7"), "{err}");
+}
