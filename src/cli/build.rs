@@ -1049,7 +1049,7 @@ pub(crate) fn summary(
         ));
     }
     s.push_str(&format!(
-        "\nbands    {:<10} {:<10} {:>8} {:>8} {:>8} {:>8} {:>8} {:>8} {:>8}\n",
+        "\nbands    {:<10} {:<10} {:>8} {:>8} {:>8} {:>8} {:>8} {:>8} {:>8} {:>9}\n",
         "catalog",
         "band",
         "detected",
@@ -1058,7 +1058,8 @@ pub(crate) fn summary(
         "not_cov",
         "blended",
         "missing",
-        "rejected"
+        "rejected",
+        "saturated"
     ));
     for point in &record.sed_points {
         let (catalog, band) = (&point.catalog, &point.band);
@@ -1067,8 +1068,8 @@ pub(crate) fn summary(
             .map(|st| point.by_status.get(st.as_str()).copied().unwrap_or(0))
             .collect();
         s.push_str(&format!(
-            "         {catalog:<10} {band:<10} {:>8} {:>8} {:>8} {:>8} {:>8} {:>8} {:>8}\n",
-            c[0], c[1], c[2], c[3], c[4], c[5], c[6]
+            "         {catalog:<10} {band:<10} {:>8} {:>8} {:>8} {:>8} {:>8} {:>8} {:>8} {:>9}\n",
+            c[0], c[1], c[2], c[3], c[4], c[5], c[6], c[7]
         ));
     }
     s.push_str(&format!("\nwrote    {}\n", out_dir.display()));
