@@ -9,10 +9,7 @@ use std::fs;
 use std::path::{Path, PathBuf};
 use std::process::Command;
 
-use arrow::array::{Array, AsArray, RecordBatch};
-use arrow::datatypes::{DataType, Float64Type};
-
-use common::read_parquet;
+use common::{floats, read_parquet, text};
 use fluxloom::sky::partition::home_cell;
 
 /// East: p (with an hx row h1), r (no hx row), t1 and t2 3″ apart under the
@@ -160,24 +157,6 @@ fn build(dir: &Path) -> PathBuf {
         .unwrap();
     assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
     dir.join("out")
-}
-
-fn text(batch: &RecordBatch, name: &str) -> Vec<String> {
-    let a = arrow::compute::cast(batch.column_by_name(name).unwrap(), &DataType::Utf8).unwrap();
-    a.as_string::<i32>()
-        .iter()
-        .map(|s| s.unwrap_or("").to_string())
-        .collect()
-}
-
-fn floats(batch: &RecordBatch, name: &str) -> Vec<Option<f64>> {
-    let a = batch
-        .column_by_name(name)
-        .unwrap()
-        .as_primitive::<Float64Type>();
-    (0..a.len())
-        .map(|i| a.is_valid(i).then(|| a.value(i)))
-        .collect()
 }
 
 #[test]

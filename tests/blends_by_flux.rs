@@ -10,10 +10,10 @@ use std::fs;
 use std::path::{Path, PathBuf};
 use std::process::Command;
 
-use arrow::array::{Array, AsArray, RecordBatch};
-use arrow::datatypes::{DataType, Float64Type, UInt32Type};
+use arrow::array::AsArray;
+use arrow::datatypes::UInt32Type;
 
-use common::read_parquet;
+use common::{floats, read_parquet, text};
 
 /// 8 µm photometry at 1.8″ resolution. A: 3.4 mJy with a companion a2 2″
 /// east, 2600 times fainter; b1, b2: two equal stars 2″ apart; d: 3.4 mJy
@@ -118,24 +118,6 @@ fn build(dir: &Path, extra_match: &str) -> PathBuf {
         .unwrap();
     assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
     dir.join("out")
-}
-
-fn text(batch: &RecordBatch, name: &str) -> Vec<String> {
-    let a = arrow::compute::cast(batch.column_by_name(name).unwrap(), &DataType::Utf8).unwrap();
-    a.as_string::<i32>()
-        .iter()
-        .map(|s| s.unwrap_or("").to_string())
-        .collect()
-}
-
-fn floats(batch: &RecordBatch, name: &str) -> Vec<Option<f64>> {
-    let a = batch
-        .column_by_name(name)
-        .unwrap()
-        .as_primitive::<Float64Type>();
-    (0..a.len())
-        .map(|i| a.is_valid(i).then(|| a.value(i)))
-        .collect()
 }
 
 /// Per object id: (coarse member, flags, status, share, related, 24 µm status,

@@ -8,7 +8,7 @@ use std::process::Command;
 
 mod common;
 
-use common::assert_same_files;
+use common::{assert_same_files, kill_once_journaled};
 
 /// The demo plan without the settings a limited build refuses (offsets, false
 /// matches, exports), its files named absolutely, writing into `out`.
@@ -188,7 +188,7 @@ fn a_killed_limited_build_resumes_from_its_journal_with_identical_files() {
         "--threads",
         "1",
     ];
-    let mut child = Command::new(env!("CARGO_BIN_EXE_fluxloom"))
+    let child = Command::new(env!("CARGO_BIN_EXE_fluxloom"))
         .args(["--quiet", "build"])
         .arg(&plan)
         .args(limited)
@@ -198,26 +198,7 @@ fn a_killed_limited_build_resumes_from_its_journal_with_identical_files() {
         .stderr(std::process::Stdio::null())
         .spawn()
         .unwrap();
-    let journaled = || -> usize {
-        std::fs::read_dir(&journal).map_or(0, |d| {
-            d.filter(|e| {
-                e.as_ref()
-                    .is_ok_and(|e| e.file_name().to_string_lossy().ends_with(".arrows"))
-            })
-            .count()
-        })
-    };
-    let start = std::time::Instant::now();
-    while journaled() < 8 {
-        assert!(
-            start.elapsed().as_secs() < 600,
-            "the build journaled {} cells",
-            journaled()
-        );
-        std::thread::sleep(std::time::Duration::from_millis(50));
-    }
-    child.kill().unwrap();
-    child.wait().unwrap();
+    kill_once_journaled(child, &journal, 8);
     assert!(!out.exists(), "a killed build wrote no output folder");
     let summary = built(&plan, &out, &limited);
     assert!(

@@ -6,7 +6,7 @@ use std::process::{Command, Stdio};
 
 mod common;
 
-use common::assert_same_files;
+use common::{assert_same_files, kill_once_journaled};
 
 use fluxloom::cli::build::prepare;
 use fluxloom::crossmatch::cell_io::read_output;
@@ -161,7 +161,7 @@ fn a_killed_build_resumes_from_its_journal_with_identical_files() {
     build(&whole, &[]);
     let out = dir.path().join("resumed").join("fl1");
     let journal = dir.path().join("resumed").join(".fl1.fluxloom-journal");
-    let mut child = Command::new(env!("CARGO_BIN_EXE_fluxloom"))
+    let child = Command::new(env!("CARGO_BIN_EXE_fluxloom"))
         .args([
             "--quiet",
             "build",
@@ -177,26 +177,7 @@ fn a_killed_build_resumes_from_its_journal_with_identical_files() {
         .stderr(Stdio::null())
         .spawn()
         .unwrap();
-    let journaled = || -> usize {
-        std::fs::read_dir(&journal).map_or(0, |d| {
-            d.filter(|e| {
-                e.as_ref()
-                    .is_ok_and(|e| e.file_name().to_string_lossy().ends_with(".arrows"))
-            })
-            .count()
-        })
-    };
-    let start = std::time::Instant::now();
-    while journaled() < 3 {
-        assert!(
-            start.elapsed().as_secs() < 600,
-            "the build journaled {} cells",
-            journaled()
-        );
-        std::thread::sleep(std::time::Duration::from_millis(50));
-    }
-    child.kill().unwrap();
-    child.wait().unwrap();
+    kill_once_journaled(child, &journal, 3);
     assert!(!out.exists(), "a killed build wrote no output folder");
     let summary = build(&out, &[]);
     assert!(

@@ -8,29 +8,10 @@ use std::fs;
 use std::path::Path;
 use std::process::Command;
 
-use arrow::array::{Array, AsArray, RecordBatch};
-use arrow::datatypes::{DataType, Float64Type};
+use arrow::array::AsArray;
 
-use common::read_parquet;
+use common::{floats, read_parquet, text};
 use fluxloom::science::sed_table::FieldSeds;
-
-fn text(batch: &RecordBatch, name: &str) -> Vec<String> {
-    let a = arrow::compute::cast(batch.column_by_name(name).unwrap(), &DataType::Utf8).unwrap();
-    a.as_string::<i32>()
-        .iter()
-        .map(|s| s.unwrap_or("").to_string())
-        .collect()
-}
-
-fn floats(batch: &RecordBatch, name: &str) -> Vec<Option<f64>> {
-    let a = batch
-        .column_by_name(name)
-        .unwrap()
-        .as_primitive::<Float64Type>();
-    (0..a.len())
-        .map(|i| a.is_valid(i).then(|| a.value(i)))
-        .collect()
-}
 
 const DETECTIONS: &str = "# invented detections; flags bit 2 or 3 = saturated
 id,ra,dec,f36,e36,flags

@@ -230,6 +230,9 @@ pub fn build_within(
     )?;
     let record_cell = journal_recorder(&journal, run.pause_after_cells);
     let shared = Shared {
+        first_margin_arcsec: first_margin_arcsec(CellContext::influence_radius_arcsec(
+            &matching, &epochs,
+        )),
         journal: &journal,
         journaled: journal.cells()?,
         record_cell: &record_cell,
@@ -262,10 +265,6 @@ pub fn build_within(
     let outputs = join_parts(&mut staging, plan, &slots, &tally.parts)?;
     bar.finish_and_clear();
     let mut stats = tally.stats;
-    let base_margin = first_margin_arcsec(CellContext::influence_radius_arcsec(
-        &matching,
-        &shared.epochs,
-    ));
     stats.sources = shared.rows.clone();
     stats.density_per_deg2 = shared
         .densities
@@ -273,7 +272,7 @@ pub fn build_within(
         .map(|d| d / crate::crossmatch::engine::DEG2_PER_SR)
         .collect();
     stats.cells.order = matching.partition_order;
-    stats.cells.margin_arcsec = base_margin;
+    stats.cells.margin_arcsec = shared.first_margin_arcsec;
     stats.cells.cells = routed.cell_rows.values().filter(|r| r.0 > 0).count();
     stats.cells.emitted = match &run.cells {
         Some(subset) => routed
@@ -393,6 +392,8 @@ struct Shared<'a> {
     coverage: &'a [Coverage],
     slots: &'a [crate::sed::BandSlot],
     spill: &'a Path,
+    /// Margin of a cell's first pass with the whole input's epochs, arcsec.
+    first_margin_arcsec: f64,
     /// The restart journal, the cells it held at the start, and its recorder.
     journal: &'a Journal,
     journaled: Vec<u64>,
@@ -426,10 +427,6 @@ impl Shared<'_> {
             0,
             tally,
         )?;
-        let base = first_margin_arcsec(CellContext::influence_radius_arcsec(
-            self.matching,
-            &self.epochs,
-        ));
         // A cell taken up again is not journaled: its output refers to the
         // sources of its own neighbourhood, and a resumed run defers it again.
         for (cell, mut margin) in deferred {
@@ -445,7 +442,7 @@ impl Shared<'_> {
                         false => c.rows_of(&reach, false),
                     })
                     .collect::<Result<Vec<_>>>()?;
-                let level = (margin / base).log2().round().max(0.0) as usize;
+                let level = (margin / self.first_margin_arcsec).log2().round().max(0.0) as usize;
                 let again = self.match_part(
                     &batches,
                     CellRun {

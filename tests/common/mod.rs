@@ -4,9 +4,30 @@
 use std::collections::HashMap;
 use std::path::Path;
 
-use arrow::array::RecordBatch;
+use arrow::array::{Array, AsArray, RecordBatch};
+use arrow::datatypes::{DataType, Float64Type};
 use fluxloom::crossmatch::{MatchResult, SourceTable};
 use parquet::arrow::arrow_reader::ParquetRecordBatchReaderBuilder;
+
+/// Column `name` of `batch` as text (cast to UTF-8; null reads "").
+pub fn text(batch: &RecordBatch, name: &str) -> Vec<String> {
+    let a = arrow::compute::cast(batch.column_by_name(name).unwrap(), &DataType::Utf8).unwrap();
+    a.as_string::<i32>()
+        .iter()
+        .map(|s| s.unwrap_or("").to_string())
+        .collect()
+}
+
+/// Float64 column `name` of `batch`, nulls as `None`.
+pub fn floats(batch: &RecordBatch, name: &str) -> Vec<Option<f64>> {
+    let a = batch
+        .column_by_name(name)
+        .unwrap()
+        .as_primitive::<Float64Type>();
+    (0..a.len())
+        .map(|i| a.is_valid(i).then(|| a.value(i)))
+        .collect()
+}
 
 /// All rows of a Parquet file as one batch.
 pub fn read_parquet(path: &Path) -> RecordBatch {
@@ -120,4 +141,29 @@ pub fn assert_same_files(got: &Path, expected: &Path, what: &str) {
     for ((file, a), (_, b)) in got.iter().zip(&expected) {
         assert!(a == b, "{what}: {file} differs from the reference build");
     }
+}
+
+/// Waits until the journal folder `journal` holds `cells` finished cells, then
+/// kills `child` (a build started with `--pause-after-cells`).
+pub fn kill_once_journaled(mut child: std::process::Child, journal: &Path, cells: usize) {
+    let journaled = || -> usize {
+        std::fs::read_dir(journal).map_or(0, |d| {
+            d.filter(|e| {
+                e.as_ref()
+                    .is_ok_and(|e| e.file_name().to_string_lossy().ends_with(".arrows"))
+            })
+            .count()
+        })
+    };
+    let start = std::time::Instant::now();
+    while journaled() < cells {
+        assert!(
+            start.elapsed().as_secs() < 600,
+            "the build journaled {} cells",
+            journaled()
+        );
+        std::thread::sleep(std::time::Duration::from_millis(50));
+    }
+    child.kill().unwrap();
+    child.wait().unwrap();
 }
