@@ -24,6 +24,7 @@ use crate::crossmatch::false_matches::{FalseMatchEstimate, estimate_false_matche
 use crate::crossmatch::floors::{FAR_ABOVE_FACTOR, FloorEstimate, far_above_stated};
 use crate::crossmatch::systematics::{CatalogOffset, correct_offsets};
 use crate::error::{Error, Result};
+use crate::output::batches::ParquetBatches;
 use crate::output::journal::Journal;
 use crate::output::run_record::{InputRecord, OutputRecord, RunRecord, SedRecord, SubsetRecord};
 use crate::output::staging::Staging;
@@ -280,8 +281,6 @@ pub fn build_with(plan: &Plan, out_dir: &Path, run: RunOptions) -> Result<BuildO
     let Written {
         mut outputs,
         status_counts,
-        objects,
-        photometry,
     } = write_tables(
         &mut |name| staging.path(name),
         &TableInputs {
@@ -296,7 +295,7 @@ pub fn build_with(plan: &Plan, out_dir: &Path, run: RunOptions) -> Result<BuildO
             format: TableFormat::Parquet,
         },
     )?;
-    outputs.extend(write_exports(&mut staging, plan, &objects, &photometry)?);
+    outputs.extend(write_exports(&mut staging, plan)?);
     outputs.extend(write_science(&mut staging, plan)?);
     let mut record = RunRecord::new(
         plan,
@@ -396,8 +395,6 @@ pub(crate) struct TableInputs<'a> {
 pub(crate) struct Written {
     pub outputs: Vec<OutputRecord>,
     pub status_counts: Vec<[u64; SedStatus::ALL.len()]>,
-    pub objects: Vec<RecordBatch>,
-    pub photometry: Vec<RecordBatch>,
 }
 
 /// Writes the tables the plan asks for (objects, photometry, links, hard
@@ -452,9 +449,7 @@ pub(crate) fn write_tables(
         true => Some(create("links", links_batch(&[], tables))?),
         false => None,
     };
-    let exporting = !plan.exports.is_empty();
     let mut status_counts = vec![[0u64; SedStatus::ALL.len()]; slots.len()];
-    let (mut objects, mut photometry) = (Vec::new(), Vec::new());
     let n_objects = result.objects.len();
     // Each table has its own writer: links are written on a thread of their
     // own while objects and photometry are, chunk by chunk, side by side.
@@ -481,43 +476,27 @@ pub(crate) fn write_tables(
                 }
                 let chunk = &result.objects[range];
                 let (ob, pb) = rayon::join(
-                    || -> Result<Option<RecordBatch>> {
-                        let Some(w) = objects_out.as_mut() else {
-                            return Ok(None);
-                        };
-                        let ob = objects_batch(chunk, &seds, slots, tables, epoch)?;
-                        w.write(&ob)?;
-                        Ok(Some(ob))
+                    || -> Result<()> {
+                        match objects_out.as_mut() {
+                            Some(w) => w.write(&objects_batch(chunk, &seds, slots, tables, epoch)?),
+                            None => Ok(()),
+                        }
                     },
-                    || -> Result<Option<RecordBatch>> {
-                        let Some(w) = photometry_out.as_mut() else {
-                            return Ok(None);
-                        };
-                        let pb = photometry_batch(chunk, &seds, slots, tables)?;
-                        w.write(&pb)?;
-                        Ok(Some(pb))
+                    || -> Result<()> {
+                        match photometry_out.as_mut() {
+                            Some(w) => w.write(&photometry_batch(chunk, &seds, slots, tables)?),
+                            None => Ok(()),
+                        }
                     },
                 );
-                if let (Some(ob), true) = (ob?, exporting) {
-                    objects.push(for_export(&ob)?);
-                }
-                if let (Some(pb), true) = (pb?, exporting) {
-                    photometry.push(for_export(&pb)?);
-                }
+                ob?;
+                pb?;
             }
         }
         links_writer
             .map(|h| h.join().expect("the links writer does not panic"))
             .transpose()
     })?;
-    if n_objects == 0 && exporting {
-        if which.objects {
-            objects.push(for_export(&objects_batch(&[], &[], slots, tables, epoch)?)?);
-        }
-        if which.photometry {
-            photometry.push(for_export(&photometry_batch(&[], &[], slots, tables)?)?);
-        }
-    }
     let mut outputs: Vec<OutputRecord> = Vec::new();
     for (stem, w) in [
         ("objects", objects_out),
@@ -545,30 +524,35 @@ pub(crate) fn write_tables(
     Ok(Written {
         outputs,
         status_counts,
-        objects,
-        photometry,
     })
 }
 
-/// Writes the plan's exports of the objects and photometry batches (each
-/// skipped when its table was not written).
+/// Rows per batch when an export reads a written table back.
+const EXPORT_BATCH_ROWS: usize = 65_536;
+
+/// Writes the plan's exports of the objects and photometry tables (each
+/// skipped when its table was not written), reading each table back from its
+/// staged Parquet file a batch at a time, so an export holds one batch of
+/// rows whatever the size of the table.
 ///
 /// # Errors
-/// Write errors.
-pub(crate) fn write_exports(
-    staging: &mut Staging,
-    plan: &Plan,
-    objects: &[RecordBatch],
-    photometry: &[RecordBatch],
-) -> Result<Vec<OutputRecord>> {
+/// Read and write errors.
+pub(crate) fn write_exports(staging: &mut Staging, plan: &Plan) -> Result<Vec<OutputRecord>> {
     let mut outputs = Vec::new();
+    let which = plan.tables;
     for format in &plan.exports {
-        for (name, batches) in [("objects", &objects), ("photometry", &photometry)] {
+        for (name, written) in [("objects", which.objects), ("photometry", which.photometry)] {
             // A table that is not written is not exported either.
-            let Some(schema) = batches.first().map(|b| b.schema()) else {
+            if !written {
                 continue;
-            };
-            let batches = &batches[..];
+            }
+            let batches = ParquetBatches::open(
+                &staging.path(&format!("{name}.parquet")),
+                EXPORT_BATCH_ROWS,
+                for_export,
+            )?;
+            let schema = batches.schema().clone();
+            let batches = &batches;
             let (file, rows) = match format {
                 ExportFormat::Csv => {
                     let file = format!("{name}.csv");

@@ -16,7 +16,6 @@ use crate::output::parquet::{META_VERSION, ParquetOutput, read_metadata};
 use crate::output::run_record::OutputRecord;
 use crate::output::staging::Staging;
 use crate::output::table_file::TableFormat;
-use crate::output::tables::for_export;
 use crate::plan::Plan;
 
 /// Arguments of `fluxloom merge`.
@@ -55,9 +54,7 @@ pub fn run(args: &MergeArgs) -> Result<()> {
     let ranker = Ranker::new(&names);
     let mut staging = Staging::new(&out_dir)?;
     let mut outputs: Vec<OutputRecord> = Vec::new();
-    let (mut objects, mut photometry) = (Vec::new(), Vec::new());
     let slots: usize = plan.catalogs.iter().map(|c| c.schema.bands.len()).sum();
-    let exporting = !plan.exports.is_empty();
     for (file, kind, chunk_rows) in [
         ("objects.parquet", TableKind::PerObject, WRITE_CHUNK_OBJECTS),
         (
@@ -94,12 +91,6 @@ pub fn run(args: &MergeArgs) -> Result<()> {
                 let chunk = chunk
                     .with_schema(schema.clone())
                     .map_err(|e| Error::columnar(&path, e))?;
-                if exporting && file == "objects.parquet" {
-                    objects.push(for_export(&chunk)?);
-                }
-                if exporting && file == "photometry.parquet" {
-                    photometry.push(for_export(&chunk)?);
-                }
                 if writer.is_none() {
                     writer = Some(ParquetOutput::create(&path, schema, metadata.clone())?);
                 }
@@ -120,7 +111,7 @@ pub fn run(args: &MergeArgs) -> Result<()> {
             rows: w.finish()?,
         });
     }
-    outputs.extend(write_exports(&mut staging, &plan, &objects, &photometry)?);
+    outputs.extend(write_exports(&mut staging, &plan)?);
     outputs.extend(write_science(&mut staging, &plan)?);
     let outputs_json = serde_json::to_value(&outputs).map_err(|e| Error::Usage(e.to_string()))?;
     let record = join_records(&args.parts, &records, outputs_json)?;

@@ -44,6 +44,7 @@ use arrow::datatypes::{
 };
 
 use super::atomic::AtomicFile;
+use super::batches::BatchSource;
 use crate::error::{Error, Result};
 
 /// Writes `batches` (each with the columns of `schema`) to `path` as CSV; returns the rows written.
@@ -54,8 +55,11 @@ use crate::error::{Error, Result};
 /// the module table; [`Error::Format`] / [`Error::ColumnType`] when a batch does
 /// not match `schema`; [`Error::Io`] when the file cannot be written. On any
 /// error nothing is left under `path`.
-pub fn write_csv(path: &Path, schema: &SchemaRef, batches: &[RecordBatch]) -> Result<u64> {
-    check_batches(path, schema, batches)?;
+pub fn write_csv<B: BatchSource + ?Sized>(
+    path: &Path,
+    schema: &SchemaRef,
+    batches: &B,
+) -> Result<u64> {
     for field in schema.fields() {
         if !is_exportable(field.data_type()) {
             return Err(unsupported_column(
@@ -78,7 +82,10 @@ pub fn write_csv(path: &Path, schema: &SchemaRef, batches: &[RecordBatch]) -> Re
     line.push('\n');
     out.write_all(line.as_bytes()).map_err(io)?;
     let mut rows = 0u64;
-    for batch in batches {
+    let mut index = 0usize;
+    batches.for_each_batch(&mut |batch| {
+        check_batch(path, schema, index, batch)?;
+        index += 1;
         for row in 0..batch.num_rows() {
             line.clear();
             for (i, column) in batch.columns().iter().enumerate() {
@@ -91,7 +98,8 @@ pub fn write_csv(path: &Path, schema: &SchemaRef, batches: &[RecordBatch]) -> Re
             out.write_all(line.as_bytes()).map_err(io)?;
         }
         rows += batch.num_rows() as u64;
-    }
+        Ok(())
+    })?;
     out.flush().map_err(io)?;
     drop(out);
     guard.commit()?;
@@ -132,35 +140,34 @@ pub(crate) fn unsupported_column(
     )
 }
 
-/// Checks that every batch has the columns of `schema`, in order and with the same types.
+/// Checks that batch number `b` has the columns of `schema`, in order and with the same types.
 ///
 /// Shared by the three writers of this folder.
-pub(crate) fn check_batches(
+pub(crate) fn check_batch(
     path: &Path,
     schema: &SchemaRef,
-    batches: &[RecordBatch],
+    b: usize,
+    batch: &RecordBatch,
 ) -> Result<()> {
     let fields = schema.fields();
-    for (b, batch) in batches.iter().enumerate() {
-        if batch.num_columns() != fields.len() {
-            return Err(Error::format(
-                path,
-                format!(
-                    "record batch {b} has {} columns, expected {} as in the schema",
-                    batch.num_columns(),
-                    fields.len()
-                ),
-            ));
-        }
-        for (field, column) in fields.iter().zip(batch.columns()) {
-            if column.data_type() != field.data_type() {
-                return Err(Error::ColumnType {
-                    path: path.to_path_buf(),
-                    column: field.name().clone(),
-                    expected: format!("{} as in the schema", field.data_type()),
-                    found: format!("{} in record batch {b}", column.data_type()),
-                });
-            }
+    if batch.num_columns() != fields.len() {
+        return Err(Error::format(
+            path,
+            format!(
+                "record batch {b} has {} columns, expected {} as in the schema",
+                batch.num_columns(),
+                fields.len()
+            ),
+        ));
+    }
+    for (field, column) in fields.iter().zip(batch.columns()) {
+        if column.data_type() != field.data_type() {
+            return Err(Error::ColumnType {
+                path: path.to_path_buf(),
+                column: field.name().clone(),
+                expected: format!("{} as in the schema", field.data_type()),
+                found: format!("{} in record batch {b}", column.data_type()),
+            });
         }
     }
     Ok(())

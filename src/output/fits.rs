@@ -73,7 +73,8 @@ use arrow::datatypes::{
 };
 
 use super::atomic::AtomicFile;
-use super::csv::{check_batches, is_exportable, text_at, unsupported_column};
+use super::batches::BatchSource;
+use super::csv::{check_batch, is_exportable, text_at, unsupported_column};
 use crate::error::{Error, Result};
 
 /// Size in bytes of a FITS block (FITS Standard 4.0, section 3.1).
@@ -108,16 +109,14 @@ const TZERO_U64: &str = "9223372036854775808";
 /// is not printable ASCII; [`Error::Format`] / [`Error::ColumnType`] when a
 /// batch does not match `schema`; [`Error::Io`] when the file cannot be
 /// written. On any error nothing is left under `path`.
-pub fn write_fits(
+pub fn write_fits<B: BatchSource + ?Sized>(
     path: &Path,
     schema: &SchemaRef,
-    batches: &[RecordBatch],
+    batches: &B,
     extname: &str,
     header_cards: &[(String, String)],
 ) -> Result<u64> {
-    check_batches(path, schema, batches)?;
-    let columns = plan_columns(path, schema, batches)?;
-    let rows: u64 = batches.iter().map(|b| b.num_rows() as u64).sum();
+    let (columns, rows) = plan_columns(path, schema, batches)?;
     let row_bytes: usize = columns.iter().map(|c| c.width).sum();
     let mut header = table_header(path, &columns, row_bytes, rows, extname)?;
     for (keyword, value) in header_cards {
@@ -135,11 +134,12 @@ pub fn write_fits(
     out.write_all(&header.finish()).map_err(io)?;
 
     let mut data_bytes = 0usize;
-    for batch in batches {
+    batches.for_each_batch(&mut |batch| {
         let buf = encode_rows(batch, &columns, row_bytes);
         out.write_all(&buf).map_err(io)?;
         data_bytes += buf.len();
-    }
+        Ok(())
+    })?;
     let pad = data_bytes.next_multiple_of(BLOCK_BYTES) - data_bytes;
     out.write_all(&vec![0u8; pad]).map_err(io)?;
     out.flush().map_err(io)?;
@@ -194,17 +194,23 @@ impl Column {
     }
 }
 
-/// Reads the batches once to choose each column's form, string width and `TNULLn`.
-fn plan_columns(path: &Path, schema: &SchemaRef, batches: &[RecordBatch]) -> Result<Vec<Column>> {
-    let mut columns = Vec::with_capacity(schema.fields().len());
-    for (i, field) in schema.fields().iter().enumerate() {
+/// Reads the batches to choose each column's form, string width and `TNULLn`
+/// (a second pass only when an integer column has nulls); returns the columns
+/// and the number of rows.
+fn plan_columns<B: BatchSource + ?Sized>(
+    path: &Path,
+    schema: &SchemaRef,
+    batches: &B,
+) -> Result<(Vec<Column>, u64)> {
+    let fields = schema.fields();
+    let mut kinds = Vec::with_capacity(fields.len());
+    for field in fields {
         let name = field.name();
         check_header_text(path, &format!("column \"{name}\": the name"), name)?;
-        let unit = field.metadata().get("unit").cloned();
-        if let Some(unit) = &unit {
+        if let Some(unit) = field.metadata().get("unit") {
             check_header_text(path, &format!("column \"{name}\": the unit"), unit)?;
         }
-        let kind = match field.data_type() {
+        kinds.push(match field.data_type() {
             DataType::Utf8 | DataType::LargeUtf8 => Kind::Text,
             DataType::Float64 => Kind::F64,
             DataType::Float32 => Kind::F32,
@@ -219,35 +225,62 @@ fn plan_columns(path: &Path, schema: &SchemaRef, batches: &[RecordBatch]) -> Res
                 debug_assert!(!is_exportable(other));
                 return Err(unsupported_column(path, name, other, "FITS"));
             }
-        };
-        let width = match kind {
-            Kind::Text => text_width(path, name, batches, i)?,
+        });
+    }
+    let mut widths: Vec<usize> = kinds
+        .iter()
+        .map(|kind| match kind {
+            Kind::Text => 1,
             Kind::F64 | Kind::I64 | Kind::U64 => 8,
             Kind::F32 | Kind::I32 | Kind::U32 => 4,
             Kind::I16 => 2,
             Kind::U8 | Kind::Bool => 1,
-        };
-        let has_nulls = batches.iter().any(|b| b.column(i).null_count() > 0);
-        let tnull = if has_nulls && is_integer(kind) {
-            Some(free_null_value(path, name, kind, batches, i)?)
-        } else {
-            None
-        };
-        let description = field
-            .metadata()
-            .get("description")
-            .filter(|d| d.bytes().all(|b| (0x20..=0x7e).contains(&b)))
-            .cloned();
-        columns.push(Column {
-            name: name.clone(),
-            kind,
-            width,
-            unit,
-            description,
-            tnull,
-        });
+        })
+        .collect();
+    let mut nulls = vec![0u64; fields.len()];
+    let mut rows = 0u64;
+    let mut index = 0usize;
+    batches.for_each_batch(&mut |batch| {
+        check_batch(path, schema, index, batch)?;
+        index += 1;
+        for (i, kind) in kinds.iter().enumerate() {
+            let column = batch.column(i);
+            nulls[i] += column.null_count() as u64;
+            if *kind == Kind::Text {
+                let width = text_width(path, fields[i].name(), column.as_ref(), rows)?;
+                widths[i] = widths[i].max(width);
+            }
+        }
+        rows += batch.num_rows() as u64;
+        Ok(())
+    })?;
+    let with_nulls: Vec<usize> = (0..fields.len())
+        .filter(|&i| nulls[i] > 0 && is_integer(kinds[i]))
+        .collect();
+    let mut tnulls: Vec<Option<i64>> = vec![None; fields.len()];
+    if !with_nulls.is_empty() {
+        let free = free_null_values(path, schema, &kinds, &with_nulls, rows, batches)?;
+        for (i, v) in with_nulls.into_iter().zip(free) {
+            tnulls[i] = Some(v);
+        }
     }
-    Ok(columns)
+    let columns = fields
+        .iter()
+        .enumerate()
+        .map(|(i, field)| Column {
+            name: field.name().clone(),
+            kind: kinds[i],
+            width: widths[i],
+            unit: field.metadata().get("unit").cloned(),
+            description: field
+                .metadata()
+                .get("description")
+                .filter(|d| d.bytes().all(|b| (0x20..=0x7e).contains(&b)))
+                .cloned(),
+            tnull: tnulls[i],
+        })
+        .collect();
+    Ok((columns, rows))
 }
 
 /// Whether `kind` is stored as an integer and so marks nulls with `TNULLn`.
@@ -258,29 +291,25 @@ fn is_integer(kind: Kind) -> bool {
     )
 }
 
-/// The longest text of column `i` in bytes (at least 1), checking that all of it is printable ASCII.
-fn text_width(path: &Path, name: &str, batches: &[RecordBatch], i: usize) -> Result<usize> {
+/// The longest text of one batch's text `column` in bytes (at least 1),
+/// checking that all of it is printable ASCII; `rows_before` is the number of
+/// rows in earlier batches, for the row number of an error.
+fn text_width(path: &Path, name: &str, column: &dyn Array, rows_before: u64) -> Result<usize> {
     let mut width = 1;
-    let mut row = 0u64;
-    for batch in batches {
-        let column = batch.column(i);
-        for r in 0..batch.num_rows() {
-            row += 1;
-            let Some(text) = text_at(column.as_ref(), r) else {
-                continue;
-            };
-            if !is_printable_ascii(text) {
-                return Err(Error::BadValue {
-                    path: path.to_path_buf(),
-                    row,
-                    column: name.to_string(),
-                    expected: "printable ASCII text (FITS Standard 4.0, section 7.3.3.1)"
-                        .to_string(),
-                    found: text.to_string(),
-                });
-            }
-            width = width.max(text.len());
+    for r in 0..column.len() {
+        let Some(text) = text_at(column, r) else {
+            continue;
+        };
+        if !is_printable_ascii(text) {
+            return Err(Error::BadValue {
+                path: path.to_path_buf(),
+                row: rows_before + r as u64 + 1,
+                column: name.to_string(),
+                expected: "printable ASCII text (FITS Standard 4.0, section 7.3.3.1)".to_string(),
+                found: text.to_string(),
+            });
         }
+        width = width.max(text.len());
     }
     Ok(width)
 }
@@ -308,57 +337,83 @@ fn stored_value(kind: Kind, v: i128) -> i64 {
     }
 }
 
-/// Chooses the stored value marking nulls in integer column `i`: for signed kinds
-/// the smallest value the column does not use, for unsigned kinds the largest.
-fn free_null_value(
+/// Chooses the stored value marking nulls in each integer column of
+/// `columns`: for signed kinds the smallest value the column does not use, for
+/// unsigned kinds the largest. One pass over the batches; only the used values
+/// within `rows` of the end of the range are kept, since the free value lies there.
+fn free_null_values<B: BatchSource + ?Sized>(
     path: &Path,
-    name: &str,
-    kind: Kind,
-    batches: &[RecordBatch],
-    i: usize,
-) -> Result<i64> {
-    let mut used: Vec<i128> = Vec::new();
-    for batch in batches {
-        let column = batch.column(i);
-        for r in (0..batch.num_rows()).filter(|&r| column.is_valid(r)) {
-            used.push(integer_at(column.as_ref(), kind, r));
-        }
-    }
-    used.sort_unstable();
-    used.dedup();
-    let (min, max) = value_range(kind);
-    let unsigned = matches!(kind, Kind::U8 | Kind::U64 | Kind::U32);
-    let free = if unsigned {
-        // Walk down from the maximum past the used values at the top.
-        let mut candidate = max;
-        for &v in used.iter().rev() {
-            if v == candidate {
-                candidate -= 1;
-            } else {
-                break;
+    schema: &SchemaRef,
+    kinds: &[Kind],
+    columns: &[usize],
+    rows: u64,
+    batches: &B,
+) -> Result<Vec<i64>> {
+    let window = i128::from(rows) + 1;
+    let mut used: Vec<Vec<i128>> = vec![Vec::new(); columns.len()];
+    batches.for_each_batch(&mut |batch| {
+        for (k, &i) in columns.iter().enumerate() {
+            let kind = kinds[i];
+            let (min, max) = value_range(kind);
+            let unsigned = matches!(kind, Kind::U8 | Kind::U64 | Kind::U32);
+            let column = batch.column(i);
+            for r in (0..batch.num_rows()).filter(|&r| column.is_valid(r)) {
+                let v = integer_at(column.as_ref(), kind, r);
+                let near_end = if unsigned {
+                    v > max - window
+                } else {
+                    v < min + window
+                };
+                if near_end {
+                    used[k].push(v);
+                }
             }
         }
-        (candidate >= min).then_some(candidate)
-    } else {
-        let mut candidate = min;
-        for &v in &used {
-            if v == candidate {
-                candidate += 1;
-            } else {
-                break;
-            }
-        }
-        (candidate <= max).then_some(candidate)
-    };
-    let free = free.ok_or_else(|| {
-        Error::format(
-            path,
-            format!(
-                "column \"{name}\" has nulls and uses every value of its type, so no value is free to mark them (TNULL)"
-            ),
-        )
+        Ok(())
     })?;
-    Ok(stored_value(kind, free))
+    columns
+        .iter()
+        .zip(used)
+        .map(|(&i, mut used)| {
+            let kind = kinds[i];
+            used.sort_unstable();
+            used.dedup();
+            let (min, max) = value_range(kind);
+            let unsigned = matches!(kind, Kind::U8 | Kind::U64 | Kind::U32);
+            let free = if unsigned {
+                // Walk down from the maximum past the used values at the top.
+                let mut candidate = max;
+                for &v in used.iter().rev() {
+                    if v == candidate {
+                        candidate -= 1;
+                    } else {
+                        break;
+                    }
+                }
+                (candidate >= min).then_some(candidate)
+            } else {
+                let mut candidate = min;
+                for &v in &used {
+                    if v == candidate {
+                        candidate += 1;
+                    } else {
+                        break;
+                    }
+                }
+                (candidate <= max).then_some(candidate)
+            };
+            let name = schema.field(i).name();
+            let free = free.ok_or_else(|| {
+                Error::format(
+                    path,
+                    format!(
+                        "column \"{name}\" has nulls and uses every value of its type, so no value is free to mark them (TNULL)"
+                    ),
+                )
+            })?;
+            Ok(stored_value(kind, free))
+        })
+        .collect()
 }
 
 /// Row `r` of an integer column, widened.
@@ -687,7 +742,63 @@ fn encode_cell(array: &dyn Array, c: &Column, r: usize, cell: &mut [u8]) {
 
 #[cfg(test)]
 mod tests {
+    use std::sync::Arc;
+
+    use arrow::array::{Int64Array, UInt8Array};
+    use arrow::datatypes::Field;
+
     use super::*;
+
+    /// The null markers `plan_columns` chooses for a signed and an unsigned
+    /// column whose values at the ends of their ranges are spread over batches.
+    #[test]
+    fn null_markers_skip_used_values_across_batches() {
+        let schema = Arc::new(arrow::datatypes::Schema::new(vec![
+            Field::new("s", DataType::Int64, true),
+            Field::new("u", DataType::UInt8, true),
+        ]));
+        let batch = |s: Vec<Option<i64>>, u: Vec<Option<u8>>| {
+            RecordBatch::try_new(
+                schema.clone(),
+                vec![Arc::new(Int64Array::from(s)), Arc::new(UInt8Array::from(u))],
+            )
+            .unwrap()
+        };
+        let batches = vec![
+            batch(vec![Some(i64::MIN + 1), None], vec![Some(255), Some(7)]),
+            batch(vec![Some(5), Some(i64::MIN)], vec![None, Some(254)]),
+        ];
+        let (columns, rows) = plan_columns(Path::new("t.fits"), &schema, &batches).unwrap();
+        assert_eq!(rows, 4);
+        assert_eq!(columns[0].tnull, Some(i64::MIN + 2));
+        // Unsigned bytes are stored as they are (no TZERO): 255 and 254 are used.
+        assert_eq!(columns[1].tnull, Some(253));
+    }
+
+    #[test]
+    fn a_column_using_every_value_of_its_type_has_no_null_marker() {
+        let schema = Arc::new(arrow::datatypes::Schema::new(vec![Field::new(
+            "u",
+            DataType::UInt8,
+            true,
+        )]));
+        let mut values: Vec<Option<u8>> = (0..=255).map(Some).collect();
+        values.push(None);
+        let (a, b) = values.split_at(100);
+        let batches: Vec<RecordBatch> = [a, b]
+            .iter()
+            .map(|v| {
+                RecordBatch::try_new(schema.clone(), vec![Arc::new(UInt8Array::from(v.to_vec()))])
+                    .unwrap()
+            })
+            .collect();
+        let e = plan_columns(Path::new("t.fits"), &schema, &batches).unwrap_err();
+        assert!(
+            e.to_string()
+                .contains("column \"u\" has nulls and uses every value of its type"),
+            "{e}"
+        );
+    }
 
     fn lines(cards: Cards) -> Vec<String> {
         cards

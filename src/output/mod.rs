@@ -2,6 +2,7 @@
 //! own description (band table, schema or plan) in key-value metadata.
 
 pub mod atomic;
+pub mod batches;
 pub mod csv;
 pub mod fits;
 pub mod journal;

@@ -57,7 +57,7 @@
 use std::io::Write;
 use std::path::Path;
 
-use arrow::array::{Array, AsArray, RecordBatch};
+use arrow::array::{Array, AsArray};
 use arrow::datatypes::{
     DataType, Float32Type, Float64Type, Int16Type, Int32Type, Int64Type, SchemaRef, UInt8Type,
     UInt32Type, UInt64Type,
@@ -66,7 +66,8 @@ use base64::Engine as _;
 use base64::engine::general_purpose::STANDARD as BASE64;
 
 use super::atomic::AtomicFile;
-use super::csv::{check_batches, is_exportable, text_at, unsupported_column};
+use super::batches::BatchSource;
+use super::csv::{check_batch, is_exportable, text_at, unsupported_column};
 use crate::error::{Error, Result};
 
 /// Raw bytes per base64 line: 57 bytes give 76 characters.
@@ -89,17 +90,15 @@ const LINE_BYTES: usize = 57;
 /// the Basic Multilingual Plane; [`Error::Format`] / [`Error::ColumnType`] when
 /// a batch does not match `schema`; [`Error::Io`] when the file cannot be
 /// written. On any error nothing is left under `path`.
-pub fn write_votable(
+pub fn write_votable<B: BatchSource + ?Sized>(
     path: &Path,
     schema: &SchemaRef,
-    batches: &[RecordBatch],
+    batches: &B,
     table_name: &str,
     description: &str,
     params: &[(String, String)],
 ) -> Result<u64> {
-    check_batches(path, schema, batches)?;
-    let columns = plan_columns(path, schema, batches)?;
-    let rows: u64 = batches.iter().map(|b| b.num_rows() as u64).sum();
+    let (columns, rows) = plan_columns(path, schema, batches)?;
     let head = document_head(path, &columns, rows, table_name, description, params)?;
 
     let (guard, mut out) = AtomicFile::create(path)?;
@@ -108,7 +107,7 @@ pub fn write_votable(
     let mut stream = Base64Lines::default();
     let mask_bytes = columns.len().div_ceil(8);
     let mut row_bytes = Vec::new();
-    for batch in batches {
+    batches.for_each_batch(&mut |batch| {
         for r in 0..batch.num_rows() {
             row_bytes.clear();
             row_bytes.resize(mask_bytes, 0);
@@ -124,7 +123,8 @@ pub fn write_votable(
                 stream.text.clear();
             }
         }
-    }
+        Ok(())
+    })?;
     stream.finish();
     out.write_all(stream.text.as_bytes()).map_err(io)?;
     out.write_all(DOCUMENT_TAIL.as_bytes()).map_err(io)?;
@@ -185,83 +185,94 @@ struct Column {
     description: Option<String>,
 }
 
-/// Reads the batches once to choose each column's datatype and check that every value fits it.
-fn plan_columns(path: &Path, schema: &SchemaRef, batches: &[RecordBatch]) -> Result<Vec<Column>> {
-    let mut columns = Vec::with_capacity(schema.fields().len());
-    for (i, field) in schema.fields().iter().enumerate() {
-        let name = field.name();
-        let bad_value = |row: u64, expected: &str, found: String| Error::BadValue {
-            path: path.to_path_buf(),
-            row,
-            column: name.clone(),
-            expected: expected.to_string(),
-            found,
-        };
-        let kind = match field.data_type() {
-            DataType::Utf8 | DataType::LargeUtf8 => {
-                let mut kind = Kind::Char;
-                for (row, text) in texts(batches, i) {
-                    if text.is_ascii() {
-                        continue;
-                    }
-                    kind = Kind::UnicodeChar;
-                    if let Some(c) = text.chars().find(|&c| u32::from(c) > 0xFFFF) {
-                        return Err(bad_value(
-                            row,
-                            "text in the Basic Multilingual Plane (VOTable 1.4 unicodeChar is UCS-2)",
-                            format!("{text} (character U+{:04X})", u32::from(c)),
-                        ));
-                    }
-                }
-                kind
-            }
+/// Reads the batches once to choose each column's datatype and check that every
+/// value fits it; returns the columns and the number of rows.
+fn plan_columns<B: BatchSource + ?Sized>(
+    path: &Path,
+    schema: &SchemaRef,
+    batches: &B,
+) -> Result<(Vec<Column>, u64)> {
+    let fields = schema.fields();
+    let mut kinds = Vec::with_capacity(fields.len());
+    for field in fields {
+        kinds.push(match field.data_type() {
+            DataType::Utf8 | DataType::LargeUtf8 => Kind::Char,
             DataType::Float64 => Kind::Double,
             DataType::Float32 => Kind::Float,
-            DataType::Int64 | DataType::UInt32 => Kind::Long,
-            DataType::UInt64 => {
-                let mut row = 0u64;
-                for batch in batches {
-                    let values = batch.column(i).as_primitive::<UInt64Type>();
-                    for r in 0..batch.num_rows() {
-                        row += 1;
-                        if values.is_valid(r) && i64::try_from(values.value(r)).is_err() {
-                            return Err(bad_value(
-                                row,
-                                "a value up to 9223372036854775807 (VOTable 1.4 has no unsigned 64-bit datatype)",
-                                values.value(r).to_string(),
-                            ));
-                        }
-                    }
-                }
-                Kind::Long
-            }
+            DataType::Int64 | DataType::UInt32 | DataType::UInt64 => Kind::Long,
             DataType::Int32 => Kind::Int,
             DataType::Int16 => Kind::Short,
             DataType::UInt8 => Kind::UnsignedByte,
             DataType::Boolean => Kind::Boolean,
             other => {
                 debug_assert!(!is_exportable(other));
-                return Err(unsupported_column(path, name, other, "VOTable"));
+                return Err(unsupported_column(path, field.name(), other, "VOTable"));
             }
-        };
-        columns.push(Column {
-            name: name.clone(),
+        });
+    }
+    let mut rows = 0u64;
+    let mut index = 0usize;
+    batches.for_each_batch(&mut |batch| {
+        check_batch(path, schema, index, batch)?;
+        index += 1;
+        for (i, field) in fields.iter().enumerate() {
+            let bad_value = |r: usize, expected: &str, found: String| Error::BadValue {
+                path: path.to_path_buf(),
+                row: rows + r as u64 + 1,
+                column: field.name().clone(),
+                expected: expected.to_string(),
+                found,
+            };
+            let column = batch.column(i);
+            match field.data_type() {
+                DataType::Utf8 | DataType::LargeUtf8 => {
+                    for r in 0..batch.num_rows() {
+                        let Some(text) = text_at(column.as_ref(), r) else {
+                            continue;
+                        };
+                        if text.is_ascii() {
+                            continue;
+                        }
+                        kinds[i] = Kind::UnicodeChar;
+                        if let Some(c) = text.chars().find(|&c| u32::from(c) > 0xFFFF) {
+                            return Err(bad_value(
+                                r,
+                                "text in the Basic Multilingual Plane (VOTable 1.4 unicodeChar is UCS-2)",
+                                format!("{text} (character U+{:04X})", u32::from(c)),
+                            ));
+                        }
+                    }
+                }
+                DataType::UInt64 => {
+                    let values = column.as_primitive::<UInt64Type>();
+                    for r in 0..batch.num_rows() {
+                        if values.is_valid(r) && i64::try_from(values.value(r)).is_err() {
+                            return Err(bad_value(
+                                r,
+                                "a value up to 9223372036854775807 (VOTable 1.4 has no unsigned 64-bit datatype)",
+                                values.value(r).to_string(),
+                            ));
+                        }
+                    }
+                }
+                _ => {}
+            }
+        }
+        rows += batch.num_rows() as u64;
+        Ok(())
+    })?;
+    let columns = fields
+        .iter()
+        .zip(kinds)
+        .map(|(field, kind)| Column {
+            name: field.name().clone(),
             kind,
             unit: field.metadata().get("unit").cloned(),
             ucd: field.metadata().get("ucd").cloned(),
             description: field.metadata().get("description").cloned(),
-        });
-    }
-    Ok(columns)
-}
-
-/// The non-null texts of text column `i` with their row numbers, counted from 1.
-fn texts(batches: &[RecordBatch], i: usize) -> impl Iterator<Item = (u64, &str)> {
-    batches
-        .iter()
-        .flat_map(move |b| (0..b.num_rows()).map(move |r| (b.column(i).as_ref(), r)))
-        .enumerate()
-        .filter_map(|(row, (column, r))| text_at(column, r).map(|t| (row as u64 + 1, t)))
+        })
+        .collect();
+    Ok((columns, rows))
 }
 
 /// The document up to and including `<STREAM encoding="base64">` and its line break.
