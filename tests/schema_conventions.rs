@@ -91,7 +91,7 @@ schema = "phot.toml"
 folder = "out"
 "#;
 
-fn build(dir: &Path) -> std::path::PathBuf {
+fn build(dir: &Path) -> (std::path::PathBuf, String) {
     for (name, body) in [
         ("det.csv", DETECTIONS),
         ("phot.csv", FORCED),
@@ -107,17 +107,18 @@ fn build(dir: &Path) -> std::path::PathBuf {
         .output()
         .unwrap();
     assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
-    out
+    (out, String::from_utf8_lossy(&o.stdout).into_owned())
 }
 
 #[test]
 fn saturated_values_and_forced_rows_reach_the_sed_tables_as_they_should() {
     let dir = tempfile::tempdir().unwrap();
-    let out = build(dir.path());
+    let (out, stdout) = build(dir.path());
     let objects = read_parquet(&out.join("objects.parquet"));
     let ids = text(&objects, "object_id");
     let row = |id: &str| ids.iter().position(|i| i == id).unwrap();
-    assert_eq!(ids.len(), 4, "{ids:?}");
+    // d1 (with p1), d2, d3 (with p3); p2 makes no object (below).
+    assert_eq!(ids.len(), 3, "{ids:?}");
 
     // d2 is saturated: its own status, no flux, no limit, not counted as detected.
     let status = text(&objects, "irac_36_status");
@@ -144,16 +145,16 @@ fn saturated_values_and_forced_rows_reach_the_sed_tables_as_they_should() {
     assert_eq!(mips[d1], "upper_limit");
     assert!((floats(&objects, "mips_24_ulim_jy")[d1].unwrap() - 0.002).abs() < 1e-15);
     assert_eq!(text(&objects, "phot_source_id")[d1], "p1");
-    // p2, forced with nothing detected under it, is flagged forced_only (bit 64).
-    let p2 = row("phot:p2");
+    // p2, forced with nothing detected under it, makes no object: no object
+    // holds it and no flag marks one (bit 64, once forced_only, is retired).
+    assert!(!ids.iter().any(|i| i == "phot:p2"), "{ids:?}");
+    assert!(!text(&objects, "phot_source_id").iter().any(|s| s == "p2"));
     let flags = objects
         .column_by_name("flags")
         .unwrap()
         .as_primitive::<arrow::datatypes::UInt32Type>();
-    assert_eq!(flags.value(p2) & 64, 64);
-    assert_eq!(text(&objects, "status")[p2], "single_catalog+forced_only");
-    assert_eq!(flags.value(d1) & 64, 0);
-    assert_eq!(flags.value(d3) & 64, 0);
+    assert!(flags.iter().all(|f| f.unwrap() & 64 == 0));
+    assert_eq!(text(&objects, "phot_source_id")[d3], "p3");
 
     // The photometry table: the saturated point has neither flux nor limit.
     let phot = read_parquet(&out.join("photometry.parquet"));
@@ -183,4 +184,15 @@ fn saturated_values_and_forced_rows_reach_the_sed_tables_as_they_should() {
         serde_json::from_str(&fs::read_to_string(out.join("run.json")).unwrap()).unwrap();
     let text = run.to_string();
     assert!(text.contains("\"saturated\":1"), "{text}");
+    // ... and the forced row left out, by catalog: never lost silently.
+    assert_eq!(
+        run["forced_without_counterpart"],
+        serde_json::json!({ "phot": 1 })
+    );
+    assert_eq!(run["matching"]["objects"], 3);
+    assert!(run["matching"]["flags"].get("forced_only").is_none());
+    assert!(
+        stdout.contains("forced rows without a counterpart (no object written): phot 1\n"),
+        "{stdout}"
+    );
 }

@@ -1055,6 +1055,17 @@ pub(crate) fn summary(
     }
     let flags: Vec<String> = m.flags.iter().map(|(k, v)| format!("{k} {v}")).collect();
     s.push_str(&format!("         flags:   {}\n", flags.join(", ")));
+    if !record.forced_without_counterpart.is_empty() {
+        let by: Vec<String> = record
+            .forced_without_counterpart
+            .iter()
+            .map(|(k, v)| format!("{k} {v}"))
+            .collect();
+        s.push_str(&format!(
+            "         forced rows without a counterpart (no object written): {}\n",
+            by.join(", ")
+        ));
+    }
     for o in &record.offsets {
         if let Some(i) = &o.initial {
             s.push_str(&format!(

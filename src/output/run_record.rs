@@ -74,6 +74,10 @@ pub struct RunRecord {
     pub inputs: Vec<InputRecord>,
     /// Match counts (timings left out).
     pub matching: MatchStats,
+    /// Per catalog whose schema marks forced-photometry rows (`[forced]`), the
+    /// rows left out because no row that is not forced is in their object:
+    /// forced rows never make an object alone.
+    pub forced_without_counterpart: BTreeMap<String, u64>,
     /// Astrometric offsets against the reference.
     pub offsets: Vec<CatalogOffset>,
     /// False-match estimates per catalog pair.
@@ -127,6 +131,16 @@ impl RunRecord {
                 .astrometric_reference
                 .map(|i| plan.catalogs[i].name.clone()),
             inputs,
+            forced_without_counterpart: plan
+                .catalogs
+                .iter()
+                .enumerate()
+                .filter(|(_, c)| c.schema.forced.is_some())
+                .map(|(k, c)| {
+                    let n = result.stats.forced_without_counterpart.get(k);
+                    (c.name.clone(), n.copied().unwrap_or(0) as u64)
+                })
+                .collect(),
             matching: result.stats.clone(),
             offsets,
             false_matches,
