@@ -14,10 +14,10 @@ use common::{floats, read_parquet, text};
 use fluxloom::science::sed_table::FieldSeds;
 
 const DETECTIONS: &str = "# invented detections; flags bit 2 or 3 = saturated
-id,ra,dec,f36,e36,flags
-d1,150.0000,10.0,2.0,0.1,0
-d2,150.0100,10.0,900.0,0.1,4
-d3,150.0200,10.0,3.0,0.1,1
+id,ra,dec,f36,e36,ks,e_ks,flags
+d1,150.0000,10.0,2.0,0.1,12.0,0.03,0
+d2,150.0100,10.0,900.0,0.1,5.0,0.01,4
+d3,150.0200,10.0,3.0,0.1,11.0,0.03,1
 ";
 
 /// Forced photometry at d1 and d3, and a forced row with nothing under it.
@@ -45,6 +45,13 @@ band = "irac_36"
 value = "f36"
 unit = "mJy"
 error = "e36"
+saturated = { column = "flags", mask = 0x0c }
+
+[[band]]
+band = "tmass_ks"
+value = "ks"
+unit = "vega_mag"
+error = "e_ks"
 saturated = { column = "flags", mask = 0x0c }
 "#;
 
@@ -89,6 +96,7 @@ schema = "phot.toml"
 
 [output]
 folder = "out"
+exports = ["csv", "fits", "votable"]
 "#;
 
 fn build(dir: &Path) -> (std::path::PathBuf, String) {
@@ -120,20 +128,36 @@ fn saturated_values_and_forced_rows_reach_the_sed_tables_as_they_should() {
     // d1 (with p1), d2, d3 (with p3); p2 makes no object (below).
     assert_eq!(ids.len(), 3, "{ids:?}");
 
-    // d2 is saturated: its own status, no flux, no limit, not counted as detected.
+    // d2 is saturated: its own status, no flux, no limit, not counted as detected;
+    // its value is a lower bound on the flux, in a column of its own: 900 mJy.
     let status = text(&objects, "irac_36_status");
-    let (flux, ulim) = (
+    let (flux, ulim, lower) = (
         floats(&objects, "irac_36_flux_jy"),
         floats(&objects, "irac_36_ulim_jy"),
+        floats(&objects, "irac_36_flux_lower_jy"),
     );
     let d2 = row("det:d2");
     assert_eq!(status[d2], "saturated");
     assert_eq!((flux[d2], ulim[d2]), (None, None));
+    assert_eq!(lower[d2], Some(0.9));
+    // Ks 5.0 saturated: at least 666.7 · 10^(−0.4 · 5) = 6.667 Jy (zero point of the
+    // band library, Cohen, Wheaton & Megeath 2003).
+    assert_eq!(text(&objects, "tmass_ks_status")[d2], "saturated");
+    assert_eq!(floats(&objects, "tmass_ks_flux_jy")[d2], None);
+    let ks_lower = floats(&objects, "tmass_ks_flux_lower_jy")[d2].unwrap();
+    assert!((ks_lower - 6.667).abs() < 1e-12, "{ks_lower}");
+    // No other point carries a lower bound, and no band without a saturation
+    // rule has the column.
+    for (k, v) in lower.iter().enumerate() {
+        assert_eq!(v.is_some(), k == d2, "{lower:?}");
+    }
+    assert!(objects.column_by_name("mips_24_flux_lower_jy").is_none());
     let n_detected = objects
         .column_by_name("n_detected")
         .unwrap()
         .as_primitive::<arrow::datatypes::UInt16Type>();
     assert_eq!(n_detected.value(d2), 0);
+    assert_eq!(n_detected.value(row("det:d3")), 3);
     // d3 keeps its detection (flags = 1 is not a saturation bit): 3 mJy.
     let d3 = row("det:d3");
     assert_eq!(status[d3], "detected");
@@ -170,6 +194,63 @@ fn saturated_values_and_forced_rows_reach_the_sed_tables_as_they_should() {
     assert_eq!(floats(&phot, "flux_jy")[k], None);
     assert_eq!(floats(&phot, "ulim_jy")[k], None);
     assert_eq!(floats(&phot, "nufnu_cgs")[k], None);
+    let plower = floats(&phot, "flux_lower_jy");
+    assert_eq!(plower[k], Some(0.9));
+    assert_eq!(plower.iter().filter(|v| v.is_some()).count(), 2);
+    assert!(floats(&phot, "flux_lower_mag").iter().all(Option::is_none));
+    let unit = |batch: &arrow::array::RecordBatch, name: &str| {
+        let schema = batch.schema();
+        let field = schema.field_with_name(name).unwrap();
+        field.metadata().get("unit").cloned()
+    };
+    assert_eq!(unit(&phot, "flux_lower_jy").as_deref(), Some("Jy"));
+    assert_eq!(
+        unit(&objects, "irac_36_flux_lower_jy").as_deref(),
+        Some("Jy")
+    );
+
+    // The exports carry the same column and value (read back by fluxloom's readers).
+    let csv = fluxloom::catalog::csv::read_csv(
+        &out.join("objects.csv"),
+        &fluxloom::catalog::schema::CsvOptions::default(),
+        1024,
+    )
+    .unwrap();
+    let fits = fluxloom::catalog::fits::read_fits(
+        &out.join("photometry.fits"),
+        &fluxloom::catalog::fits::FitsOptions {
+            hdu: None,
+            batch_rows: 1024,
+        },
+    )
+    .unwrap();
+    let vot = fluxloom::catalog::votable::read_votable(
+        &out.join("objects.vot"),
+        &fluxloom::catalog::votable::VotableOptions {
+            table_index: 0,
+            batch_rows: 1024,
+        },
+    )
+    .unwrap();
+    for (what, table, id_col, column) in [
+        ("objects.csv", csv, "object_id", "irac_36_flux_lower_jy"),
+        ("photometry.fits", fits, "object_id", "flux_lower_jy"),
+        ("objects.vot", vot, "object_id", "irac_36_flux_lower_jy"),
+    ] {
+        let schema = table.schema.clone();
+        let batch = arrow::compute::concat_batches(&schema, &table.collect_all().unwrap()).unwrap();
+        let ids = text(&batch, id_col);
+        let values = text(&batch, column);
+        let got: Vec<(&str, f64)> = ids
+            .iter()
+            .zip(&values)
+            .filter(|(_, v)| !v.is_empty() && v.as_str() != "NaN")
+            .map(|(i, v)| (i.as_str(), v.parse().unwrap()))
+            .collect();
+        assert!(got.contains(&("det:d2", 0.9)), "{what}: {got:?}");
+        let n_bounds = if what.starts_with("photometry") { 2 } else { 1 };
+        assert_eq!(got.len(), n_bounds, "{what}: {got:?}");
+    }
 
     // The science layer sees neither a detection nor a limit there.
     let seds = FieldSeds::read(&out).unwrap();
@@ -178,6 +259,10 @@ fn saturated_values_and_forced_rows_reach_the_sed_tables_as_they_should() {
     let value = seds.values[object][band];
     assert_eq!(value.detected_mag(&seds.bands[band]), None);
     assert_eq!(value.limit_mag(&seds.bands[band]), None);
+    // ... nor in Ks: the bound enters no fit.
+    let ks = seds.band_index("tmass_ks").unwrap();
+    assert_eq!(seds.values[object][ks].detected_mag(&seds.bands[ks]), None);
+    assert_eq!(seds.values[object][ks].limit_mag(&seds.bands[ks]), None);
 
     // run.json counts the saturated point by its status.
     let run: serde_json::Value =
