@@ -281,3 +281,36 @@ fn saturated_values_and_forced_rows_reach_the_sed_tables_as_they_should() {
         "{stdout}"
     );
 }
+
+#[test]
+fn forced_rows_left_out_are_counted_alike_within_a_memory_limit() {
+    // The same field matched a group of small cells at a time (a bounded build,
+    // which refuses exports and false-match estimates) writes the files of a
+    // build holding everything: the forced row left out is counted once.
+    let dir = tempfile::tempdir().unwrap();
+    build(dir.path());
+    let plan = PLAN
+        .replace("exports = [\"csv\", \"fits\", \"votable\"]\n", "")
+        .replace("[match]\n", "[match]\nfalse_matches = false\n");
+    fs::write(dir.path().join("plan.toml"), plan).unwrap();
+    let run = |out: &str, extra: &[&str]| {
+        let o = Command::new(env!("CARGO_BIN_EXE_fluxloom"))
+            .args(["build", dir.path().join("plan.toml").to_str().unwrap()])
+            .args(["--quiet", "--cell-order", "14", "--out"])
+            .arg(dir.path().join(out))
+            .args(extra)
+            .output()
+            .unwrap();
+        assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
+        dir.path().join(out)
+    };
+    let whole = run("whole", &[]);
+    let bounded = run("bounded", &["--memory-limit", "1G", "--group-rows", "2"]);
+    common::assert_same_files(&bounded, &whole, "bounded build");
+    let record: serde_json::Value =
+        serde_json::from_str(&fs::read_to_string(whole.join("run.json")).unwrap()).unwrap();
+    assert_eq!(
+        record["forced_without_counterpart"],
+        serde_json::json!({ "phot": 1 })
+    );
+}
