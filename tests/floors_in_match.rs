@@ -195,6 +195,18 @@ fn a_catalog_without_a_fixed_floor_is_matched_with_the_measured_one() {
         stdout.contains("floor used for anchor: 0.000\" not measured: the astrometric reference"),
         "{stdout}"
     );
+    // The audit shows the measurement beside the floor used.
+    let report: serde_json::Value =
+        serde_json::from_str(&fs::read_to_string(out.join("report.json")).unwrap()).unwrap();
+    let offset = &report["offsets"][0];
+    assert_eq!(offset["catalog"], "loose");
+    assert_eq!(offset["floor_used_arcsec"].as_f64(), Some(floor));
+    assert_eq!(offset["floor_origin"], "measured");
+    let html = fs::read_to_string(out.join("report.html")).unwrap();
+    assert!(
+        html.contains(&format!("{floor:.3} (measured)")),
+        "report.html"
+    );
 
     // The final match used it: the chosen pairs' normalized distances follow the
     // unit Rayleigh law, median 1.17741 within 4 of its relative standard errors
@@ -253,6 +265,8 @@ fn a_catalog_without_a_fixed_floor_is_matched_with_the_measured_one() {
         zero_run["match_settings"]["catalogs"][1]["systematic_arcsec"].as_f64(),
         Some(0.0)
     );
+    let zero_report = fs::read_to_string(zero_out.join("report.html")).unwrap();
+    assert!(zero_report.contains("0.000 (fixed)"), "report.html");
     assert!(
         zero_stdout.contains(&format!(
             "floor used for loose: 0.000\" fixed in the plan (measured {floor:.3}\" from {} pairs)",
