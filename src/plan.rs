@@ -286,7 +286,10 @@ impl Plan {
                 file: resolve(&rc.file),
                 schema,
                 settings: CatalogSettings {
+                    // Without a fixed floor, the floor measured against the
+                    // astrometric reference is used (0 when it cannot be measured).
                     systematic_arcsec: rc.systematic_arcsec.unwrap_or(0.0),
+                    floor_from_data: rc.systematic_arcsec.is_none(),
                     resolution_arcsec: rc.resolution_arcsec,
                     bands,
                 },

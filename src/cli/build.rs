@@ -22,7 +22,9 @@ use crate::crossmatch::density::footprint_order;
 use crate::crossmatch::engine::{MatchResult, MatchSetup};
 use crate::crossmatch::false_matches::{FalseMatchEstimate, estimate_false_matches};
 use crate::crossmatch::floors::{FAR_ABOVE_FACTOR, FloorEstimate, far_above_stated};
-use crate::crossmatch::systematics::{CatalogOffset, correct_offsets};
+use crate::crossmatch::systematics::{
+    CatalogOffset, FloorInForce, FloorOrigin, correct_offsets, floors_in_force, with_floors,
+};
 use crate::error::{Error, Result};
 use crate::output::batches::ParquetBatches;
 use crate::output::journal::Journal;
@@ -221,6 +223,8 @@ pub fn build_with(plan: &Plan, out_dir: &Path, run: RunOptions) -> Result<BuildO
         setup,
         ..
     } = &prepared;
+    // The settings in force: the measured floors in.
+    let matching = &prepared.matching;
     let (read, tables, setup) = (&read[..], &tables[..], setup);
     let offsets = offsets.clone();
     let bar = spinner("cross-matching", quiet);
@@ -238,7 +242,7 @@ pub fn build_with(plan: &Plan, out_dir: &Path, run: RunOptions) -> Result<BuildO
     )?;
     let record_cell = journal_recorder(&journal, run.pause_after_cells);
     let result = setup.run(
-        &matching,
+        matching,
         CellRun {
             subset: run.cells.clone(),
             finished: journal.finished()?,
@@ -250,7 +254,7 @@ pub fn build_with(plan: &Plan, out_dir: &Path, run: RunOptions) -> Result<BuildO
     clock.matching = started.elapsed().as_secs_f64() - clock.read;
     bar.set_message("estimating false matches");
     let false_matches: Vec<FalseMatchEstimate> = if plan.false_matches {
-        estimate_false_matches(matched_tables, &matching)?
+        estimate_false_matches(matched_tables, matching)?
     } else {
         Vec::new()
     };
@@ -684,6 +688,10 @@ pub struct Prepared {
     pub tables: Vec<SourceTable>,
     /// Offsets against the astrometric reference.
     pub offsets: Vec<CatalogOffset>,
+    /// The systematic floor of each catalog in the match.
+    pub floors: Vec<FloorInForce>,
+    /// The match settings in force: those given, with the floors of `floors`.
+    pub matching: crate::crossmatch::MatchConfig,
     /// The tables with offsets corrected, when a correction was made.
     pub corrected: Option<Vec<SourceTable>>,
     /// What every cell shares.
@@ -717,15 +725,23 @@ pub fn prepare(
         None => (Vec::new(), None),
     };
     bar.finish_and_clear();
+    // The floors are measured with the offsets, before the final match; the
+    // match, its density prior and Bayes factors (through the setup's sources)
+    // and the false-match estimate all use the same floors.
+    let names: Vec<String> = plan.catalogs.iter().map(|c| c.name.clone()).collect();
+    let floors = floors_in_force(&names, matching, plan.astrometric_reference, &offsets);
+    let matching = with_floors(matching, &floors);
     let setup = MatchSetup::new(
         corrected.as_deref().unwrap_or(&tables),
-        matching,
+        &matching,
         plan.area_sr,
     )?;
     Ok(Prepared {
         read,
         tables,
         offsets,
+        floors,
+        matching,
         corrected,
         setup,
     })
@@ -916,6 +932,28 @@ fn floor_lines(name: &str, reference: &str, f: &FloorEstimate) -> String {
     s
 }
 
+/// The summary line of the floor a catalog was matched with and its origin.
+fn floor_used_line(f: &FloorInForce) -> String {
+    let how = match (f.origin, f.measured_arcsec) {
+        (FloorOrigin::Fixed, Some(m)) => {
+            format!(
+                "fixed in the plan (measured {m:.3}\" from {} pairs)",
+                f.n_pairs
+            )
+        }
+        (FloorOrigin::Fixed, None) => "fixed in the plan".to_string(),
+        (FloorOrigin::Measured, _) => format!("measured from {} pairs", f.n_pairs),
+        (FloorOrigin::NotMeasured, _) => format!(
+            "not measured: {}",
+            f.note.as_deref().unwrap_or("no measurement")
+        ),
+    };
+    format!(
+        "         floor used for {}: {:.3}\" {how}\n",
+        f.name, f.floor_arcsec
+    )
+}
+
 /// Wall-clock seconds of a build's stages, for the summary.
 #[derive(Debug, Default)]
 struct PhaseClock {
@@ -1001,6 +1039,17 @@ pub(crate) fn summary(
     }
     let flags: Vec<String> = m.flags.iter().map(|(k, v)| format!("{k} {v}")).collect();
     s.push_str(&format!("         flags:   {}\n", flags.join(", ")));
+    if !record.forced_without_counterpart.is_empty() {
+        let by: Vec<String> = record
+            .forced_without_counterpart
+            .iter()
+            .map(|(k, v)| format!("{k} {v}"))
+            .collect();
+        s.push_str(&format!(
+            "         forced rows without a counterpart (no object written): {}\n",
+            by.join(", ")
+        ));
+    }
     for o in &record.offsets {
         if let Some(i) = &o.initial {
             s.push_str(&format!(
@@ -1021,6 +1070,9 @@ pub(crate) fn summary(
                 f,
             ));
         }
+    }
+    for f in &record.floors {
+        s.push_str(&floor_used_line(f));
     }
     for f in &record.false_matches {
         s.push_str(&format!(

@@ -57,7 +57,9 @@ pub fn run_cells(args: &CellsArgs, quiet: bool) -> Result<()> {
     }
     let prepared = prepare(&plan, &matching, quiet)?;
     let setup = &prepared.setup;
-    let influence = CellContext::influence_radius_arcsec(&matching, &setup.epochs);
+    // The settings in force: the floors measured against the reference in.
+    let matching = &prepared.matching;
+    let influence = CellContext::influence_radius_arcsec(matching, &setup.epochs);
     let margin_arcsec = first_margin_arcsec(influence) * 2f64.powi(i32::from(args.widen));
     std::fs::create_dir_all(&args.out).map_err(|e| Error::io(&args.out, e))?;
     let order = matching.partition_order;
@@ -76,6 +78,11 @@ pub fn run_cells(args: &CellsArgs, quiet: bool) -> Result<()> {
             id: cell.id,
             margin_arcsec,
             ln_density_per_sr: setup.ln_density_per_sr.clone(),
+            systematic_arcsec: matching
+                .catalogs
+                .iter()
+                .map(|c| c.systematic_arcsec)
+                .collect(),
             epochs: setup.epochs.clone(),
             sources,
             core,
@@ -121,7 +128,7 @@ pub fn run_worker(args: &WorkerArgs) -> Result<()> {
 /// # Errors
 /// As [`run_worker`].
 pub fn match_one(plan: &Plan, input: &CellInput) -> Result<crate::crossmatch::cells::CellOutput> {
-    let config = &plan.matching;
+    let mut config = plan.matching.clone();
     if input.ln_density_per_sr.len() != config.catalogs.len() {
         return Err(Error::Usage(format!(
             "the cell holds {} catalogs but the plan {} names {}",
@@ -130,6 +137,11 @@ pub fn match_one(plan: &Plan, input: &CellInput) -> Result<crate::crossmatch::ce
             config.catalogs.len()
         )));
     }
+    // The floors the cells were written with (measured ones included).
+    for (c, &f) in config.catalogs.iter_mut().zip(&input.systematic_arcsec) {
+        c.systematic_arcsec = f;
+    }
+    let config = &config;
     let ctx = CellContext {
         config,
         ln_density_per_sr: &input.ln_density_per_sr,

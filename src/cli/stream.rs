@@ -566,6 +566,18 @@ fn absorb(total: &mut MatchStats, part: &MatchStats, level: usize) {
     total.approximate_groups += part.approximate_groups;
     total.objects += part.objects;
     total.objects_not_primary += part.objects_not_primary;
+    if total.forced_without_counterpart.len() < part.forced_without_counterpart.len() {
+        total
+            .forced_without_counterpart
+            .resize(part.forced_without_counterpart.len(), 0);
+    }
+    for (t, p) in total
+        .forced_without_counterpart
+        .iter_mut()
+        .zip(&part.forced_without_counterpart)
+    {
+        *t += p;
+    }
     total.cells.resumed += part.cells.resumed;
     for (k, v) in &part.objects_by_members {
         *total.objects_by_members.entry(*k).or_insert(0) += v;

@@ -14,7 +14,8 @@
 //! source's value in that band of its catalog) when blends read them. The schema's metadata
 //! carries what every cell shares: the cell (`fluxloom.cell.order`,
 //! `fluxloom.cell.id`, `fluxloom.cell.margin_arcsec`), the catalogs' ln
-//! densities and the epoch statistics. Numbers in metadata are written with
+//! densities, the systematic floor each catalog is matched with
+//! (`fluxloom.systematic_arcsec`, measured ones included) and the epoch statistics. Numbers in metadata are written with
 //! Rust's shortest round-trip form, so they read back bit for bit.
 //!
 //! **Output** (two streams, one after the other): the objects (`members`,
@@ -60,6 +61,9 @@ pub struct CellInput {
     pub margin_arcsec: f64,
     /// ln of each catalog's density, sources per steradian (whole input).
     pub ln_density_per_sr: Vec<f64>,
+    /// Each catalog's systematic floor in the match, arcsec (the plan's, or
+    /// the one measured against the astrometric reference).
+    pub systematic_arcsec: Vec<f64>,
     /// Epoch statistics of the whole input.
     pub epochs: EpochStats,
     /// The sources the cell holds, rank order.
@@ -144,6 +148,10 @@ pub fn input_batch(input: &CellInput) -> Result<RecordBatch> {
         (
             "fluxloom.ln_density_per_sr",
             f64_list(&input.ln_density_per_sr),
+        ),
+        (
+            "fluxloom.systematic_arcsec",
+            f64_list(&input.systematic_arcsec),
         ),
         ("fluxloom.epochs.no_motion", no_motion.join(",")),
         (
@@ -364,6 +372,16 @@ pub fn input_from_batch(batch: &RecordBatch, origin: &Path) -> Result<CellInput>
             ),
         ));
     }
+    let systematic_arcsec = c.meta_floats("fluxloom.systematic_arcsec")?;
+    if systematic_arcsec.len() != ncat {
+        return Err(Error::format(
+            origin,
+            format!(
+                "the cell stream gives densities of {ncat} catalogs but floors of {}",
+                systematic_arcsec.len()
+            ),
+        ));
+    }
     let epochs = EpochStats {
         no_motion_epochs,
         max_abs_dt_yr: c.meta_value("fluxloom.epochs.max_abs_dt_yr")?,
@@ -456,6 +474,7 @@ pub fn input_from_batch(batch: &RecordBatch, origin: &Path) -> Result<CellInput>
         id: c.meta_value("fluxloom.cell.id")?,
         margin_arcsec: c.meta_value("fluxloom.cell.margin_arcsec")?,
         ln_density_per_sr,
+        systematic_arcsec,
         epochs,
         sources,
         core,
@@ -751,6 +770,7 @@ mod tests {
                 id: 5,
                 margin_arcsec: 10.0,
                 ln_density_per_sr: vec![20.0],
+                systematic_arcsec: vec![0.25],
                 epochs: EpochStats::of(&sources, 2016.0),
                 core: vec![true; sources.len()],
                 ranks: (0..sources.len() as u32).collect(),
@@ -760,6 +780,7 @@ mod tests {
         let plain = input_batch(&input(&t)).unwrap();
         assert!(plain.column_by_name("forced").is_none());
         let back = input_from_batch(&plain, Path::new("cell")).unwrap();
+        assert_eq!(back.systematic_arcsec, [0.25]);
         assert!(back.sources.forced.is_empty());
         t.forced = vec![false, true];
         let marked = input_batch(&input(&t)).unwrap();

@@ -213,6 +213,9 @@ pub fn match_cell(
     let mut out = CellOutput::default();
     // The anchor (local) of the object each source of a needed group ended in.
     let mut anchor_of = vec![u32::MAX; n];
+    // Whether each source anchors an object of forced rows alone, which is
+    // never written: no other object names it as related.
+    let mut anchors_forced_alone = vec![false; if sources.forced.is_empty() { 0 } else { n }];
     for &g in &needed {
         let members = &groups[g as usize];
         let cands = &by_group[start[g as usize]..start[g as usize + 1]];
@@ -227,6 +230,9 @@ pub fn match_cell(
         for o in resolved {
             for &m in &o.members {
                 anchor_of[m as usize] = o.members[0];
+            }
+            if o.flags & flags::FORCED_ONLY != 0 {
+                anchors_forced_alone[o.members[0] as usize] = true;
             }
             if core[o.members[0] as usize] {
                 out.objects.push(o);
@@ -295,6 +301,9 @@ pub fn match_cell(
                     o.covered_by.push(b.source);
                 }
             }
+        }
+        if !anchors_forced_alone.is_empty() {
+            o.related.retain(|&r| !anchors_forced_alone[r as usize]);
         }
         for r in o
             .members

@@ -4,8 +4,10 @@
 //! - tolerance: `Sigma { k: 3.439, max_arcsec: 5.0 }` — 3.439 sigma of the combined
 //!   per-axis error encloses 99.73 % of true matches for circular Gaussian errors
 //!   (Rayleigh distribution, r_P = σ·sqrt(−2 ln(1−P)); standard), capped at 5″;
-//! - systematic floor per catalog: 0″ (set it for catalogs whose quoted errors omit
-//!   frame-tie or calibration errors);
+//! - systematic floor per catalog: 0″ unless [`CatalogSettings::floor_from_data`]
+//!   asks for the floor measured against an astrometric reference
+//!   ([`super::systematics::floors_in_force`]); a plan asks for it for every
+//!   catalog whose entry fixes no `systematic_arcsec`;
 //! - prior: the density of objects common to a set of catalogs is `common_fraction`
 //!   (default 1) times the density of the sparsest of them, i.e. by default every
 //!   source of the sparsest catalog is assumed to have counterparts in the others;
@@ -83,8 +85,12 @@ impl Default for Tolerance {
 #[derive(Debug, Clone, PartialEq, Default, serde::Serialize)]
 pub struct CatalogSettings {
     /// Systematic positional error floor added in quadrature to each source's error
-    /// on both axes, arcsec.
+    /// on both axes, arcsec: the floor the match uses.
     pub systematic_arcsec: f64,
+    /// True when no floor is fixed for the catalog: the floor measured against
+    /// the astrometric reference replaces `systematic_arcsec` before the final
+    /// match, when it can be measured ([`super::systematics::floors_in_force`]).
+    pub floor_from_data: bool,
     /// Angular resolution (PSF FWHM), arcsec. A source of a catalog with a larger
     /// resolution than another's is "coarser"; it is needed to recognize blends.
     pub resolution_arcsec: Option<f64>,

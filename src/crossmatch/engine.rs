@@ -4,7 +4,10 @@
 //! catalog densities, finds candidate pairs per sky cell, joins them into
 //! connected groups, resolves every group on its own (in parallel), and assembles
 //! objects with positions, members, probabilities and flags, plus every candidate
-//! as a link.
+//! as a link. Objects of forced-photometry rows alone are left out, their rows
+//! counted per catalog ([`MatchStats::forced_without_counterpart`]); their
+//! candidate pairs stay links, naming the unwritten object by its anchor, as
+//! links of objects left out by the primary-catalog rule do.
 //!
 //! Object identifiers: an object's `object_id` is `<catalog>:<source_id>` of its
 //! anchor, the member from the earliest catalog in input order (ties within a
@@ -211,6 +214,12 @@ pub struct MatchStats {
     pub objects: usize,
     /// Objects left out by the primary-catalog rule.
     pub objects_not_primary: usize,
+    /// Per catalog, forced-photometry rows left out because they ended in an
+    /// object of forced rows alone (no counterpart that is not forced); empty
+    /// when no source is a forced row. Not serialized here: run.json gives it
+    /// by catalog name.
+    #[serde(skip)]
+    pub forced_without_counterpart: Vec<usize>,
     /// Objects per number of members.
     pub objects_by_members: BTreeMap<usize, usize>,
     /// Objects per flag name.
@@ -598,6 +607,21 @@ fn assemble(ctx: &Context, cells: CellOutput) -> MatchResult {
             }
         })
         .collect();
+    // Forced rows join objects at their positions but never make one alone: a
+    // group of forced rows alone is not written, its rows are counted.
+    if !sources.forced.is_empty() {
+        let mut left_out = vec![0usize; sources.catalog_start.len().saturating_sub(1)];
+        objects.retain(|o| {
+            let alone = o.flags & flags::FORCED_ONLY != 0;
+            if alone {
+                for m in &o.members {
+                    left_out[m.catalog] += 1;
+                }
+            }
+            !alone
+        });
+        stats.forced_without_counterpart = left_out;
+    }
     if !config.primary.is_empty() {
         let before = objects.len();
         objects.retain(|o| {

@@ -8,7 +8,7 @@
 //! | 3 | 8 | `low_probability` | the posterior probability of the object's association is below the configured minimum |
 //! | 4 | 16 | `single_catalog` | only one catalog saw this object |
 //! | 5 | 32 | `approximate` | the object's group was too large for the exact search and was resolved greedily |
-//! | 6 | 64 | `forced_only` | every member was measured by forced photometry (a survey schema's `[forced]` rows): no catalog detected it on its own |
+//! | 6 | 64 | (retired) | once `forced_only`; no written object carries it: a group of forced-photometry rows alone (a survey schema's `[forced]` rows) is not written, its rows are counted instead (see [`FORCED_ONLY`]) |
 //! | 7 | 128 | `moving` | one star moving across the sky, seen at two or more epochs by catalogs without proper motions; its fitted motion is in `pm_fit_*` |
 //! | 8 | 256 | `contaminated` | a member is a coarse source over this object and fainter ones whose estimated share of its flux is below the threshold: the flux is kept, with that share in `contamination_share` |
 //!
@@ -29,6 +29,9 @@ pub const SINGLE_CATALOG: u32 = 16;
 /// Resolved by the greedy fallback rather than the exact search.
 pub const APPROXIMATE: u32 = 32;
 /// Every member comes from forced photometry: no detection founds the object.
+/// Internal: the cell kernel marks such objects with it and the assembly
+/// leaves them out ([`super::engine`]), so no written object carries the bit,
+/// and it is not in [`ALL`], the written legend. The bit is retired, not reused.
 pub const FORCED_ONLY: u32 = 64;
 /// One moving star: its members are at their own epochs on a fitted linear track.
 pub const MOVING: u32 = 128;
@@ -36,15 +39,15 @@ pub const MOVING: u32 = 128;
 /// share threshold: its flux is kept, contaminated by that share.
 pub const CONTAMINATED: u32 = 256;
 
-/// Every flag with its name, in bit order.
-pub const ALL: [(u32, &str); 9] = [
+/// Every flag a written object can carry, with its name, in bit order (bit 6,
+/// [`FORCED_ONLY`], is retired).
+pub const ALL: [(u32, &str); 8] = [
     (AMBIGUOUS, "ambiguous"),
     (BLEND, "blend"),
     (HAS_BLEND, "has_blend"),
     (LOW_PROBABILITY, "low_probability"),
     (SINGLE_CATALOG, "single_catalog"),
     (APPROXIMATE, "approximate"),
-    (FORCED_ONLY, "forced_only"),
     (MOVING, "moving"),
     (CONTAMINATED, "contaminated"),
 ];
@@ -76,10 +79,6 @@ mod tests {
             "ambiguous+low_probability"
         );
         assert_eq!(status(BLEND | SINGLE_CATALOG), "blend+single_catalog");
-        assert_eq!(
-            status(SINGLE_CATALOG | FORCED_ONLY),
-            "single_catalog+forced_only"
-        );
         assert_eq!(status(MOVING), "moving");
         assert_eq!(status(MOVING | LOW_PROBABILITY), "low_probability+moving");
         assert_eq!(status(CONTAMINATED), "contaminated");
@@ -91,6 +90,9 @@ mod tests {
             assert_eq!(acc & b, 0);
             acc | b
         });
-        assert_eq!(all, 511);
+        // Bit 6 (64) is retired: in no legend, and no other flag took it.
+        assert_eq!(all, 511 - 64);
+        assert_eq!(FORCED_ONLY, 64);
+        assert_eq!((MOVING, CONTAMINATED), (128, 256));
     }
 }

@@ -216,6 +216,75 @@ mod tests {
         assert!(!far_above_stated(&est));
     }
 
+    /// Standard error of a recovered floor: the sample median of a unit Rayleigh law
+    /// has relative standard error 0.7214 / √N (1 / (2 f(m) m), f(m) = m e^(−m²/2) at
+    /// m = √(2 ln 2); standard asymptotics of sample quantiles), the median scales with
+    /// σ_tot = sqrt(σ² + σ_sys²), and dσ_sys = (σ_tot² / σ_sys) · dm/m.
+    fn floor_standard_error(stated: f64, floor: f64, n: usize) -> f64 {
+        (stated * stated + floor * floor) / floor * 0.7214 / (n as f64).sqrt()
+    }
+
+    #[test]
+    fn recovers_floors_within_their_sampling_error_at_every_size() {
+        // Stated σ and true floors of several sizes, from 50 to 20,000 pairs; each
+        // recovered floor lies within 4 standard errors of the injected one.
+        for (k, &(stated, floor, n)) in [
+            (0.1f64, 0.2f64, 50usize),
+            (0.1, 0.2, 400),
+            (0.1, 0.05, 5_000),
+            (0.3, 0.15, 2_000),
+            (0.05, 0.5, 1_000),
+            (0.1, 0.2, 20_000),
+        ]
+        .iter()
+        .enumerate()
+        {
+            let mut rng = Rng::new(100 + k as u64, "floors-sizes");
+            let total = stated.hypot(floor);
+            let (sep, sigma) = rayleigh_pairs(&mut rng, n, |_| (stated, total));
+            let est = estimate_floor(&sep, &sigma).unwrap();
+            let se = floor_standard_error(stated, floor, n);
+            println!(
+                "stated {stated} floor {floor} N {n}: recovered {:.4} (standard error {se:.4})",
+                est.floor_arcsec
+            );
+            assert!(
+                (est.floor_arcsec - floor).abs() <= 4.0 * se,
+                "N {n}: {est:?}, standard error {se}"
+            );
+        }
+    }
+
+    #[test]
+    fn the_spread_of_recovered_floors_is_the_predicted_sampling_error() {
+        // 400 fields of 400 pairs each, stated 0.1″, floor 0.2″: the predicted standard
+        // error is 0.25 / 0.2 · 0.7214 / 20 = 0.0451 · 0.2″ = 0.00902″ (by hand). The
+        // sample standard deviation of 400 estimates has a relative standard error of
+        // 1/√(2 · 400) = 3.5 % (normal theory), so it lies within 15 % of the
+        // prediction; the mean lies within 4 standard errors of the mean (0.00902/20)
+        // of the truth (the bias of the square root is 4e-5″, second order).
+        let (stated, floor, n, fields) = (0.1, 0.2, 400, 400);
+        let total = f64::hypot(stated, floor);
+        let mut rng = Rng::new(21, "floors-spread");
+        let estimates: Vec<f64> = (0..fields)
+            .map(|_| {
+                let (sep, sigma) = rayleigh_pairs(&mut rng, n, |_| (stated, total));
+                estimate_floor(&sep, &sigma).unwrap().floor_arcsec
+            })
+            .collect();
+        let mean = estimates.iter().sum::<f64>() / fields as f64;
+        let sd = (estimates.iter().map(|e| (e - mean).powi(2)).sum::<f64>() / (fields - 1) as f64)
+            .sqrt();
+        let se = floor_standard_error(stated, floor, n);
+        println!("mean {mean:.5} sd {sd:.5} predicted {se:.5}");
+        assert!((se - 0.009_02).abs() < 1e-5, "{se}");
+        assert!((sd / se - 1.0).abs() < 0.15, "sd {sd} vs predicted {se}");
+        assert!(
+            (mean - floor).abs() < 4.0 * se / (fields as f64).sqrt(),
+            "mean {mean}"
+        );
+    }
+
     #[test]
     fn recovers_a_floor_with_varying_stated_errors() {
         // Stated σ uniform in [0.05, 0.15]″, true extra floor 0.2″: each d_k is Rayleigh(1)

@@ -21,9 +21,10 @@
 //! Afterwards each object gets member probabilities p_i = σ(score(O) − score(O∖i))
 //! (σ the logistic function; for two sources this is the pair's posterior), and
 //! flags: see [`super::flags`]. An object whose members were all measured by
-//! forced photometry ([`super::prepare::Sources::is_forced`]) is flagged
-//! `forced_only`: such measurements confirm objects that others detect and
-//! found none alone. Blends are found before resolution, in
+//! forced photometry ([`super::prepare::Sources::is_forced`]) is marked
+//! [`flags::FORCED_ONLY`]: such measurements confirm objects that others detect
+//! and found none alone, so the assembly leaves it out and counts its rows
+//! ([`super::engine`]). Blends are found before resolution, in
 //! [`super::blends`].
 //!
 //! Moving objects: B(O) is the mixture of a stationary and a moving component
@@ -477,7 +478,7 @@ pub fn resolve_group(
 ) -> Vec<ResolvedObject> {
     let mut out = resolve_split(ctx, members, candidates);
     // A forced-photometry measurement confirms an object others found; an
-    // object of forced measurements alone is flagged, not taken as found.
+    // object of forced measurements alone is marked, and never written.
     if !ctx.sources.forced.is_empty() {
         for o in &mut out {
             if o.members.iter().all(|&r| ctx.sources.is_forced(r as usize)) {
@@ -762,17 +763,16 @@ mod tests {
     }
 
     #[test]
-    fn an_object_of_forced_measurements_alone_is_flagged() {
-        let mut detections = SourceTable {
-            name: "det".into(),
+    fn forced_measurements_never_make_an_object_alone() {
+        let table = |name: &str| SourceTable {
+            name: name.into(),
             ..SourceTable::default()
         };
-        let mut photometry = SourceTable {
-            name: "phot".into(),
-            ..SourceTable::default()
-        };
+        let (mut detections, mut photometry, mut second) =
+            (table("det"), table("phot"), table("phot2"));
         // A detection with a forced measurement 0.05" east of it; a forced
-        // measurement 1' away with nothing near; an unforced source 2' away.
+        // measurement 1' away with only another catalog's forced measurement
+        // near it; an unforced source 2' away.
         let dec0: f64 = 10.0;
         let ra = |east_arcsec: f64| 150.0 + east_arcsec / 3600.0 / dec0.to_radians().cos();
         detections.push_simple("d1", ra(0.0), dec0, 2016.0, 0.1);
@@ -780,27 +780,36 @@ mod tests {
         photometry.push_simple("p2", ra(60.0), dec0, 2016.0, 0.1);
         photometry.push_simple("p3", ra(120.0), dec0, 2016.0, 0.1);
         photometry.forced = vec![true, true, false];
-        let tables = [detections, photometry];
-        let result = run_match(&tables, &MatchConfig::new(2, 2016.0)).unwrap();
+        second.push_simple("q2", ra(60.03), dec0, 2016.0, 0.1);
+        second.forced = vec![true];
+        let tables = [detections, photometry, second];
+        let result = run_match(&tables, &MatchConfig::new(3, 2016.0)).unwrap();
         let by_id: HashMap<String, u32> = result
             .objects
             .iter()
             .map(|o| (o.object_id(&tables), o.flags))
             .collect();
-        assert_eq!(by_id.len(), 3, "{by_id:?}");
+        // p2 and q2 are one object of forced rows alone: not written, counted.
+        assert_eq!(by_id.len(), 2, "{by_id:?}");
         assert_eq!(by_id["det:d1"], 0);
-        assert_eq!(by_id["phot:p2"], flags::SINGLE_CATALOG | flags::FORCED_ONLY);
         assert_eq!(by_id["phot:p3"], flags::SINGLE_CATALOG);
-        assert_eq!(result.stats.flags.get("forced_only"), Some(&1));
-        // Without forced rows nothing is flagged so.
+        assert_eq!(result.stats.forced_without_counterpart, [0, 1, 1]);
+        assert_eq!(result.stats.objects, 2);
+        assert!(!result.stats.flags.contains_key("forced_only"));
+        // Their candidate pair stays a link, chosen, naming the unwritten object.
+        let link = result
+            .links
+            .iter()
+            .find(|l| l.catalog_a == 1 && l.catalog_b == 2)
+            .unwrap();
+        assert!(link.chosen);
+        assert_eq!(link.object_a.object_id(&tables), "phot:p2");
+        // Without forced rows every group is an object.
         let mut plain = tables.clone();
         plain[1].forced.clear();
-        let result = run_match(&plain, &MatchConfig::new(2, 2016.0)).unwrap();
-        assert!(
-            result
-                .objects
-                .iter()
-                .all(|o| o.flags & flags::FORCED_ONLY == 0)
-        );
+        plain[2].forced.clear();
+        let result = run_match(&plain, &MatchConfig::new(3, 2016.0)).unwrap();
+        assert_eq!(result.objects.len(), 3);
+        assert!(result.stats.forced_without_counterpart.is_empty());
     }
 }

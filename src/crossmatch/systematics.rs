@@ -14,14 +14,16 @@
 //!
 //! The same pairs give each catalog's systematic floor ([`super::floors`]): the
 //! per-axis σ_sys that brings the median normalised separation to the Rayleigh
-//! median, from the stated errors without any configured floor. It is reported
-//! only; the match keeps the configured floors.
+//! median, from the stated errors without any configured floor. A catalog
+//! whose settings ask for it ([`CatalogSettings::floor_from_data`]) gets the
+//! measured floor in the final match ([`floors_in_force`]); a fixed floor is
+//! kept, and the measurement only reported beside it.
 
 use serde::Serialize;
 
 use super::bayes::circularized_sigma_arcsec;
 use super::candidates::find_candidates;
-use super::config::{MatchConfig, Tolerance};
+use super::config::{CatalogSettings, MatchConfig, Tolerance};
 use super::engine::{MatchResult, run_match_with_area};
 use super::floors::{FloorEstimate, estimate_floor};
 use super::input::SourceTable;
@@ -35,6 +37,12 @@ use crate::sky::separation::tangent_offsets_arcsec;
 pub const MIN_PAIRS: usize = 3;
 /// Most match passes with correction.
 pub const MAX_PASSES: usize = 5;
+/// Fewest unique pairs for a measured floor to be used in the match. The
+/// sample median of the normalised separations has a relative standard error
+/// of 0.7214 / √N (standard asymptotics of sample quantiles for the Rayleigh
+/// law), 13 % at 30 pairs; fewer pairs leave the floor mostly noise. The
+/// threshold is a judgement (common practice is "a few tens of pairs").
+pub const MIN_FLOOR_PAIRS: usize = 30;
 
 /// Per catalog (indexed by catalog, `None` for the reference and for catalogs
 /// without pairs): the offsets and the systematic floors of [`measure_offsets`].
@@ -145,6 +153,135 @@ pub fn measure_offsets(
     Ok((offsets, floors))
 }
 
+/// Where the floor a catalog is matched with comes from.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+#[serde(rename_all = "snake_case")]
+pub enum FloorOrigin {
+    /// Fixed in the settings (a plan's `systematic_arcsec`).
+    Fixed,
+    /// Measured against the astrometric reference.
+    Measured,
+    /// Neither fixed nor measurable: the floor is 0.
+    NotMeasured,
+}
+
+impl FloorOrigin {
+    /// The name used in run.json.
+    pub fn as_str(self) -> &'static str {
+        match self {
+            FloorOrigin::Fixed => "fixed",
+            FloorOrigin::Measured => "measured",
+            FloorOrigin::NotMeasured => "not_measured",
+        }
+    }
+}
+
+/// The systematic floor a catalog is matched with, and where it comes from.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct FloorInForce {
+    /// Catalog index.
+    pub catalog: usize,
+    /// Catalog name.
+    pub name: String,
+    /// The per-axis floor the final match uses, arcsec.
+    pub floor_arcsec: f64,
+    /// Fixed, measured, or neither (then 0).
+    pub origin: FloorOrigin,
+    /// The catalog's own floor from the measurement against the reference,
+    /// arcsec, when there was one (with a fixed floor too, so that a
+    /// disagreement shows); null otherwise.
+    pub measured_arcsec: Option<f64>,
+    /// Unique pairs with the reference the measurement used (0 without one).
+    pub n_pairs: usize,
+    /// Why a floor the settings left open was not measured, or was measured but
+    /// not used; null otherwise.
+    pub note: Option<String>,
+}
+
+/// The floor of each catalog in the final match (`names` are the catalogs' names).
+///
+/// A catalog with a fixed floor (`floor_from_data` false) keeps it. Any other
+/// catalog gets the floor measured against `reference` ([`measure_offsets`],
+/// the last measurement after corrections) when it has at least
+/// [`MIN_FLOOR_PAIRS`] unique pairs; otherwise its floor is 0 (origin
+/// `NotMeasured`, with the reason in `note`): without a reference, for the
+/// reference itself (the frame the others are measured in), and with too few
+/// pairs. The measurement gives the unquoted scatter of the pair; the
+/// catalog's own floor is what is left of it after the reference's floor,
+/// sqrt(max(f² − f_ref², 0)), since the match adds both floors in quadrature.
+pub fn floors_in_force(
+    names: &[String],
+    config: &MatchConfig,
+    reference: Option<usize>,
+    offsets: &[CatalogOffset],
+) -> Vec<FloorInForce> {
+    let ref_floor = reference.map_or(0.0, |r| config.catalogs[r].systematic_arcsec);
+    config
+        .catalogs
+        .iter()
+        .enumerate()
+        .map(|(c, settings)| {
+            let estimate = offsets
+                .iter()
+                .find(|o| o.catalog == c)
+                .and_then(|o| o.floor);
+            let measured = estimate.map(|e| {
+                (e.floor_arcsec * e.floor_arcsec - ref_floor * ref_floor)
+                    .max(0.0)
+                    .sqrt()
+            });
+            let n_pairs = estimate.map_or(0, |e| e.n_pairs);
+            let mut used = FloorInForce {
+                catalog: c,
+                name: names[c].clone(),
+                floor_arcsec: settings.systematic_arcsec,
+                origin: FloorOrigin::Fixed,
+                measured_arcsec: measured,
+                n_pairs,
+                note: None,
+            };
+            if !settings.floor_from_data {
+                return used;
+            }
+            let note = match (reference, measured) {
+                (None, _) => Some("no astrometric reference to measure it against".to_string()),
+                (Some(r), _) if r == c => {
+                    Some("the astrometric reference: the others are measured against it".to_string())
+                }
+                (Some(_), None) => Some("no unique pair with the astrometric reference".to_string()),
+                (Some(_), Some(_)) if n_pairs < MIN_FLOOR_PAIRS => Some(format!(
+                    "{n_pairs} unique pairs with the astrometric reference, fewer than {MIN_FLOOR_PAIRS}"
+                )),
+                (Some(_), Some(_)) => None,
+            };
+            match (note, measured) {
+                (None, Some(m)) => {
+                    used.floor_arcsec = m;
+                    used.origin = FloorOrigin::Measured;
+                }
+                (note, _) => {
+                    used.floor_arcsec = 0.0;
+                    used.origin = FloorOrigin::NotMeasured;
+                    used.note = note;
+                }
+            }
+            used
+        })
+        .collect()
+}
+
+/// `config` with the floors of `floors` ([`floors_in_force`]) in its catalogs.
+pub fn with_floors(config: &MatchConfig, floors: &[FloorInForce]) -> MatchConfig {
+    let mut c = config.clone();
+    for f in floors {
+        c.catalogs[f.catalog] = CatalogSettings {
+            systematic_arcsec: f.floor_arcsec,
+            ..c.catalogs[f.catalog].clone()
+        };
+    }
+    c
+}
+
 /// `config` with every pair's tolerance replaced by its largest radius.
 fn generous_config(config: &MatchConfig) -> MatchConfig {
     let mut generous = config.clone();
@@ -185,7 +322,8 @@ pub fn shift_table(table: &mut SourceTable, east_arcsec: f64, north_arcsec: f64)
 /// Measures offsets against `reference` ([`measure_offsets`]) and, with
 /// `correct`, moves each catalog worth correcting by minus its offset and measures
 /// again, until no offset is worth correcting; then runs the match with `config`
-/// on the (corrected) tables, which it returns with the result.
+/// and the floors of [`floors_in_force`] on the (corrected) tables, which it
+/// returns with the result.
 ///
 /// # Errors
 /// As [`super::engine::run_match`].
@@ -198,7 +336,9 @@ pub fn match_with_offsets(
 ) -> Result<(MatchResult, Vec<CatalogOffset>, Vec<SourceTable>)> {
     let (offsets, moved) = correct_offsets(tables, config, reference, correct)?;
     let working = moved.unwrap_or_else(|| tables.to_vec());
-    let result = run_match_with_area(&working, config, area_sr)?;
+    let names: Vec<String> = tables.iter().map(|t| t.name.clone()).collect();
+    let floors = floors_in_force(&names, config, Some(reference), &offsets);
+    let result = run_match_with_area(&working, &with_floors(config, &floors), area_sr)?;
     Ok((result, offsets, working))
 }
 
@@ -246,4 +386,89 @@ pub fn correct_offsets(
         })
         .collect();
     Ok((offsets, working))
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn offset(catalog: usize, floor_arcsec: f64, n_pairs: usize) -> CatalogOffset {
+        CatalogOffset {
+            catalog,
+            initial: None,
+            residual: None,
+            applied_arcsec: (0.0, 0.0),
+            floor: Some(FloorEstimate {
+                n_pairs,
+                floor_arcsec,
+                median_d_before: 2.0,
+                median_d_after: super::super::floors::RAYLEIGH_MEDIAN,
+                median_stated_sigma_arcsec: 0.1,
+            }),
+        }
+    }
+
+    #[test]
+    fn open_floors_take_the_measurement_and_fixed_ones_keep_theirs() {
+        let mut config = MatchConfig::new(5, 2016.0);
+        for c in &mut config.catalogs {
+            c.floor_from_data = true;
+        }
+        // Catalog 2 fixes 0.05″; catalog 4 fixes nothing and has no pairs.
+        config.catalogs[2].systematic_arcsec = 0.05;
+        config.catalogs[2].floor_from_data = false;
+        let names: Vec<String> = ["r", "a", "b", "c", "d"].map(String::from).to_vec();
+        let offsets = [offset(1, 0.2, 100), offset(2, 0.3, 100), offset(3, 0.2, 29)];
+        let floors = floors_in_force(&names, &config, Some(0), &offsets);
+        let got: Vec<(f64, FloorOrigin, Option<f64>)> = floors
+            .iter()
+            .map(|f| (f.floor_arcsec, f.origin, f.measured_arcsec))
+            .collect();
+        assert_eq!(
+            got,
+            [
+                (0.0, FloorOrigin::NotMeasured, None),
+                (0.2, FloorOrigin::Measured, Some(0.2)),
+                (0.05, FloorOrigin::Fixed, Some(0.3)),
+                (0.0, FloorOrigin::NotMeasured, Some(0.2)),
+                (0.0, FloorOrigin::NotMeasured, None),
+            ]
+        );
+        assert_eq!(
+            floors[0].note.as_deref(),
+            Some("the astrometric reference: the others are measured against it")
+        );
+        assert_eq!(
+            floors[3].note.as_deref(),
+            Some("29 unique pairs with the astrometric reference, fewer than 30")
+        );
+        assert_eq!(
+            floors[4].note.as_deref(),
+            Some("no unique pair with the astrometric reference")
+        );
+        assert_eq!(floors[2].note, None);
+        let used = with_floors(&config, &floors);
+        assert_eq!(used.catalogs[1].systematic_arcsec, 0.2);
+        assert_eq!(used.catalogs[2].systematic_arcsec, 0.05);
+        // Without a reference nothing is measured.
+        let none = floors_in_force(&names, &config, None, &[]);
+        assert!(none.iter().all(|f| f.floor_arcsec == 0.0 || f.catalog == 2));
+        assert_eq!(
+            none[1].note.as_deref(),
+            Some("no astrometric reference to measure it against")
+        );
+    }
+
+    #[test]
+    fn a_fixed_reference_floor_is_taken_out_of_the_measured_one() {
+        // The pair's unquoted scatter 0.5″ with the reference's fixed 0.3″: the
+        // catalog's own floor is sqrt(0.25 − 0.09) = 0.4″ (by hand).
+        let mut config = MatchConfig::new(2, 2016.0);
+        config.catalogs[0].systematic_arcsec = 0.3;
+        config.catalogs[1].floor_from_data = true;
+        let names = vec!["r".to_string(), "a".to_string()];
+        let floors = floors_in_force(&names, &config, Some(0), &[offset(1, 0.5, 50)]);
+        assert!((floors[1].floor_arcsec - 0.4).abs() < 1e-12, "{floors:?}");
+        assert_eq!(floors[0].origin, FloorOrigin::Fixed);
+    }
 }

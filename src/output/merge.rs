@@ -159,7 +159,11 @@ const SUMMED: [&[&str]; 5] = [
     &["matching", "objects_not_primary"],
 ];
 /// Maps of counts that add up key by key.
-const SUMMED_MAPS: [&[&str]; 2] = [&["matching", "objects_by_members"], &["matching", "flags"]];
+const SUMMED_MAPS: [&[&str]; 3] = [
+    &["matching", "objects_by_members"],
+    &["matching", "flags"],
+    &["forced_without_counterpart"],
+];
 
 fn at<'v>(v: &'v mut Value, path: &[&str]) -> Option<&'v mut Value> {
     path.iter().try_fold(v, |v, k| v.get_mut(*k))

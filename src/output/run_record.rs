@@ -10,7 +10,7 @@ use serde::Serialize;
 use crate::catalog::normalize::NormalizeReport;
 use crate::crossmatch::engine::MatchStats;
 use crate::crossmatch::false_matches::FalseMatchEstimate;
-use crate::crossmatch::systematics::CatalogOffset;
+use crate::crossmatch::systematics::{CatalogOffset, FloorInForce, floors_in_force, with_floors};
 use crate::crossmatch::{MatchConfig, MatchResult};
 use crate::error::{Error, Result};
 use crate::plan::Plan;
@@ -63,14 +63,21 @@ pub struct RunRecord {
     pub plan_file: String,
     /// The plan's text.
     pub plan: String,
-    /// The match settings in force.
+    /// The match settings in force (with the floors of `floors`).
     pub match_settings: MatchConfig,
+    /// Each catalog's systematic floor in the match: value, and whether it
+    /// was fixed, measured against the astrometric reference, or neither (0).
+    pub floors: Vec<FloorInForce>,
     /// The astrometric reference catalog, if any.
     pub astrometric_reference: Option<String>,
     /// Inputs with checksums and read counts.
     pub inputs: Vec<InputRecord>,
     /// Match counts (timings left out).
     pub matching: MatchStats,
+    /// Per catalog whose schema marks forced-photometry rows (`[forced]`), the
+    /// rows left out because no row that is not forced is in their object:
+    /// forced rows never make an object alone.
+    pub forced_without_counterpart: BTreeMap<String, u64>,
     /// Astrometric offsets against the reference.
     pub offsets: Vec<CatalogOffset>,
     /// False-match estimates per catalog pair.
@@ -109,16 +116,31 @@ impl RunRecord {
         sed_points: Vec<SedRecord>,
         outputs: Vec<OutputRecord>,
     ) -> RunRecord {
+        // The floors follow from the plan and the offsets' measurement alone, as
+        // in the build's own choice (`cli::build::prepare`).
+        let names: Vec<String> = plan.catalogs.iter().map(|c| c.name.clone()).collect();
+        let floors = floors_in_force(&names, &plan.matching, plan.astrometric_reference, &offsets);
         RunRecord {
             fluxloom_version: env!("CARGO_PKG_VERSION").to_string(),
             field: plan.field.clone(),
             plan_file: plan.path.display().to_string(),
             plan: plan.text.clone(),
-            match_settings: plan.matching.clone(),
+            match_settings: with_floors(&plan.matching, &floors),
+            floors,
             astrometric_reference: plan
                 .astrometric_reference
                 .map(|i| plan.catalogs[i].name.clone()),
             inputs,
+            forced_without_counterpart: plan
+                .catalogs
+                .iter()
+                .enumerate()
+                .filter(|(_, c)| c.schema.forced.is_some())
+                .map(|(k, c)| {
+                    let n = result.stats.forced_without_counterpart.get(k);
+                    (c.name.clone(), n.copied().unwrap_or(0) as u64)
+                })
+                .collect(),
             matching: result.stats.clone(),
             offsets,
             false_matches,

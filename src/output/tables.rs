@@ -50,6 +50,8 @@ fn sed_status_names() -> Vec<&'static str> {
 struct WideBand<'a> {
     id: &'a str,
     has_flux: bool,
+    /// Some catalog's schema marks saturated values in this band.
+    saturates: bool,
     slots: Vec<usize>,
 }
 
@@ -57,10 +59,14 @@ fn wide_bands(slots: &[BandSlot]) -> Vec<WideBand<'_>> {
     let mut bands: Vec<WideBand> = Vec::new();
     for (k, s) in slots.iter().enumerate() {
         match bands.iter_mut().find(|b| b.id == s.id()) {
-            Some(b) => b.slots.push(k),
+            Some(b) => {
+                b.slots.push(k);
+                b.saturates |= s.spec.saturated.is_some();
+            }
             None => bands.push(WideBand {
                 id: s.id(),
                 has_flux: s.spec.has_flux(),
+                saturates: s.spec.saturated.is_some(),
                 slots: vec![k],
             }),
         }
@@ -233,20 +239,21 @@ pub fn objects_batch(
                     .expect("a band has a slot")
             })
             .collect();
-        let (value, err, ulim, unit) = if band.has_flux {
-            ("flux_jy", "flux_err_jy", "ulim_jy", "Jy")
+        let (value, err, ulim, lower, unit) = if band.has_flux {
+            ("flux_jy", "flux_err_jy", "ulim_jy", "flux_lower_jy", "Jy")
         } else {
-            ("mag", "mag_err", "ulim_mag", "mag")
+            ("mag", "mag_err", "ulim_mag", "flux_lower_mag", "mag")
         };
         let id = band.id;
-        for (suffix, pick) in [
-            (
-                value,
-                (|p: &crate::sed::SedPoint| p.value) as fn(&crate::sed::SedPoint) -> Option<f64>,
-            ),
-            (err, |p| p.err),
-            (ulim, |p| p.ulim),
-        ] {
+        type Pick = fn(&crate::sed::SedPoint) -> Option<f64>;
+        let mut picks: Vec<(&str, Pick)> =
+            vec![(value, |p| p.value), (err, |p| p.err), (ulim, |p| p.ulim)];
+        // The lower bound of a saturated value, only for bands some schema
+        // marks saturated.
+        if band.saturates {
+            picks.push((lower, |p| p.flux_lower));
+        }
+        for (suffix, pick) in picks {
             let name = format!("{id}_{suffix}");
             fields.push(if unit == "mag" && suffix != "mag_err" {
                 described(&name, DataType::Float64, unit, VEGA_MAG)
@@ -297,7 +304,9 @@ pub fn photometry_batch(
     let mut system = Vec::with_capacity(n);
     let mut wavelength = Vec::with_capacity(n);
     let mut zero_point = Vec::with_capacity(n);
-    let mut cols: [Vec<Option<f64>>; 9] = Default::default();
+    let mut cols: [Vec<Option<f64>>; 11] = Default::default();
+    // The lower bounds of saturated values, only when some schema marks saturation.
+    let saturates = slots.iter().any(|s| s.spec.saturated.is_some());
     let mut status = Vec::with_capacity(n);
     for (o, sed) in objects.iter().zip(seds) {
         for (slot, p) in slots.iter().zip(&sed.points) {
@@ -323,6 +332,8 @@ pub fn photometry_batch(
             cols[6].push(as_mag(p.value));
             cols[7].push(as_mag(p.err));
             cols[8].push(as_mag(p.ulim));
+            cols[9].push(as_flux(p.flux_lower));
+            cols[10].push(as_mag(p.flux_lower));
             status.push(p.status as i8);
         }
     }
@@ -345,9 +356,16 @@ pub fn photometry_batch(
         ("mag", "mag"),
         ("mag_err", "mag"),
         ("ulim_mag", "mag"),
-    ] {
+        ("flux_lower_jy", "Jy"),
+        ("flux_lower_mag", "mag"),
+    ]
+    .into_iter()
+    .take(if saturates { 11 } else { 9 })
+    {
         fields.push(match name {
-            "mag" | "ulim_mag" => described(name, DataType::Float64, unit, VEGA_MAG),
+            "mag" | "ulim_mag" | "flux_lower_mag" => {
+                described(name, DataType::Float64, unit, VEGA_MAG)
+            }
             "nufnu_cgs" => described(
                 name,
                 DataType::Float64,
@@ -372,7 +390,11 @@ pub fn photometry_batch(
         Arc::new(Float64Array::from(wavelength)),
         f64s(zero_point),
     ];
-    columns.extend(cols.into_iter().map(f64s));
+    columns.extend(
+        cols.into_iter()
+            .take(if saturates { 11 } else { 9 })
+            .map(f64s),
+    );
     columns.push(status_column(status, &sed_status_names()));
     RecordBatch::try_new(Arc::new(Schema::new(fields)), columns)
         .map_err(|e| Error::Usage(format!("photometry table: {e}")))

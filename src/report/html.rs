@@ -240,7 +240,7 @@ fn offsets(h: &mut String, s: &Summary) {
         );
         return;
     }
-    h.push_str("<p class=\"note\">Median offset (Δα cos δ, Δδ) of each catalog against the reference from pairs unique within the largest tolerance, with its robust width 1.4826·MAD, before and after the correction the build applied (run.json <code>offsets</code>).</p>\n");
+    h.push_str("<p class=\"note\">Median offset (Δα cos δ, Δδ) of each catalog against the reference from pairs unique within the largest tolerance, with its robust width 1.4826·MAD, before and after the correction the build applied (run.json <code>offsets</code>), and each catalog's systematic floor measured from the same pairs beside the floor the match used, fixed in the plan or measured (run.json <code>floors</code>).</p>\n");
     h.push_str(&figures::offsets(&s.offsets));
     table_start(
         h,
@@ -253,6 +253,8 @@ fn offsets(h: &mut String, s: &Summary) {
             "applied (″)",
             "after Δα cos δ (″)",
             "after Δδ (″)",
+            "floor measured (″)",
+            "floor used (″)",
         ],
     );
     for o in &s.offsets {
@@ -273,6 +275,11 @@ fn offsets(h: &mut String, s: &Summary) {
                 format!("({:+.3}, {:+.3})", o.applied_arcsec.0, o.applied_arcsec.1),
                 num(r.map(|c| c.dra_cosdec_arcsec), 3),
                 num(r.map(|c| c.ddec_arcsec), 3),
+                num(o.floor_measured_arcsec, 3),
+                match (o.floor_used_arcsec, o.floor_origin.as_deref()) {
+                    (Some(f), Some(origin)) => format!("{f:.3} ({})", origin.replace('_', " ")),
+                    _ => String::new(),
+                },
             ],
         );
     }

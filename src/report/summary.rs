@@ -94,6 +94,13 @@ pub struct OffsetReport {
     pub residual: Option<OffsetCloud>,
     /// Correction added to the catalog's positions, (Δα cos δ, Δδ) arcsec.
     pub applied_arcsec: (f64, f64),
+    /// The catalog's systematic floor measured from the same pairs, arcsec
+    /// (run.json `floors[].measured_arcsec`).
+    pub floor_measured_arcsec: Option<f64>,
+    /// The floor the match used, arcsec (run.json `floors[].floor_arcsec`).
+    pub floor_used_arcsec: Option<f64>,
+    /// Where that floor comes from: `fixed`, `measured` or `not_measured`.
+    pub floor_origin: Option<String>,
 }
 
 /// A false-match estimate for one catalog pair, from run.json.
@@ -420,15 +427,26 @@ fn offsets(out: &OutputFolder) -> Vec<OffsetReport> {
         .as_array()
         .into_iter()
         .flatten()
-        .map(|o| OffsetReport {
-            catalog: out.catalog_name(&o["catalog"]),
-            reference: reference.clone(),
-            initial: cloud(&o["initial"]),
-            residual: cloud(&o["residual"]),
-            applied_arcsec: (
-                o["applied_arcsec"][0].as_f64().unwrap_or(0.0),
-                o["applied_arcsec"][1].as_f64().unwrap_or(0.0),
-            ),
+        .map(|o| {
+            let catalog = out.catalog_name(&o["catalog"]);
+            let floor = out.run["floors"]
+                .as_array()
+                .into_iter()
+                .flatten()
+                .find(|f| f["name"].as_str() == Some(catalog.as_str()));
+            OffsetReport {
+                reference: reference.clone(),
+                initial: cloud(&o["initial"]),
+                residual: cloud(&o["residual"]),
+                applied_arcsec: (
+                    o["applied_arcsec"][0].as_f64().unwrap_or(0.0),
+                    o["applied_arcsec"][1].as_f64().unwrap_or(0.0),
+                ),
+                floor_measured_arcsec: floor.and_then(|f| f["measured_arcsec"].as_f64()),
+                floor_used_arcsec: floor.and_then(|f| f["floor_arcsec"].as_f64()),
+                floor_origin: floor.and_then(|f| f["origin"].as_str().map(str::to_string)),
+                catalog,
+            }
         })
         .collect()
 }

@@ -305,6 +305,9 @@ mod tests {
                 initial: Some(cloud(d)),
                 residual: Some(cloud(d)),
                 applied_arcsec: (0.0, 0.0),
+                floor_measured_arcsec: None,
+                floor_used_arcsec: None,
+                floor_origin: None,
             })
             .collect();
         s.inputs = vec![InputReport {

@@ -29,8 +29,10 @@ pub enum SedStatus {
     Missing,
     /// Ruled out by a quality rule or an unreadable value.
     Rejected,
-    /// The catalog's value is saturated: neither a detection nor a limit, and
-    /// no value is carried in the detection or limit columns.
+    /// The catalog's value is saturated: neither a detection nor an upper
+    /// limit. Its value is a lower bound on the flux density (the true flux is
+    /// at least that), carried in [`SedPoint::flux_lower`] alone, never in the
+    /// detection or upper-limit columns.
     Saturated,
 }
 
@@ -121,6 +123,10 @@ pub struct SedPoint {
     pub hi: Option<f64>,
     /// Upper limit.
     pub ulim: Option<f64>,
+    /// Lower bound on the flux density of a `saturated` point: the saturated
+    /// value's flux density, Jy (for a magnitude-only band, its magnitude: the
+    /// source is at least this bright). `None` for every other status.
+    pub flux_lower: Option<f64>,
 }
 
 impl SedPoint {
@@ -132,6 +138,7 @@ impl SedPoint {
             lo: None,
             hi: None,
             ulim: None,
+            flux_lower: None,
         }
     }
 }
@@ -150,6 +157,9 @@ struct BandColumnsData<'a> {
     lo: Option<&'a arrow::array::PrimitiveArray<Float64Type>>,
     hi: Option<&'a arrow::array::PrimitiveArray<Float64Type>>,
     ulim: &'a arrow::array::PrimitiveArray<Float64Type>,
+    /// The saturated values (`<band>_sat_jy` or `<band>_sat_mag`), when the
+    /// schema has a saturation rule for the band.
+    sat: Option<&'a arrow::array::PrimitiveArray<Float64Type>>,
     status: arrow::array::StringArray,
 }
 
@@ -174,6 +184,12 @@ fn band_data<'a>(table: &'a RecordBatch, slot: &BandSlot) -> Result<BandColumnsD
             lo: Some(f("flux_lo_jy")?),
             hi: Some(f("flux_hi_jy")?),
             ulim: f("ulim_jy")?,
+            sat: slot
+                .spec
+                .saturated
+                .as_ref()
+                .map(|_| f("sat_jy"))
+                .transpose()?,
             status,
         }
     } else {
@@ -183,6 +199,12 @@ fn band_data<'a>(table: &'a RecordBatch, slot: &BandSlot) -> Result<BandColumnsD
             lo: None,
             hi: None,
             ulim: f("ulim_mag")?,
+            sat: slot
+                .spec
+                .saturated
+                .as_ref()
+                .map(|_| f("sat_mag"))
+                .transpose()?,
             status,
         }
     })
@@ -203,6 +225,10 @@ impl BandColumnsData<'_> {
             lo: self.lo.and_then(|a| get(a, row)),
             hi: self.hi.and_then(|a| get(a, row)),
             ulim: get(self.ulim, row),
+            flux_lower: match status {
+                SedStatus::Saturated => self.sat.and_then(|a| get(a, row)),
+                _ => None,
+            },
         }
     }
 }
@@ -358,7 +384,7 @@ mod tests {
     use std::sync::Arc;
 
     #[test]
-    fn a_saturated_value_is_neither_a_detection_nor_a_limit_in_the_sed() {
+    fn a_saturated_value_is_a_lower_bound_neither_a_detection_nor_a_limit_in_the_sed() {
         let text = "survey = \"cat\"\nformat = \"csv\"\nid = \"id\"\n[position]\nra = \"ra\"\ndec = \"dec\"\nerror = { kind = \"fixed\", arcsec = 0.1 }\n[epoch]\nyear = 2010.0\n[[band]]\nband = \"irac_36\"\nvalue = \"f\"\nunit = \"mJy\"\nerror = \"e\"\nsaturated = { column = \"fl\", bit = 2 }\n";
         let schema =
             SurveySchema::from_str(text, Path::new("s.toml"), &BandLibrary::builtin()).unwrap();
@@ -385,10 +411,18 @@ mod tests {
         };
         let data = band_data(&normalized, &slot).unwrap();
         let saturated = data.point(0);
-        assert_eq!(saturated, SedPoint::bare(SedStatus::Saturated));
+        // 900 mJy = 0.9 Jy, as a lower bound only.
+        assert_eq!(
+            saturated,
+            SedPoint {
+                flux_lower: Some(0.9),
+                ..SedPoint::bare(SedStatus::Saturated)
+            }
+        );
         assert_eq!(saturated.status.as_str(), "saturated");
         let detected = data.point(1);
         assert_eq!(detected.status, SedStatus::Detected);
         assert!((detected.value.unwrap() - 0.002).abs() < 1e-15);
+        assert_eq!(detected.flux_lower, None);
     }
 }

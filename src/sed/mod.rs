@@ -14,7 +14,7 @@
 //! | `blended` | the catalog's source here is a blend of this and other objects, or a brighter object's contaminated member, seen at this band's resolution or finer; its flux bounds this object's from above | ulim = blend's flux (or its limit) |
 //! | `missing` | the source exists but the band has no value | none |
 //! | `rejected` | a quality rule or an unreadable value ruled it out | none |
-//! | `saturated` | the catalog's schema marks the value saturated: neither a detection nor a limit (the measured value stays in the normalized table's `<band>_sat_jy`) | none |
+//! | `saturated` | the catalog's schema marks the value saturated: neither a detection nor an upper limit; the true flux is at least the value's (a lower bound, from the normalized table's `<band>_sat_jy` or `<band>_sat_mag`) | flux_lower only |
 
 pub mod assemble;
 
