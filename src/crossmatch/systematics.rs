@@ -83,6 +83,88 @@ pub fn measure_offsets(
     config: &MatchConfig,
     reference: usize,
 ) -> Result<Measured> {
+    Ok(offset_pairs(tables, config, reference, &|_| true)?.measure(reference))
+}
+
+/// The unique pairs against the reference that [`measure_offsets`] measures,
+/// per catalog: tangent-plane offsets (east, north) and stated σ, arcsec.
+///
+/// Every statistic taken from them is a median, so pairs gathered region by
+/// region and appended ([`OffsetPairs::append`]) give the same measurement as
+/// the pairs of the whole input at once, whatever the order.
+#[derive(Debug, Clone, Default, PartialEq)]
+pub struct OffsetPairs {
+    east: Vec<Vec<f64>>,
+    north: Vec<Vec<f64>>,
+    stated: Vec<Vec<f64>>,
+}
+
+impl OffsetPairs {
+    /// No pairs, for `n` catalogs.
+    pub fn new(n: usize) -> Self {
+        OffsetPairs {
+            east: vec![Vec::new(); n],
+            north: vec![Vec::new(); n],
+            stated: vec![Vec::new(); n],
+        }
+    }
+
+    /// Adds `other`'s pairs (of the same catalogs).
+    pub fn append(&mut self, mut other: OffsetPairs) {
+        for c in 0..self.east.len() {
+            self.east[c].append(&mut other.east[c]);
+            self.north[c].append(&mut other.north[c]);
+            self.stated[c].append(&mut other.stated[c]);
+        }
+    }
+
+    /// The offsets and floors of these pairs (see [`measure_offsets`]).
+    pub fn measure(&self, reference: usize) -> Measured {
+        let n = self.east.len();
+        let offsets: Vec<Option<OffsetEstimate>> = (0..n)
+            .map(|c| {
+                if c == reference {
+                    None
+                } else {
+                    robust_offset(&self.east[c], &self.north[c])
+                }
+            })
+            .collect();
+        let floors = (0..n)
+            .map(|c| {
+                let m = offsets[c]?;
+                let sep: Vec<f64> = self.east[c]
+                    .iter()
+                    .zip(&self.north[c])
+                    .map(|(e, no)| (e - m.dra_cosdec_arcsec).hypot(no - m.ddec_arcsec))
+                    .collect();
+                // A pair without a finite, positive stated error cannot be normalised.
+                let (sep, sigma): (Vec<f64>, Vec<f64>) = sep
+                    .into_iter()
+                    .zip(self.stated[c].iter().copied())
+                    .filter(|(_, s)| s.is_finite() && *s > 0.0)
+                    .unzip();
+                estimate_floor(&sep, &sigma)
+            })
+            .collect();
+        (offsets, floors)
+    }
+}
+
+/// The pairs [`measure_offsets`] uses among `tables`, keeping only those whose
+/// reference source (its row in the reference table) `owns` says belong here:
+/// a build that gathers them region by region owns each reference source in
+/// exactly one region, and loads around it every source within twice the
+/// largest tolerance, so that both uniqueness counts are complete.
+///
+/// # Errors
+/// As [`super::engine::run_match`].
+pub fn offset_pairs(
+    tables: &[SourceTable],
+    config: &MatchConfig,
+    reference: usize,
+    owns: &dyn Fn(usize) -> bool,
+) -> Result<OffsetPairs> {
     let generous = generous_config(config);
     let sources = Sources::prepare(tables, &generous)?;
     let candidates = find_candidates(&sources, &generous);
@@ -94,9 +176,7 @@ pub fn measure_offsets(
         count[a * n + sources.catalog[b] as usize] += 1;
         count[b * n + sources.catalog[a] as usize] += 1;
     }
-    let mut dra: Vec<Vec<f64>> = vec![Vec::new(); n];
-    let mut ddec: Vec<Vec<f64>> = vec![Vec::new(); n];
-    let mut stated: Vec<Vec<f64>> = vec![Vec::new(); n];
+    let mut pairs = OffsetPairs::new(n);
     let stated_sigma = |i: usize| {
         let (t, row) = (
             &tables[sources.catalog[i] as usize],
@@ -117,40 +197,17 @@ pub fn measure_offsets(
         if count[r * n + cx] != 1 || count[x * n + reference] != 1 {
             continue;
         }
+        if !owns(sources.row[r] as usize) {
+            continue;
+        }
         let ((ra_r, dec_r), (ra_x, dec_x)) =
             sources.position_for_pair(r, x, generous.reference_epoch_yr);
         let (east, north) = tangent_offsets_arcsec(ra_r, dec_r, ra_x, dec_x);
-        dra[cx].push(east);
-        ddec[cx].push(north);
-        stated[cx].push(stated_sigma(r).hypot(stated_sigma(x)));
+        pairs.east[cx].push(east);
+        pairs.north[cx].push(north);
+        pairs.stated[cx].push(stated_sigma(r).hypot(stated_sigma(x)));
     }
-    let offsets: Vec<Option<OffsetEstimate>> = (0..n)
-        .map(|c| {
-            if c == reference {
-                None
-            } else {
-                robust_offset(&dra[c], &ddec[c])
-            }
-        })
-        .collect();
-    let floors = (0..n)
-        .map(|c| {
-            let m = offsets[c]?;
-            let sep: Vec<f64> = dra[c]
-                .iter()
-                .zip(&ddec[c])
-                .map(|(e, no)| (e - m.dra_cosdec_arcsec).hypot(no - m.ddec_arcsec))
-                .collect();
-            // A pair without a finite, positive stated error cannot be normalised.
-            let (sep, sigma): (Vec<f64>, Vec<f64>) = sep
-                .into_iter()
-                .zip(stated[c].iter().copied())
-                .filter(|(_, s)| s.is_finite() && *s > 0.0)
-                .unzip();
-            estimate_floor(&sep, &sigma)
-        })
-        .collect();
-    Ok((offsets, floors))
+    Ok(pairs)
 }
 
 /// Where the floor a catalog is matched with comes from.
@@ -345,7 +402,7 @@ pub fn match_with_offsets(
 /// The offsets of every catalog against `reference` and, when any catalog was
 /// moved, the tables to match: with `correct`, each catalog worth correcting is
 /// moved by minus its offset and measured again, until no offset is worth
-/// correcting.
+/// correcting ([`correct_offsets_by`] on the whole input).
 ///
 /// # Errors
 /// As [`super::engine::run_match`].
@@ -355,27 +412,59 @@ pub fn correct_offsets(
     reference: usize,
     correct: bool,
 ) -> Result<(Vec<CatalogOffset>, Option<Vec<SourceTable>>)> {
-    let (initial, mut floors) = measure_offsets(tables, config, reference)?;
-    let mut residual = initial.clone();
-    let mut applied = vec![(0.0, 0.0); tables.len()];
     let mut working: Option<Vec<SourceTable>> = None;
+    let mut shifted = vec![0usize; tables.len()];
+    let (offsets, _) = correct_offsets_by(tables.len(), reference, correct, |shifts| {
+        if shifts.iter().all(Vec::is_empty) {
+            return measure_offsets(tables, config, reference);
+        }
+        let moved = working.get_or_insert_with(|| tables.to_vec());
+        for (c, s) in shifts.iter().enumerate() {
+            shift_table_by(&mut moved[c], &s[shifted[c]..]);
+            shifted[c] = s.len();
+        }
+        measure_offsets(moved, config, reference)
+    })?;
+    Ok((offsets, working))
+}
+
+/// The shifts (east, north, arcsec) applied to each catalog, in the order applied.
+pub type Shifts = Vec<Vec<(f64, f64)>>;
+
+/// The offset iteration of [`correct_offsets`] over any way of measuring:
+/// `measure` measures with the catalogs moved by the shifts so far (each
+/// catalog's list, in order), so a build that cannot hold its input can
+/// measure region by region. Returns the offsets and the shifts applied, which
+/// the match applies in the same order ([`shift_table_by`]) for the same positions.
+///
+/// # Errors
+/// Whatever `measure` returns.
+pub fn correct_offsets_by(
+    n: usize,
+    reference: usize,
+    correct: bool,
+    mut measure: impl FnMut(&Shifts) -> Result<Measured>,
+) -> Result<(Vec<CatalogOffset>, Shifts)> {
+    let mut shifts: Shifts = vec![Vec::new(); n];
+    let (initial, mut floors) = measure(&shifts)?;
+    let mut residual = initial.clone();
+    let mut applied = vec![(0.0, 0.0); n];
     if correct {
         for _ in 0..MAX_PASSES {
             if !residual.iter().flatten().any(worth_correcting) {
                 break;
             }
-            let moved = working.get_or_insert_with(|| tables.to_vec());
             for (c, m) in residual.iter().enumerate() {
                 if let Some(m) = m.filter(worth_correcting) {
-                    shift_table(&mut moved[c], -m.dra_cosdec_arcsec, -m.ddec_arcsec);
+                    shifts[c].push((-m.dra_cosdec_arcsec, -m.ddec_arcsec));
                     applied[c].0 -= m.dra_cosdec_arcsec;
                     applied[c].1 -= m.ddec_arcsec;
                 }
             }
-            (residual, floors) = measure_offsets(moved, config, reference)?;
+            (residual, floors) = measure(&shifts)?;
         }
     }
-    let offsets = (0..tables.len())
+    let offsets = (0..n)
         .filter(|&c| c != reference)
         .map(|catalog| CatalogOffset {
             catalog,
@@ -385,7 +474,14 @@ pub fn correct_offsets(
             floor: floors[catalog],
         })
         .collect();
-    Ok((offsets, working))
+    Ok((offsets, shifts))
+}
+
+/// Moves every source of `table` by each of `shifts` (east, north, arcsec) in turn.
+pub fn shift_table_by(table: &mut SourceTable, shifts: &[(f64, f64)]) {
+    for &(east, north) in shifts {
+        shift_table(table, east, north);
+    }
 }
 
 #[cfg(test)]
