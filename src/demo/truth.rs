@@ -1,7 +1,9 @@
 //! The true objects of the demo field and their model spectral energy distributions.
 //!
-//! [`generate`] places 600 objects in the field and gives each a true flux density in
-//! every band of [`DEMO_BANDS`]. The models are deliberately simple and are meant for
+//! [`generate`] places 654 objects in the field and gives each a true flux density in
+//! every band of [`DEMO_BANDS`] and a [`Population`] (field objects, high-proper-motion
+//! stars with catalog motions, faint fast movers without, dusty galaxies, companions)
+//! and, for pairs, a [`PairKind`]. The models are deliberately simple and are meant for
 //! demo data only:
 //!
 //! - **Photospheres** ([`Kind::Star`], [`Kind::ClassIII`], and under the disks of
@@ -15,7 +17,13 @@
 //!   Greene et al. 1994 (Class II −1.6 ≤ α < −0.3, Class I α ≥ 0.3).
 //! - **Galaxies** ([`Kind::Galaxy`]): a cool (3500 K) blackbody stellar bump with
 //!   internal reddening plus a dust power law νF_ν ∝ λ^β (β in 0…0.8, so νF_ν is flat or
-//!   rising into the mid-infrared), scaled to a faint Ks.
+//!   rising into the mid-infrared), scaled to a faint Ks, with a half-light radius of
+//!   0.4–2.5″ (log-uniform). Dusty galaxies: the dust term alone with β = 2–2.6 and a
+//!   3 µm cut-off, scaled to a 22 µm (W4-like) magnitude of 6.6–7.6.
+//! - **Fast movers**: cool photospheres (3200–4500 K) moving 20–300 mas/yr
+//!   (log-uniform), placed at the distance that makes G 19.1–21.5.
+//! - **Companions**: copies of a star's spectrum scaled by 0.02–0.07 (faint neighbours)
+//!   or 0.5–1.0 (equal companions), 2–4.5″ away.
 //!
 //! α follows Lada 1987 (IAU Symp. 115, from memory): α = d log(λF_λ) / d log λ, with λF_λ ∝ F_ν / λ.
 
