@@ -64,7 +64,9 @@ fn demo_floors_match_the_injected_scatter() {
             "{}: floor {floor:.3}\" vs injected {want:.3}\" (standard error {se:.3}\", {n} pairs)",
             names[c]
         );
-        assert!(n >= 100.0, "{}: {n} pairs", names[c]);
+        // ember (24 µm) and ask (point sources, no galaxies) share about 80
+        // unique bright pairs; the others several hundred.
+        assert!(n >= 75.0, "{}: {n} pairs", names[c]);
         assert!(
             (floor - want).abs() <= 4.0 * se,
             "{}: floor {floor} vs injected {want} (standard error {se})",

@@ -7,7 +7,10 @@
 //! seen at a finer resolution has two or more sources within r of c that lie
 //! closer than r to each other, while c's own catalog has no other source
 //! within r of c at c's resolution or coarser (it did not resolve them
-//! itself). Two sources closer than the FWHM are not separated in the coarse
+//! itself). A finer source that a finer row of c's own catalog within r of c
+//! lies nearer to than c does is that row's, not c's (the catalog measured it
+//! apart: a row detected in a coarse band alone beside a star its fine bands
+//! detected). Two sources closer than the FWHM are not separated in the coarse
 //! image, so its one source holds the light of both (common practice).
 //! Sources whose resolution is not declared take no part.
 //!
@@ -134,14 +137,26 @@ pub fn find_blends(
         {
             continue;
         }
+        // A finer source nearer to a finer row of c's own catalog than to c is
+        // that row's: the catalog measured it apart (a row detected in a coarse
+        // band alone beside a star its fine bands detected).
+        let claimed = |u: usize| {
+            let to_c = separation_vec_rad(sources.vec[c], sources.vec[u]);
+            near.iter().any(|&(o, _)| {
+                o != c
+                    && sources.catalog[o] == cat
+                    && separation_vec_rad(sources.vec[o], sources.vec[u]) < to_c
+            })
+        };
         let mut under: Vec<u32> = Vec::new();
         for (k, &(i, _)) in near.iter().enumerate() {
-            if !finer(i) {
+            if !finer(i) || claimed(i) {
                 continue;
             }
             for &(j, _) in &near[k + 1..] {
                 if sources.catalog[j] == sources.catalog[i]
                     && finer(j)
+                    && !claimed(j)
                     && separation_vec_rad(sources.vec[i], sources.vec[j]) < r * RAD_PER_ARCSEC
                 {
                     under.push(i as u32);

@@ -1,12 +1,15 @@
 //! An invented demo field and the catalogs six invented surveys would have made of it.
 //!
-//! [`write_demo_field`] builds, from one seed, about 600 true objects in an invented
+//! [`write_demo_field`] builds, from one seed, 654 true objects in an invented
 //! 0.25° × 0.25° field "FL-1" centred on RA 231.2°, Dec +12.4° (field stars, young
-//! stars with and without disks, background galaxies, high-proper-motion stars and
-//! close pairs; see [`truth`]), observes them with six invented surveys, each with its
-//! own file format, magnitude system, epoch, astrometric precision, resolution, depth
-//! and way of marking non-detections (see [`surveys`]), and writes the catalogs, their
-//! survey schemas, a plan, the truth and a README into one folder (see [`write`]).
+//! stars with and without disks, extended background galaxies, dusty galaxies seen
+//! only at 22–24 µm, high-proper-motion stars with catalog motions, faint fast movers
+//! without, close pairs, faint neighbours and equal companions of stars; see
+//! [`truth`]), observes them with six invented surveys, each with its own file format,
+//! magnitude system, epoch, astrometric precision, resolution, depth and way of marking
+//! non-detections, one with a coarse band of its own footprint and one with forced
+//! photometry (see [`surveys`]), and writes the catalogs, their survey schemas, a plan,
+//! the truth and a README into one folder (see [`write`]).
 //!
 //! Everything is deterministic: the same seed gives byte-identical files. Random numbers
 //! come from [`Rng`], a SplitMix64 generator (Steele, Lea & Flood 2014) with Box–Muller
@@ -82,7 +85,7 @@ pub struct SurveySummary {
 
 /// Generates the demo field with `seed` and writes every file into `dir`
 /// (created if needed): `ask.parquet`, `kos.csv`, `lantern.vot`, `harrier.fits`,
-/// `harrier_moc.txt`, `cinder.csv.gz`, `ember.fits`, a survey schema `<survey>.toml`
+/// `harrier_moc.txt`, `harrier_w4_moc.txt`, `cinder.csv.gz`, `ember.fits`, a survey schema `<survey>.toml`
 /// for each, `plan.toml`, `truth_objects.csv`, `truth_members.csv` and `README.md`.
 ///
 /// # Errors

@@ -9,8 +9,9 @@
 //!    proper motion ([`propagate_deg`]).
 //! 2. **Coverage.** Only objects inside the survey's footprint are seen (the mid-IR
 //!    survey `harrier` covers the eastern part only, see [`HarrierCoverage`]).
-//! 3. **Blending.** Objects closer than 0.8 × the survey resolution (friends of
-//!    friends) become one source: the true fluxes add up and the position is the
+//! 3. **Blending.** Objects closer than the survey resolution (the PSF FWHM; friends
+//!    of friends) become one source, as the matcher assumes (two sources closer than
+//!    the FWHM are not separated, common practice): the true fluxes add up and the position is the
 //!    weighted mean of the members' positions, each weighted by its summed S/N.
 //! 4. **Photometric noise.** Measured flux = true flux + Gaussian noise with
 //!    σ² = σ_sky² + (f_floor · F)², a background-limited term plus a calibration floor
@@ -20,13 +21,23 @@
 //! 5. **Detection.** A source is kept when it passes the survey's rule (S/N in the
 //!    detection bands, or a flux threshold).
 //! 6. **Astrometry.** The quoted 1-sigma error is σ = √(σ_floor² + (k · FWHM / S/N)²)
-//!    (centroiding precision scales as FWHM / S/N, common practice), or a fixed value;
-//!    galaxies, being extended, get 3 × the error (not in the fixed-error surveys, whose
-//!    one quoted value must describe every source). The catalog position is scattered by
-//!    Gaussian noise of the quoted error, plus an unquoted systematic scatter (the plan's
-//!    `systematic_arcsec`), plus (for `kos`) a fixed offset of +0.25″ in RA·cos Dec.
-//! 7. **Artefacts.** A few per cent spurious sources with no true counterpart, uniform
+//!    (centroiding precision scales as FWHM / S/N, common practice), or a fixed value.
+//!    The catalog position is scattered by Gaussian noise of the quoted error, plus an
+//!    unquoted systematic scatter (the plan's `systematic_arcsec`), plus, for an
+//!    extended source (a galaxy), an unquoted centroid scatter σ_ext = c · r_half per
+//!    axis that grows with its half-light radius (FIELD notes §5.13; c per survey,
+//!    [`SurveyDef::extent_coeff`]; the schemas declare `extended` with the same c),
+//!    plus (for `kos`) a fixed offset of +0.25″ in RA·cos Dec. `ask` keeps point
+//!    sources only.
+//! 7. **The coarse band.** `harrier`'s 22 µm band has its own 12″ resolution and its
+//!    own footprint (the north of the survey's, [`HarrierCoverage::w4`]): objects no
+//!    row holds are grouped closer than 12″, and a group with S/N ≥ 5 at 22 µm is a row of that
+//!    band alone, its position error from the 22 µm S/N and FWHM.
+//! 8. **Artefacts.** A few per cent spurious sources with no true counterpart, uniform
 //!    in the footprint, just above the detection threshold in one band.
+//! 9. **Forced photometry** (`cinder`): every object brighter than the 5σ r-band
+//!    limit of `kos` that the survey did not detect gets a row measured at its
+//!    position whatever the S/N, marked forced.
 
 use std::collections::BTreeSet;
 
@@ -140,6 +151,28 @@ pub struct SurveyDef {
     pub proper_motion_below_mag: Option<f64>,
     /// Probability that one band of a source is lost (no measurement).
     pub dropout: f64,
+    /// The catalog keeps point sources only (galaxies are left out).
+    pub point_sources_only: bool,
+    /// Unquoted centroid scatter of an extended source per axis, per arcsec of its
+    /// half-light radius (σ_ext = c · r_half, FIELD notes §5.13; 0: none).
+    pub extent_coeff: f64,
+    /// A band with its own footprint and resolution, whose detections alone make rows.
+    pub coarse_band: Option<CoarseBand>,
+    /// Forced photometry at every object brighter than this true r-band flux (Jy)
+    /// that the survey did not detect on its own.
+    pub forced_above_r_jy: Option<f64>,
+}
+
+/// A band of a survey observed with its own, coarser resolution over part of the
+/// survey's footprint (`harrier`'s 22 µm band).
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct CoarseBand {
+    /// Band index in the survey.
+    pub band: usize,
+    /// Its resolution (FWHM), arcsec.
+    pub resolution_arcsec: f64,
+    /// S/N at which a source seen in this band alone becomes a row.
+    pub min_snr: f64,
 }
 
 impl SurveyDef {
@@ -168,6 +201,10 @@ impl SurveyDef {
     }
 }
 
+/// 5σ sky-noise flux of `kos` in r, Jy: five times the softening 1.2e-10 of 3631 Jy
+/// (the r-band 1σ sky noise, see [`Depth::Softening`]).
+const KOS_R_5SIGMA_JY: f64 = 5.0 * 1.2e-10 * 3631.0;
+
 /// The six surveys, in plan order: `ask`, `kos`, `lantern`, `harrier`, `cinder`, `ember`.
 ///
 /// Depths and floors are invented but of the order of real surveys of each kind.
@@ -194,6 +231,10 @@ pub fn definitions() -> Vec<SurveyDef> {
             artefact_fraction: 0.01,
             proper_motion_below_mag: Some(19.0),
             dropout: 0.0,
+            point_sources_only: true,
+            extent_coeff: 0.0,
+            coarse_band: None,
+            forced_above_r_jy: None,
         },
         SurveyDef {
             name: "kos",
@@ -204,7 +245,7 @@ pub fn definitions() -> Vec<SurveyDef> {
                 band("sdss_i", Depth::Softening(1.8e-10), 0.01),
                 band("sdss_z", Depth::Softening(7.4e-10), 0.015),
             ],
-            epoch: SurveyEpoch::Year(2008.0),
+            epoch: SurveyEpoch::Year(2000.0),
             resolution_arcsec: 1.2,
             systematic_arcsec: 0.05,
             ra_offset_arcsec: 0.25,
@@ -220,6 +261,10 @@ pub fn definitions() -> Vec<SurveyDef> {
             artefact_fraction: 0.03,
             proper_motion_below_mag: None,
             dropout: 0.01,
+            point_sources_only: false,
+            extent_coeff: 0.2,
+            coarse_band: None,
+            forced_above_r_jy: None,
         },
         SurveyDef {
             name: "lantern",
@@ -244,6 +289,10 @@ pub fn definitions() -> Vec<SurveyDef> {
             artefact_fraction: 0.02,
             proper_motion_below_mag: None,
             dropout: 0.015,
+            point_sources_only: false,
+            extent_coeff: 0.25,
+            coarse_band: None,
+            forced_above_r_jy: None,
         },
         SurveyDef {
             name: "harrier",
@@ -269,6 +318,14 @@ pub fn definitions() -> Vec<SurveyDef> {
             artefact_fraction: 0.03,
             proper_motion_below_mag: None,
             dropout: 0.0,
+            point_sources_only: false,
+            extent_coeff: 0.3,
+            coarse_band: Some(CoarseBand {
+                band: 3,
+                resolution_arcsec: 12.0,
+                min_snr: 5.0,
+            }),
+            forced_above_r_jy: None,
         },
         SurveyDef {
             name: "cinder",
@@ -294,6 +351,10 @@ pub fn definitions() -> Vec<SurveyDef> {
             artefact_fraction: 0.03,
             proper_motion_below_mag: None,
             dropout: 0.0,
+            point_sources_only: false,
+            extent_coeff: 0.2,
+            coarse_band: None,
+            forced_above_r_jy: Some(KOS_R_5SIGMA_JY),
         },
         SurveyDef {
             name: "ember",
@@ -314,6 +375,10 @@ pub fn definitions() -> Vec<SurveyDef> {
             artefact_fraction: 0.04,
             proper_motion_below_mag: None,
             dropout: 0.0,
+            point_sources_only: false,
+            extent_coeff: 0.0,
+            coarse_band: None,
+            forced_above_r_jy: None,
         },
     ]
 }
@@ -343,6 +408,10 @@ pub struct ObservedSource {
     pub lost: Vec<bool>,
     /// Indices of the true objects this source is made of (empty for an artefact).
     pub members: Vec<usize>,
+    /// Measured half-light radius, arcsec, when the dominant member is extended.
+    pub half_light_arcsec: Option<f64>,
+    /// Measured by forced photometry at a position known from elsewhere.
+    pub forced: bool,
 }
 
 /// What one survey saw.
@@ -369,6 +438,19 @@ impl HarrierCoverage {
     /// The cells whose centre-sampling grid (3.6″ steps) touches the eastern 60 % of
     /// the field, with a 20″ margin around the field's other edges.
     pub fn new() -> HarrierCoverage {
+        Self::sampled(-FIELD_HALF_SIZE_DEG - 20.0 / 3600.0)
+    }
+
+    /// The footprint of `harrier`'s 22 µm band: the cells of [`HarrierCoverage::new`]
+    /// north of 0.05° south of the field centre (about 70 % of them).
+    pub fn w4() -> HarrierCoverage {
+        Self::sampled(-0.05)
+    }
+
+    /// The cells touched by a 3.6″ grid over the eastern 60 % of the field (with a
+    /// 20″ margin on the north, east and south edges) from `south_deg` (north of the
+    /// centre, degrees) northward.
+    fn sampled(south_deg: f64) -> HarrierCoverage {
         let cos_dec = FIELD_DEC_DEG.to_radians().cos();
         let margin = 20.0 / 3600.0;
         let west = -FIELD_HALF_SIZE_DEG + 0.4 * 2.0 * FIELD_HALF_SIZE_DEG;
@@ -376,11 +458,15 @@ impl HarrierCoverage {
         let step = 1.0 / 1000.0;
         let mut cells = BTreeSet::new();
         let nx = ((east - west) / step).ceil() as i64;
+        let start = -FIELD_HALF_SIZE_DEG - margin;
         let ny = ((2.0 * (FIELD_HALF_SIZE_DEG + margin)) / step).ceil() as i64;
         for ix in 0..=nx {
             for iy in 0..=ny {
                 let x = west + ix as f64 * step;
-                let y = -FIELD_HALF_SIZE_DEG - margin + iy as f64 * step;
+                let y = start + iy as f64 * step;
+                if y < south_deg {
+                    continue;
+                }
                 cells.insert(home_cell(
                     Self::ORDER,
                     FIELD_RA_DEG + x / cos_dec,
@@ -441,6 +527,56 @@ pub fn mjd_to_year(mjd: f64) -> f64 {
     2000.0 + (mjd - 51_544.5) / 365.25
 }
 
+/// Friends-of-friends groups of `points` (RA, Dec in degrees) linked closer than
+/// `link_arcsec`, each group's indices ascending, groups by their first index.
+fn friends_of_friends(points: &[(f64, f64)], link_arcsec: f64) -> Vec<Vec<usize>> {
+    let link_deg = link_arcsec / 3600.0;
+    let cos_dec = FIELD_DEC_DEG.to_radians().cos();
+    let mut group: Vec<usize> = (0..points.len()).collect();
+    fn root(group: &mut [usize], mut i: usize) -> usize {
+        while group[i] != i {
+            group[i] = group[group[i]];
+            i = group[i];
+        }
+        i
+    }
+    for a in 0..points.len() {
+        for b in a + 1..points.len() {
+            let dx = (points[a].0 - points[b].0) * cos_dec;
+            let dy = points[a].1 - points[b].1;
+            if dx.hypot(dy) < link_deg {
+                let (ra_, rb) = (root(&mut group, a), root(&mut group, b));
+                group[ra_.max(rb)] = ra_.min(rb);
+            }
+        }
+    }
+    let mut groups: Vec<Vec<usize>> = Vec::new();
+    let mut slot = vec![usize::MAX; points.len()];
+    for k in 0..points.len() {
+        let r = root(&mut group, k);
+        if slot[r] == usize::MAX {
+            slot[r] = groups.len();
+            groups.push(Vec::new());
+        }
+        groups[slot[r]].push(k);
+    }
+    groups
+}
+
+/// Where a source is and what it is made of, before the survey measures its position.
+struct Placed {
+    ra: f64,
+    dec: f64,
+    epoch_yr: f64,
+    true_pm: (f64, f64),
+    /// Half-light radius of the dominant member when it is extended, arcsec.
+    extent_arcsec: Option<f64>,
+    /// FWHM and S/N that set the centroid error.
+    fwhm_arcsec: f64,
+    snr: f64,
+    members: Vec<usize>,
+}
+
 /// Observes the truth with one survey (see the module documentation for the steps).
 pub fn observe(
     def: &SurveyDef,
@@ -454,9 +590,12 @@ pub fn observe(
     let band_index: Vec<usize> = def.bands.iter().map(|b| BandGrid::index(b.band)).collect();
     let sky: Vec<f64> = (0..nb).map(|b| def.sky_sigma_jy(b, grid)).collect();
     let covered = |ra: f64, dec: f64| !def.eastern_only || coverage.contains(ra, dec);
+    let coarse_coverage = def.coarse_band.map(|_| HarrierCoverage::w4());
+    let cos_dec = FIELD_DEC_DEG.to_radians().cos();
 
     // 1-2: positions at the survey epoch; objects in the footprint bright enough to matter.
     let mut epochs = Vec::with_capacity(truth.len());
+    let mut at_epoch = Vec::with_capacity(truth.len());
     let mut seen: Vec<(usize, f64, f64)> = Vec::new();
     for (i, o) in truth.iter().enumerate() {
         let epoch_yr = match def.epoch {
@@ -471,45 +610,20 @@ pub fn observe(
             o.pmdec_masyr,
             epoch_yr - TRUTH_EPOCH_YR,
         );
+        at_epoch.push((ra, dec));
         let visible = (0..nb).any(|b| o.flux_jy[band_index[b]] >= sky[b]);
-        if visible && covered(ra, dec) {
+        let kept = !(def.point_sources_only && o.kind == Kind::Galaxy);
+        if visible && kept && covered(ra, dec) {
             seen.push((i, ra, dec));
         }
     }
 
-    // 3: blends by friends of friends within 0.8 × resolution.
-    let link_deg = 0.8 * def.resolution_arcsec / 3600.0;
-    let cos_dec = FIELD_DEC_DEG.to_radians().cos();
-    let mut group: Vec<usize> = (0..seen.len()).collect();
-    fn root(group: &mut [usize], mut i: usize) -> usize {
-        while group[i] != i {
-            group[i] = group[group[i]];
-            i = group[i];
-        }
-        i
-    }
-    for a in 0..seen.len() {
-        for b in a + 1..seen.len() {
-            let dx = (seen[a].1 - seen[b].1) * cos_dec;
-            let dy = seen[a].2 - seen[b].2;
-            if dx.hypot(dy) < link_deg {
-                let (ra_, rb) = (root(&mut group, a), root(&mut group, b));
-                group[ra_.max(rb)] = ra_.min(rb);
-            }
-        }
-    }
-    let mut groups: Vec<Vec<usize>> = Vec::new();
-    let mut slot = vec![usize::MAX; seen.len()];
-    for k in 0..seen.len() {
-        let r = root(&mut group, k);
-        if slot[r] == usize::MAX {
-            slot[r] = groups.len();
-            groups.push(Vec::new());
-        }
-        groups[slot[r]].push(k);
-    }
+    // 3: blends by friends of friends closer than the resolution.
+    let points: Vec<(f64, f64)> = seen.iter().map(|s| (s.1, s.2)).collect();
+    let groups = friends_of_friends(&points, def.resolution_arcsec);
 
     let mut sources = Vec::new();
+    let mut detected_member = vec![false; truth.len()];
     for members in &groups {
         let mut true_flux = vec![0.0; nb];
         let (mut wsum, mut wra, mut wdec, mut wpmra, mut wpmdec) = (0.0, 0.0, 0.0, 0.0, 0.0);
@@ -530,9 +644,7 @@ pub fn observe(
                 best = (w, k);
             }
         }
-        let (ra, dec) = (wra / wsum, wdec / wsum);
-        let extended = truth[seen[best.1].0].kind == Kind::Galaxy;
-        let epoch_yr = epochs[seen[best.1].0];
+        let dominant = seen[best.1].0;
 
         // 4-5: noise and detection.
         let sigma: Vec<f64> = (0..nb)
@@ -549,14 +661,100 @@ pub fn observe(
             m.sort_unstable();
             m
         };
-        let pm = (wpmra / wsum, wpmdec / wsum);
-        sources.push(finish_source(
-            def, grid, &mut rng, ra, dec, epoch_yr, pm, flux, sigma, extended, member_ids,
-        ));
+        for &m in &member_ids {
+            detected_member[m] = true;
+        }
+        let b = def.astrometry_band;
+        let placed = Placed {
+            ra: wra / wsum,
+            dec: wdec / wsum,
+            epoch_yr: epochs[dominant],
+            true_pm: (wpmra / wsum, wpmdec / wsum),
+            extent_arcsec: truth[dominant].half_light_arcsec,
+            fwhm_arcsec: def.resolution_arcsec,
+            snr: flux[b] / sigma[b],
+            members: member_ids,
+        };
+        let mut source = finish_source(def, grid, &mut rng, placed, flux, sigma);
+        if let Some((cb, cov)) = def.coarse_band.zip(coarse_coverage.as_ref())
+            && !cov.contains(source.ra_deg, source.dec_deg)
+        {
+            // The coarse band was not observed here.
+            source.lost[cb.band] = true;
+        }
+        sources.push(source);
+    }
+    let n_detected = sources.len();
+
+    // The coarse band alone: objects no row holds, inside its footprint, grouped at
+    // its own resolution; a group bright enough in that band is a row of it alone.
+    if let Some((cb, cov)) = def.coarse_band.zip(coarse_coverage.as_ref()) {
+        let b = cb.band;
+        let alone: Vec<usize> = (0..truth.len())
+            .filter(|&i| {
+                let (ra, dec) = at_epoch[i];
+                !detected_member[i]
+                    && truth[i].flux_jy[band_index[b]] >= sky[b]
+                    && cov.contains(ra, dec)
+                    && !(def.point_sources_only && truth[i].kind == Kind::Galaxy)
+            })
+            .collect();
+        let points: Vec<(f64, f64)> = alone.iter().map(|&i| at_epoch[i]).collect();
+        for group in friends_of_friends(&points, cb.resolution_arcsec) {
+            let members: Vec<usize> = group.iter().map(|&k| alone[k]).collect();
+            let fluxes: Vec<f64> = members
+                .iter()
+                .map(|&i| truth[i].flux_jy[band_index[b]])
+                .collect();
+            let total: f64 = fluxes.iter().sum();
+            let sigma_b = sky[b].hypot(def.bands[b].floor * total);
+            let measured = total + sigma_b * rng.normal();
+            if measured < cb.min_snr * sigma_b {
+                continue;
+            }
+            let weight = |f: &f64| f / total;
+            let ra = members
+                .iter()
+                .zip(&fluxes)
+                .map(|(&i, f)| weight(f) * at_epoch[i].0)
+                .sum();
+            let dec = members
+                .iter()
+                .zip(&fluxes)
+                .map(|(&i, f)| weight(f) * at_epoch[i].1)
+                .sum();
+            let dominant = members[fluxes
+                .iter()
+                .enumerate()
+                .max_by(|x, y| x.1.total_cmp(y.1))
+                .map_or(0, |(k, _)| k)];
+            let mut flux = vec![0.0; nb];
+            let mut sigma = sky.clone();
+            flux[b] = measured;
+            sigma[b] = sigma_b;
+            let placed = Placed {
+                ra,
+                dec,
+                epoch_yr: epochs[dominant],
+                true_pm: (
+                    truth[dominant].pmra_cosdec_masyr,
+                    truth[dominant].pmdec_masyr,
+                ),
+                extent_arcsec: truth[dominant].half_light_arcsec,
+                fwhm_arcsec: cb.resolution_arcsec,
+                snr: measured / sigma_b,
+                members,
+            };
+            let mut source = finish_source(def, grid, &mut rng, placed, flux, sigma);
+            for (k, lost) in source.lost.iter_mut().enumerate() {
+                *lost = k != b;
+            }
+            sources.push(source);
+        }
     }
 
     // 7: artefacts, uniform in the footprint, just above threshold in one detection band.
-    let n_artefacts = (def.artefact_fraction * sources.len() as f64).round() as usize;
+    let n_artefacts = (def.artefact_fraction * n_detected as f64).round() as usize;
     let detection_bands: Vec<usize> = (0..nb)
         .filter(|&b| def.detection_flux_jy(b, grid).is_some())
         .collect();
@@ -579,20 +777,62 @@ pub fn observe(
             SurveyEpoch::Year(y) => y,
             SurveyEpoch::MjdRange(a, b) => mjd_to_year(rng.range(a, b)),
         };
-        sources.push(finish_source(
-            def,
-            grid,
-            &mut rng,
+        let b = def.astrometry_band;
+        let placed = Placed {
             ra,
             dec,
             epoch_yr,
-            (0.0, 0.0),
-            flux,
-            sigma,
-            false,
-            Vec::new(),
-        ));
+            true_pm: (0.0, 0.0),
+            extent_arcsec: None,
+            fwhm_arcsec: def.resolution_arcsec,
+            snr: flux[b] / sigma[b],
+            members: Vec::new(),
+        };
+        let mut source = finish_source(def, grid, &mut rng, placed, flux, sigma);
+        if let Some((cb, cov)) = def.coarse_band.zip(coarse_coverage.as_ref())
+            && !cov.contains(source.ra_deg, source.dec_deg)
+        {
+            source.lost[cb.band] = true;
+        }
+        sources.push(source);
         made += 1;
+    }
+
+    // Forced photometry at the objects an optical survey sees and this one did not
+    // detect: measured at their positions whatever the S/N, marked forced.
+    if let Some(r_jy) = def.forced_above_r_jy {
+        let r = BandGrid::index("sdss_r");
+        for (i, o) in truth.iter().enumerate() {
+            let (ra, dec) = at_epoch[i];
+            if detected_member[i]
+                || o.flux_jy[r] < r_jy
+                || !super::truth::in_field(ra, dec)
+                || !covered(ra, dec)
+            {
+                continue;
+            }
+            let true_flux: Vec<f64> = band_index.iter().map(|&k| o.flux_jy[k]).collect();
+            let sigma: Vec<f64> = (0..nb)
+                .map(|b| sky[b].hypot(def.bands[b].floor * true_flux[b]))
+                .collect();
+            let flux: Vec<f64> = (0..nb)
+                .map(|b| true_flux[b] + sigma[b] * rng.normal())
+                .collect();
+            let b = def.astrometry_band;
+            let placed = Placed {
+                ra,
+                dec,
+                epoch_yr: epochs[i],
+                true_pm: (o.pmra_cosdec_masyr, o.pmdec_masyr),
+                extent_arcsec: o.half_light_arcsec,
+                fwhm_arcsec: def.resolution_arcsec,
+                snr: flux[b] / sigma[b],
+                members: vec![i],
+            };
+            let mut source = finish_source(def, grid, &mut rng, placed, flux, sigma);
+            source.forced = true;
+            sources.push(source);
+        }
     }
     sources
 }
@@ -610,27 +850,19 @@ fn detected(def: &SurveyDef, grid: &BandGrid, flux: &[f64], sigma: &[f64]) -> bo
 }
 
 /// Quoted positional error, scattered position, proper motion and lost bands of one
-/// detected source (steps 6 of the module documentation).
-#[allow(clippy::too_many_arguments)]
+/// detected source (step 6 of the module documentation).
 fn finish_source(
     def: &SurveyDef,
     grid: &BandGrid,
     rng: &mut Rng,
-    ra: f64,
-    dec: f64,
-    epoch_yr: f64,
-    true_pm: (f64, f64),
+    placed: Placed,
     flux: Vec<f64>,
     sigma: Vec<f64>,
-    extended: bool,
-    members: Vec<usize>,
 ) -> ObservedSource {
-    let scale = if extended { 3.0 } else { 1.0 };
-    let b = def.astrometry_band;
-    let snr = (flux[b] / sigma[b]).max(3.0);
+    let snr = placed.snr.max(3.0);
     let centroid = def
         .pos_floor_arcsec
-        .hypot(def.centroid_factor * def.resolution_arcsec / snr);
+        .hypot(def.centroid_factor * placed.fwhm_arcsec / snr);
     let (err_a, err_b, pa) = match def.error_shape {
         ErrorShape::Axes => (
             centroid * rng.range(0.8, 1.25),
@@ -645,28 +877,30 @@ fn finish_source(
         ),
         ErrorShape::Fixed(s) => (s, s, 0.0),
     };
-    let (err_a, err_b) = match def.error_shape {
-        ErrorShape::Fixed(_) => (err_a, err_b),
-        _ => (err_a * scale, err_b * scale),
-    };
     // Scatter: along the quoted ellipse, plus the unquoted systematic scatter, plus
-    // the survey's fixed offset.
+    // the centroid scatter of an extended source, plus the survey's fixed offset.
+    let extent = placed.extent_arcsec.map_or(0.0, |r| def.extent_coeff * r);
+    let unquoted = def.systematic_arcsec.hypot(extent);
     let (na, nb) = (rng.normal() * err_a, rng.normal() * err_b);
     let pa_rad = pa.to_radians();
-    let east = na * pa_rad.sin()
-        + nb * pa_rad.cos()
-        + def.systematic_arcsec * rng.normal()
-        + def.ra_offset_arcsec;
-    let north = na * pa_rad.cos() - nb * pa_rad.sin() + def.systematic_arcsec * rng.normal();
-    let (ra_obs, dec_obs) = propagate_deg(ra, dec, east * 1000.0, north * 1000.0, 1.0);
+    let east =
+        na * pa_rad.sin() + nb * pa_rad.cos() + unquoted * rng.normal() + def.ra_offset_arcsec;
+    let north = na * pa_rad.cos() - nb * pa_rad.sin() + unquoted * rng.normal();
+    let (ra_obs, dec_obs) =
+        propagate_deg(placed.ra, placed.dec, east * 1000.0, north * 1000.0, 1.0);
+    // The survey's own size measurement: 10 % scatter about the true radius.
+    let half_light_arcsec = placed
+        .extent_arcsec
+        .map(|r| r * (1.0 + 0.1 * rng.normal()).max(0.3));
 
+    let true_pm = placed.true_pm;
     let pm_masyr = def.proper_motion_below_mag.and_then(|limit| {
         let zp = grid.zero_point_jy[BandGrid::index(def.bands[0].band)];
         let mag = -2.5 * (flux[0] / zp).log10();
         // Proper-motion error 0.02 mas/yr at magnitude 15, growing as 10^(0.2 (m − 15))
         // (photon-noise scaling of astrometry, σ ∝ 1/√F; common practice).
         (mag <= limit).then(|| {
-            let s = 0.02 * 10f64.powf(0.2 * (mag - 15.0)) * scale;
+            let s = 0.02 * 10f64.powf(0.2 * (mag - 15.0));
             (true_pm.0 + s * rng.normal(), true_pm.1 + s * rng.normal())
         })
     });
@@ -676,7 +910,7 @@ fn finish_source(
     ObservedSource {
         ra_deg: ra_obs,
         dec_deg: dec_obs,
-        epoch_yr,
+        epoch_yr: placed.epoch_yr,
         err_a_arcsec: err_a,
         err_b_arcsec: err_b,
         err_pa_deg: pa,
@@ -684,7 +918,9 @@ fn finish_source(
         flux_jy: flux,
         sigma_jy: sigma,
         lost,
-        members,
+        members: placed.members,
+        half_light_arcsec,
+        forced: false,
     }
 }
 
@@ -734,6 +970,9 @@ mod tests {
             teff_k: None,
             av_mag: 0.0,
             flux_jy: vec![0.01; grid.wavelength_um.len()],
+            half_light_arcsec: None,
+            population: crate::demo::truth::Population::Field,
+            pair: None,
         };
         let near = [make(231.2, 12.4), make(231.2, 12.4 + 3.0 / 3600.0)];
         let seen = observe(&def, &near, &grid, &coverage, 1);

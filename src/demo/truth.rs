@@ -1,7 +1,9 @@
 //! The true objects of the demo field and their model spectral energy distributions.
 //!
-//! [`generate`] places 600 objects in the field and gives each a true flux density in
-//! every band of [`DEMO_BANDS`]. The models are deliberately simple and are meant for
+//! [`generate`] places 654 objects in the field and gives each a true flux density in
+//! every band of [`DEMO_BANDS`] and a [`Population`] (field objects, high-proper-motion
+//! stars with catalog motions, faint fast movers without, dusty galaxies, companions)
+//! and, for pairs, a [`PairKind`]. The models are deliberately simple and are meant for
 //! demo data only:
 //!
 //! - **Photospheres** ([`Kind::Star`], [`Kind::ClassIII`], and under the disks of
@@ -15,7 +17,13 @@
 //!   Greene et al. 1994 (Class II −1.6 ≤ α < −0.3, Class I α ≥ 0.3).
 //! - **Galaxies** ([`Kind::Galaxy`]): a cool (3500 K) blackbody stellar bump with
 //!   internal reddening plus a dust power law νF_ν ∝ λ^β (β in 0…0.8, so νF_ν is flat or
-//!   rising into the mid-infrared), scaled to a faint Ks.
+//!   rising into the mid-infrared), scaled to a faint Ks, with a half-light radius of
+//!   0.4–2.5″ (log-uniform). Dusty galaxies: the dust term alone with β = 2–2.6 and a
+//!   3 µm cut-off, scaled to a 22 µm (W4-like) magnitude of 6.6–7.6.
+//! - **Fast movers**: cool photospheres (3200–4500 K) moving 20–300 mas/yr
+//!   (log-uniform), placed at the distance that makes G 19.1–21.5.
+//! - **Companions**: copies of a star's spectrum scaled by 0.02–0.07 (faint neighbours)
+//!   or 0.5–1.0 (equal companions), 2–4.5″ away.
 //!
 //! α follows Lada 1987 (IAU Symp. 115, from memory): α = d log(λF_λ) / d log λ, with λF_λ ∝ F_ν / λ.
 
@@ -112,6 +120,68 @@ pub struct TruthObject {
     pub av_mag: f64,
     /// True flux density in Jy per band of [`DEMO_BANDS`].
     pub flux_jy: Vec<f64>,
+    /// Half-light radius of an extended object (galaxies), arcsec.
+    pub half_light_arcsec: Option<f64>,
+    /// Which population the object was made for.
+    pub population: Population,
+    /// The pair the object belongs to, with the index of its partner.
+    pub pair: Option<(PairKind, usize)>,
+}
+
+/// The population a true object was made for (written as `population`).
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Population {
+    /// An ordinary object of its kind.
+    Field,
+    /// A nearby star moving 100–600 mas/yr, bright enough for `ask` to measure its motion.
+    HighPm,
+    /// A star moving 20–300 mas/yr, too faint (G > 19) for `ask` to give a motion:
+    /// only the positions at the survey epochs tell.
+    FastMover,
+    /// A dusty galaxy whose light rises steeply into the mid-infrared: among the
+    /// `harrier` bands it is detected at 22 µm only.
+    Dusty,
+    /// A copy of a bright star's spectrum, scaled down, placed beside it (a faint
+    /// neighbour or an equal companion, see [`PairKind`]).
+    Companion,
+}
+
+impl Population {
+    /// The name used in `truth_objects.csv`.
+    pub fn as_str(self) -> &'static str {
+        match self {
+            Population::Field => "field",
+            Population::HighPm => "high_pm",
+            Population::FastMover => "fast_mover",
+            Population::Dusty => "dusty",
+            Population::Companion => "companion",
+        }
+    }
+}
+
+/// The kind of pair two true objects were placed in (written as `pair`).
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum PairKind {
+    /// 1.5–4″ apart, independent spectra.
+    Wide,
+    /// 0.5–0.95″ apart, independent spectra.
+    Close,
+    /// A companion with 2–7 % of a bright star's flux in every band, 2–4.5″ away.
+    FaintNeighbour,
+    /// A companion with 50–100 % of a star's flux in every band, 2–4.5″ away.
+    Equal,
+}
+
+impl PairKind {
+    /// The name used in `truth_objects.csv`.
+    pub fn as_str(self) -> &'static str {
+        match self {
+            PairKind::Wide => "wide",
+            PairKind::Close => "close",
+            PairKind::FaintNeighbour => "faint_neighbour",
+            PairKind::Equal => "equal",
+        }
+    }
 }
 
 /// Wavelength (µm) and zero point (Jy) of each band of [`DEMO_BANDS`], from the
@@ -207,21 +277,30 @@ pub fn alpha_2_24(grid: &BandGrid, flux_jy: &[f64]) -> f64 {
     spectral_index(&l, &f)
 }
 
-/// Number of objects per kind: 378 stars (5 of them high-proper-motion), 10 Class I,
-/// 62 Class II, 60 Class III and 90 galaxies: 600 in all.
+/// Number of objects per kind before the companions are added: 398 stars (5 of them
+/// high-proper-motion, 20 fast movers), 10 Class I, 62 Class II, 60 Class III and 100
+/// galaxies (10 of them dusty): 630, and 24 companions (stars) make 654.
 const COUNTS: [(Kind, usize); 5] = [
-    (Kind::Star, 378),
+    (Kind::Star, 398),
     (Kind::ClassI, 10),
     (Kind::ClassII, 62),
     (Kind::ClassIII, 60),
-    (Kind::Galaxy, 90),
+    (Kind::Galaxy, 100),
 ];
 /// How many of the stars are high-proper-motion stars (100–600 mas/yr).
 const HIGH_PM_STARS: usize = 5;
+/// How many of the stars are faint fast movers (20–300 mas/yr, G 19.1–21.5).
+const FAST_MOVERS: usize = 20;
+/// How many of the galaxies are dusty (detected by `harrier` at 22 µm only).
+const DUSTY_GALAXIES: usize = 10;
+/// Faint neighbours (2–7 % of a bright star's flux) and equal companions (50–100 %).
+const FAINT_NEIGHBOURS: usize = 12;
+/// See [`FAINT_NEIGHBOURS`].
+const EQUAL_COMPANIONS: usize = 12;
 /// Pairs at 1.5–4″ (blends for the 6″ surveys) and below 1″.
 const WIDE_PAIRS: usize = 15;
-/// Pairs closer than 1″.
-const CLOSE_PAIRS: usize = 5;
+/// Pairs closer than 1″, both stars brighter than G = 20 (so `ask` separates them).
+const CLOSE_PAIRS: usize = 8;
 /// Centre of the young-star group, offset from the field centre (east, north), degrees.
 const YSO_GROUP_OFFSET_DEG: (f64, f64) = (0.05, 0.02);
 /// Gaussian radius of the young-star group, degrees.
@@ -234,8 +313,13 @@ pub fn generate(seed: u64) -> Vec<TruthObject> {
     let mut objects = Vec::new();
     for (kind, count) in COUNTS {
         for k in 0..count {
-            let high_pm = kind == Kind::Star && k < HIGH_PM_STARS;
-            objects.push(make_object(kind, high_pm, &grid, &mut rng));
+            let population = match kind {
+                Kind::Star if k < HIGH_PM_STARS => Population::HighPm,
+                Kind::Star if k < HIGH_PM_STARS + FAST_MOVERS => Population::FastMover,
+                Kind::Galaxy if k < DUSTY_GALAXIES => Population::Dusty,
+                _ => Population::Field,
+            };
+            objects.push(make_object(kind, population, &grid, &mut rng));
         }
     }
     // Mix the kinds so that identifiers do not reveal them (Fisher–Yates shuffle).
@@ -244,6 +328,23 @@ pub fn generate(seed: u64) -> Vec<TruthObject> {
         objects.swap(i, j);
     }
     place_pairs(&mut objects, &mut rng);
+    add_companions(&mut objects, &mut rng);
+    // Mix the companions in too, keeping each pair's partner index right.
+    let mut order: Vec<usize> = (0..objects.len()).collect();
+    for i in (1..order.len()).rev() {
+        let j = rng.below(i + 1);
+        order.swap(i, j);
+    }
+    let mut new_index = vec![0; order.len()];
+    for (new, &old) in order.iter().enumerate() {
+        new_index[old] = new;
+    }
+    let mut objects: Vec<TruthObject> = order.iter().map(|&old| objects[old].clone()).collect();
+    for o in &mut objects {
+        if let Some((kind, partner)) = o.pair {
+            o.pair = Some((kind, new_index[partner]));
+        }
+    }
     for (i, o) in objects.iter_mut().enumerate() {
         o.truth_id = format!("T{:04}", i + 1);
     }
@@ -328,15 +429,25 @@ fn with_disk(grid: &BandGrid, phot: &[f64], target: f64, beta: f64, av: f64) -> 
     total(0.5 * (lo + hi))
 }
 
-fn make_object(kind: Kind, high_pm: bool, grid: &BandGrid, rng: &mut Rng) -> TruthObject {
+fn make_object(kind: Kind, population: Population, grid: &BandGrid, rng: &mut Rng) -> TruthObject {
     let (mut pmra, mut pmdec) = (0.0, 0.0);
-    let (ra_deg, dec_deg) = match kind {
-        Kind::ClassI | Kind::ClassII | Kind::ClassIII => young_star_position(rng),
-        Kind::Star | Kind::Galaxy => uniform_position(rng),
+    let mut half_light_arcsec = None;
+    let (ra_deg, dec_deg) = match (kind, population) {
+        (Kind::ClassI | Kind::ClassII | Kind::ClassIII, _) => young_star_position(rng),
+        (_, Population::Dusty) => dusty_position(rng),
+        _ => uniform_position(rng),
     };
+    let high_pm = population == Population::HighPm;
     let (flux_jy, teff_k, av_mag, alpha) = match kind {
         Kind::Star => {
-            let (t, d, av) = if high_pm {
+            let (t, d, av) = if population == Population::FastMover {
+                // Speed log-uniform in 20–300 mas/yr; the distance is set below from G.
+                let speed = rng.range(20f64.ln(), 300f64.ln()).exp();
+                let pa = rng.range(0.0, std::f64::consts::TAU);
+                pmra = speed * pa.sin();
+                pmdec = speed * pa.cos();
+                (rng.range(3200.0, 4500.0), 1.0, rng.range(0.0, 0.3))
+            } else if high_pm {
                 let speed = rng.range(100.0, 600.0);
                 let pa = rng.range(0.0, std::f64::consts::TAU);
                 pmra = speed * pa.sin();
@@ -353,7 +464,16 @@ fn make_object(kind: Kind, high_pm: bool, grid: &BandGrid, rng: &mut Rng) -> Tru
                 (3200.0 + 5800.0 * u * u, d, rng.range(0.0, 3.0))
             };
             let r = (t / SOLAR_TEFF_K).powf(1.5);
-            (photosphere(grid, t, r, d, av), Some(t), av, None)
+            let mut flux = photosphere(grid, t, r, d, av);
+            if population == Population::FastMover {
+                // Placed at the distance that gives G = 19.1–21.5: fainter than the
+                // G = 19 limit of `ask`'s proper motions (F ∝ 1/d²).
+                let g = BandGrid::index("gaia_g");
+                let target = grid.zero_point_jy[g] * 10f64.powf(-0.4 * rng.range(19.1, 21.5));
+                let scale = target / flux[g];
+                flux.iter_mut().for_each(|f| *f *= scale);
+            }
+            (flux, Some(t), av, None)
         }
         Kind::ClassI | Kind::ClassII | Kind::ClassIII => {
             let t = rng.range(3200.0, 5000.0);
@@ -378,7 +498,25 @@ fn make_object(kind: Kind, high_pm: bool, grid: &BandGrid, rng: &mut Rng) -> Tru
             let alpha = alpha_2_24(grid, &flux);
             (flux, Some(t), av, Some(alpha))
         }
+        Kind::Galaxy if population == Population::Dusty => {
+            // Dust alone, νF_ν ∝ λ^β exp(−(3 µm/λ)²) with β = 2–2.6, scaled to a
+            // 22 µm magnitude of 6.6–7.6 (W4-like): fainter than the 3.4 and 4.6 µm
+            // detection limits of `harrier`, brighter than its 22 µm one.
+            half_light_arcsec = Some(rng.range(0.4f64.ln(), 2.5f64.ln()).exp());
+            let av = rng.range(0.5, 2.5);
+            let beta = rng.range(2.0, 2.6);
+            let shape: Vec<f64> = grid
+                .wavelength_um
+                .iter()
+                .map(|&l| (l / 22.0).powf(beta + 1.0) * (-(3.0 / l).powi(2)).exp())
+                .collect();
+            let w4 = BandGrid::index("wise_w4");
+            let mag = rng.range(6.6, 7.6);
+            let scale = grid.zero_point_jy[w4] * 10f64.powf(-0.4 * mag) / shape[w4];
+            (shape.iter().map(|s| s * scale).collect(), None, av, None)
+        }
         Kind::Galaxy => {
+            half_light_arcsec = Some(rng.range(0.4f64.ln(), 2.5f64.ln()).exp());
             let av = rng.range(0.5, 2.5);
             let beta = rng.range(0.0, 0.8);
             let k = rng.range(0.1, 0.8);
@@ -414,16 +552,103 @@ fn make_object(kind: Kind, high_pm: bool, grid: &BandGrid, rng: &mut Rng) -> Tru
         teff_k,
         av_mag,
         flux_jy,
+        half_light_arcsec,
+        population,
+        pair: None,
+    }
+}
+
+/// A position inside the part of the field where `harrier` observes 22 µm (the
+/// north-east), for the dusty galaxies.
+fn dusty_position(rng: &mut Rng) -> (f64, f64) {
+    let cos_dec = FIELD_DEC_DEG.to_radians().cos();
+    let east = rng.range(0.0, FIELD_HALF_SIZE_DEG - 0.01);
+    let north = rng.range(-0.03, FIELD_HALF_SIZE_DEG - 0.01);
+    (FIELD_RA_DEG + east / cos_dec, FIELD_DEC_DEG + north)
+}
+
+/// A position `sep_arcsec` from (`ra`, `dec`) along position angle `pa` (radians),
+/// as one year of motion (exact on the sphere).
+fn offset_position(ra: f64, dec: f64, sep_arcsec: f64, pa: f64) -> (f64, f64) {
+    propagate_deg(
+        ra,
+        dec,
+        sep_arcsec * 1000.0 * pa.sin(),
+        sep_arcsec * 1000.0 * pa.cos(),
+        1.0,
+    )
+}
+
+/// Adds [`FAINT_NEIGHBOURS`] faint neighbours beside bright stars (G < 17) and
+/// [`EQUAL_COMPANIONS`] equal companions beside stars (G < 19), each a copy of its
+/// primary's spectrum scaled by 0.02–0.07 or 0.5–1.0, 2–4.5″ away: the 6″ beams
+/// see them as one source, the finer surveys as two. Primaries are stationary
+/// field stars in the eastern half, where `harrier` observes, not already in a pair.
+fn add_companions(objects: &mut Vec<TruthObject>, rng: &mut Rng) {
+    let g = BandGrid::index("gaia_g");
+    let zp_g = BandGrid::builtin().zero_point_jy[g];
+    let brighter = |o: &TruthObject, mag: f64| o.flux_jy[g] > zp_g * 10f64.powf(-0.4 * mag);
+    let mut pool: Vec<usize> = (0..objects.len())
+        .filter(|&i| {
+            let o = &objects[i];
+            o.kind == Kind::Star
+                && o.population == Population::Field
+                && o.pair.is_none()
+                && o.ra_deg > FIELD_RA_DEG + 0.01
+                && brighter(o, 19.0)
+        })
+        .collect();
+    for p in 0..FAINT_NEIGHBOURS + EQUAL_COMPANIONS {
+        let faint = p < FAINT_NEIGHBOURS;
+        let candidates: Vec<usize> = pool
+            .iter()
+            .copied()
+            .filter(|&i| !faint || brighter(&objects[i], 17.0))
+            .collect();
+        let primary = candidates[rng.below(candidates.len())];
+        pool.retain(|&i| i != primary);
+        let ratio = if faint {
+            rng.range(0.02, 0.07)
+        } else {
+            rng.range(0.5, 1.0)
+        };
+        let sep = rng.range(2.0, 4.5);
+        let pa = rng.range(0.0, std::f64::consts::TAU);
+        let o = &objects[primary];
+        let (ra, dec) = offset_position(o.ra_deg, o.dec_deg, sep, pa);
+        let kind = if faint {
+            PairKind::FaintNeighbour
+        } else {
+            PairKind::Equal
+        };
+        let companion = TruthObject {
+            truth_id: String::new(),
+            kind: Kind::Star,
+            ra_deg: ra,
+            dec_deg: dec,
+            pmra_cosdec_masyr: 0.0,
+            pmdec_masyr: 0.0,
+            alpha: None,
+            teff_k: o.teff_k,
+            av_mag: o.av_mag,
+            flux_jy: o.flux_jy.iter().map(|f| f * ratio).collect(),
+            half_light_arcsec: None,
+            population: Population::Companion,
+            pair: Some((kind, primary)),
+        };
+        let index = objects.len();
+        objects[primary].pair = Some((kind, index));
+        objects.push(companion);
     }
 }
 
 /// Moves companions next to primaries: [`WIDE_PAIRS`] pairs at 1.5–4″ (the first five
 /// between young stars, so that the 24 µm survey sees blends of two disks) and
-/// [`CLOSE_PAIRS`] pairs at 0.5–0.95″. High-proper-motion stars are left alone.
+/// [`CLOSE_PAIRS`] pairs of stars brighter than G = 20 (10⁻⁸ of the G zero point) at 0.5–0.95″. Only [`Population::Field`] objects take part.
 fn place_pairs(objects: &mut [TruthObject], rng: &mut Rng) {
     let is_young = |o: &TruthObject| matches!(o.kind, Kind::ClassI | Kind::ClassII);
     let free: Vec<usize> = (0..objects.len())
-        .filter(|&i| objects[i].pmra_cosdec_masyr == 0.0 && objects[i].pmdec_masyr == 0.0)
+        .filter(|&i| objects[i].population == Population::Field)
         .collect();
     let mut young: Vec<usize> = free
         .iter()
@@ -435,12 +660,23 @@ fn place_pairs(objects: &mut [TruthObject], rng: &mut Rng) {
         .copied()
         .filter(|&i| !is_young(&objects[i]))
         .collect();
+    let g = BandGrid::index("gaia_g");
+    let zp_g = BandGrid::builtin().zero_point_jy[g];
+    let mut bright: Vec<usize> = others
+        .iter()
+        .copied()
+        .filter(|&i| objects[i].kind == Kind::Star && objects[i].flux_jy[g] > zp_g * 1e-8)
+        .collect();
     let take = |pool: &mut Vec<usize>, rng: &mut Rng| pool.swap_remove(rng.below(pool.len()));
     for p in 0..WIDE_PAIRS + CLOSE_PAIRS {
         let (primary, secondary) = if p < 5 {
             (take(&mut young, rng), take(&mut young, rng))
+        } else if p < WIDE_PAIRS {
+            let pair = (take(&mut others, rng), take(&mut others, rng));
+            bright.retain(|&i| i != pair.0 && i != pair.1);
+            pair
         } else {
-            (take(&mut others, rng), take(&mut others, rng))
+            (take(&mut bright, rng), take(&mut bright, rng))
         };
         let sep_arcsec = if p < WIDE_PAIRS {
             rng.range(1.5, 4.0)
@@ -449,16 +685,16 @@ fn place_pairs(objects: &mut [TruthObject], rng: &mut Rng) {
         };
         let pa = rng.range(0.0, std::f64::consts::TAU);
         let (ra, dec) = (objects[primary].ra_deg, objects[primary].dec_deg);
-        // A displacement of sep along PA, as one year of motion (exact on the sphere).
-        let (ra2, dec2) = propagate_deg(
-            ra,
-            dec,
-            sep_arcsec * 1000.0 * pa.sin(),
-            sep_arcsec * 1000.0 * pa.cos(),
-            1.0,
-        );
+        let (ra2, dec2) = offset_position(ra, dec, sep_arcsec, pa);
         objects[secondary].ra_deg = ra2;
         objects[secondary].dec_deg = dec2;
+        let kind = if p < WIDE_PAIRS {
+            PairKind::Wide
+        } else {
+            PairKind::Close
+        };
+        objects[primary].pair = Some((kind, secondary));
+        objects[secondary].pair = Some((kind, primary));
     }
 }
 
@@ -532,14 +768,30 @@ mod tests {
     #[test]
     fn counts_and_identifiers() {
         let objects = generate(42);
-        assert_eq!(objects.len(), 600);
+        assert_eq!(objects.len(), 654);
         assert_eq!(objects[0].truth_id, "T0001");
-        assert_eq!(objects[599].truth_id, "T0600");
-        let high_pm = objects
-            .iter()
-            .filter(|o| o.pmra_cosdec_masyr.hypot(o.pmdec_masyr) >= 100.0)
-            .count();
-        assert_eq!(high_pm, HIGH_PM_STARS);
+        assert_eq!(objects[653].truth_id, "T0654");
+        let count = |p: Population| objects.iter().filter(|o| o.population == p).count();
+        assert_eq!(count(Population::HighPm), HIGH_PM_STARS);
+        assert_eq!(count(Population::FastMover), FAST_MOVERS);
+        assert_eq!(count(Population::Dusty), DUSTY_GALAXIES);
+        assert_eq!(
+            count(Population::Companion),
+            FAINT_NEIGHBOURS + EQUAL_COMPANIONS
+        );
+        for o in &objects {
+            let speed = o.pmra_cosdec_masyr.hypot(o.pmdec_masyr);
+            match o.population {
+                Population::HighPm => assert!((100.0..600.0).contains(&speed)),
+                Population::FastMover => assert!((20.0..300.0).contains(&speed)),
+                _ => assert_eq!(speed, 0.0),
+            }
+            assert_eq!(o.half_light_arcsec.is_some(), o.kind == Kind::Galaxy);
+            if let Some((_, partner)) = o.pair {
+                let back = objects[partner].pair.map(|p| p.1);
+                assert!(back.is_some(), "{}: partner without a pair", o.truth_id);
+            }
+        }
         assert!(objects.iter().all(|o| o.flux_jy.iter().all(|f| *f > 0.0)));
     }
 }

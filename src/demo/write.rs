@@ -8,8 +8,8 @@
 //! | `ask` | Parquet | Gaia-like Vega magnitudes | absent; BP/RP null below S/N 3 |
 //! | `kos` | CSV, sexagesimal, `#` header | SDSS-like asinh magnitudes | kept as (possibly negative-flux) asinh magnitudes; −9999 = no measurement |
 //! | `lantern` | VOTable | 2MASS-like Vega magnitudes | quality letter `U`: the magnitude is a 95 % upper limit; 99.999 = no measurement |
-//! | `harrier` | FITS | WISE-like Vega magnitudes | a magnitude without error is a 95 % upper limit |
-//! | `cinder` | gzip CSV | IRAC-like µJy, forced | every flux kept with its error; S/N < 3 read as a limit |
+//! | `harrier` | FITS | WISE-like Vega magnitudes; W4 with its own beam and footprint | a magnitude without error is a 95 % upper limit; empty = not detected (or W4 not observed) |
+//! | `cinder` | gzip CSV | IRAC-like µJy, some rows forced (`fphot`) | every flux kept with its error; S/N < 3 read as a limit |
 //! | `ember` | FITS | MIPS-like 24 µm mJy | absent below 0.5 mJy |
 //!
 //! A 95 % upper limit is F_lim = max(F, 0) + 1.645σ (one-sided Gaussian quantile 1.645 = Φ⁻¹(0.95), common practice).
@@ -440,6 +440,14 @@ fn write_kos(dir: &Path, sources: &[&ObservedSource]) -> Result<(Vec<String>, Ve
             .map(|s| Some(round(s.err_a_arcsec, 3).max(0.001)))
             .collect(),
     );
+    c.f64(
+        "petro_r50",
+        "arcsec",
+        sources
+            .iter()
+            .map(|s| s.half_light_arcsec.map(|r| round(r, 2)))
+            .collect(),
+    );
     for (b, id) in bands.iter().enumerate() {
         let band = library.get(id).expect("SDSS-like bands are built in");
         let f0 = band.zero_point_jy.expect("AB bands have a zero point");
@@ -473,7 +481,8 @@ fn write_kos(dir: &Path, sources: &[&ObservedSource]) -> Result<(Vec<String>, Ve
     let body = std::fs::read_to_string(&part).map_err(|e| Error::io(&part, e))?;
     std::fs::remove_file(&part).map_err(|e| Error::io(&part, e))?;
     let header = "# Kos optical imaging survey, field FL-1 (invented demo data; see README.md)\n\
-                  # positions: RA hh:mm:ss.sss, Dec +dd:mm:ss.ss, epoch 2008.0; pos_err: 1-sigma, arcsec\n\
+                  # positions: RA hh:mm:ss.sss, Dec +dd:mm:ss.ss, epoch 2000.0; pos_err: 1-sigma, arcsec\n\
+                  # petro_r50: half-light radius of extended sources, arcsec (empty: point source)\n\
                   # magnitudes: asinh (Lupton et al. 1999); u and z are on the survey system (AB = u - 0.04, z + 0.02)\n\
                   # -9999: no measurement (saturated or lost)\n";
     write_text(&path, &format!("{header}{body}"))?;
@@ -482,8 +491,9 @@ fn write_kos(dir: &Path, sources: &[&ObservedSource]) -> Result<(Vec<String>, Ve
 }
 
 const KOS_SCHEMA: &str = r##"# Survey schema for the invented Kos optical imaging survey (demo data, field FL-1).
-# Positions are sexagesimal text (RA in hours), epoch 2008.0, with a circular 1-sigma
-# error in arcsec. Magnitudes are asinh magnitudes (Lupton, Gunn & Szalay 1999) with
+# Positions are sexagesimal text (RA in hours), epoch 2000.0, with a circular 1-sigma
+# error in arcsec; extended sources have a half-light radius in petro_r50, whose
+# centroids scatter by 0.2 x that radius on top of the quoted error. Magnitudes are asinh magnitudes (Lupton, Gunn & Szalay 1999) with
 # the band library's softening; faint sources keep their magnitudes even when the flux
 # is negative. u and z are on the survey's own system: offset_mag applies the
 # published AB offsets (u_AB = u - 0.04, z_AB = z + 0.02). -9999 means no measurement.
@@ -501,9 +511,10 @@ ra = "ra_hms"
 dec = "dec_dms"
 format = "sexagesimal"
 error = { kind = "circular", column = "pos_err", unit = "arcsec" }
+extended = { size = "petro_r50", unit = "arcsec", kind = "half_light", coeff = 0.2 }
 
 [epoch]
-year = 2008.0
+year = 2000.0
 
 [[band]]
 band = "sdss_u"
@@ -636,6 +647,13 @@ fn write_lantern(dir: &Path, sources: &[&ObservedSource]) -> Result<(Vec<String>
         c.f64(&format!("e_{name}mag"), "mag", errs);
     }
     c.text("qual", qual.into_iter().map(Some).collect());
+    c.i64(
+        "xflg",
+        sources
+            .iter()
+            .map(|s| i64::from(s.half_light_arcsec.is_some()))
+            .collect(),
+    );
     let (schema, batch) = c.finish(&path)?;
     let params = [
         (
@@ -650,7 +668,7 @@ fn write_lantern(dir: &Path, sources: &[&ObservedSource]) -> Result<(Vec<String>
         &schema,
         &[batch],
         "lantern_fl1",
-        "Lantern near-infrared survey, field FL-1 (invented demo data). qual: one letter per band J,H,Ks; U = the magnitude is a 95% confidence upper limit; X = no measurement (99.999).",
+        "Lantern near-infrared survey, field FL-1 (invented demo data). qual: one letter per band J,H,Ks; U = the magnitude is a 95% confidence upper limit; X = no measurement (99.999). xflg = 1: extended source.",
         &params,
     )?;
     let schema_path = write_schema(dir, "lantern", LANTERN_SCHEMA)?;
@@ -665,6 +683,7 @@ const LANTERN_SCHEMA: &str = r#"# Survey schema for the invented Lantern near-in
 # source has its own epoch as MJD (1998-2001). J, H, Ks are Vega magnitudes; the
 # three-letter quality string has one letter per band: A/B/C/D detections by S/N,
 # U = the magnitude is a 95% confidence upper limit, X = no measurement (99.999).
+# xflg = 1 marks extended sources (no size given: a typical half-light radius of 1").
 survey = "lantern"
 description = "Lantern near-infrared survey, field FL-1 (invented)"
 format = "votable"
@@ -678,6 +697,7 @@ ra = "ra"
 dec = "dec"
 format = "degrees"
 error = { kind = "ellipse", major = "err_maj", minor = "err_min", angle = "err_pa", unit = "arcsec" }
+extended = { flag = { column = "xflg", bit = 0 }, typical_arcsec = 1.0, coeff = 0.25 }
 
 [epoch]
 column = "mjd"
@@ -749,7 +769,12 @@ fn write_harrier(dir: &Path, sources: &[&ObservedSource]) -> Result<(Vec<String>
         let (mut mags, mut errs) = (Vec::new(), Vec::new());
         for s in sources {
             let (f, sigma) = (s.flux_jy[b], s.sigma_jy[b]);
-            if f / sigma < 2.0 {
+            if s.lost[b] {
+                // Not observed (22 µm outside its footprint) or not detected in a
+                // row of the 22 µm band alone.
+                mags.push(None);
+                errs.push(None);
+            } else if f / sigma < 2.0 {
                 mags.push(Some(round(pogson_mag(limit_95(f, sigma), zp), 3)));
                 errs.push(None);
             } else {
@@ -761,6 +786,13 @@ fn write_harrier(dir: &Path, sources: &[&ObservedSource]) -> Result<(Vec<String>
         c.f64(&format!("w{n}mag"), "mag", mags);
         c.f64(&format!("w{n}sig"), "mag", errs);
     }
+    c.i64(
+        "ext_flg",
+        sources
+            .iter()
+            .map(|s| i64::from(s.half_light_arcsec.is_some()))
+            .collect(),
+    );
     let (schema, batch) = c.finish(&path)?;
     let cards = [
         ("ORIGIN".to_string(), "fluxloom make-demo".to_string()),
@@ -771,20 +803,25 @@ fn write_harrier(dir: &Path, sources: &[&ObservedSource]) -> Result<(Vec<String>
         ("FIELD".to_string(), "FL-1".to_string()),
         (
             "COMMENT".to_string(),
-            "Vega magnitudes; a magnitude without error (NaN) is a 95% confidence upper limit."
+            "Vega magnitudes; a magnitude without error is a 95% confidence upper limit; NaN: none."
                 .to_string(),
         ),
     ];
     write_fits(&path, &schema, &[batch], "HARRIER", &cards)?;
     let schema_path = write_schema(dir, "harrier", HARRIER_SCHEMA)?;
-    Ok((ids, vec![path, schema_path]))
+    let moc = dir.join("harrier_w4_moc.txt");
+    write_text(&moc, &HarrierCoverage::w4().to_moc_ascii())?;
+    Ok((ids, vec![path, schema_path, moc]))
 }
 
 const HARRIER_SCHEMA: &str = r#"# Survey schema for the invented Harrier mid-infrared survey (demo data, field FL-1).
 # A FITS binary table; positions in degrees at epoch 2010.5 with separate RA and Dec
 # 1-sigma errors in arcsec. W1-W4 are Vega magnitudes; a magnitude given without an
-# error is a 95% confidence upper limit. The survey covers only the eastern part of
-# the field: see harrier_moc.txt.
+# error is a 95% confidence upper limit, an empty one (NaN) no detection. The survey
+# covers only the eastern part of the field (harrier_moc.txt); its 22 um band (W4)
+# has a 12 arcsec beam and covers only the north of that (harrier_w4_moc.txt), and
+# rows found at 22 um alone carry that band only. ext_flg bit 0 marks extended
+# sources (no size given: a typical half-light radius of 1").
 survey = "harrier"
 description = "Harrier mid-infrared survey, field FL-1 (invented)"
 format = "fits"
@@ -798,6 +835,7 @@ ra = "ra"
 dec = "dec"
 format = "degrees"
 error = { kind = "axes", ra = "sigra", dec = "sigdec", unit = "arcsec" }
+extended = { flag = { column = "ext_flg", bit = 0 }, typical_arcsec = 1.0, coeff = 0.3 }
 
 [epoch]
 year = 2010.5
@@ -808,6 +846,8 @@ value = "w1mag"
 unit = "vega_mag"
 error = "w1sig"
 limit = { kind = "missing_error" }
+empty = "not_detected"
+depth = 17.0
 
 [[band]]
 band = "wise_w2"
@@ -815,6 +855,8 @@ value = "w2mag"
 unit = "vega_mag"
 error = "w2sig"
 limit = { kind = "missing_error" }
+empty = "not_detected"
+depth = 15.8
 
 [[band]]
 band = "wise_w3"
@@ -822,6 +864,8 @@ value = "w3mag"
 unit = "vega_mag"
 error = "w3sig"
 limit = { kind = "missing_error" }
+empty = "not_detected"
+depth = 11.6
 
 [[band]]
 band = "wise_w4"
@@ -829,6 +873,10 @@ value = "w4mag"
 unit = "vega_mag"
 error = "w4sig"
 limit = { kind = "missing_error" }
+empty = "not_detected"
+depth = 8.2
+coverage = "harrier_w4_moc.txt"
+resolution_arcsec = 12.0
 "#;
 
 /// `cinder`: gzip CSV, forced photometry in µJy in all four bands.
@@ -846,6 +894,18 @@ fn write_cinder(dir: &Path, sources: &[&ObservedSource]) -> Result<(Vec<String>,
         "dec",
         "deg",
         sources.iter().map(|s| Some(round(s.dec_deg, 7))).collect(),
+    );
+    c.f64(
+        "fwhm",
+        "arcsec",
+        sources
+            .iter()
+            .map(|s| s.half_light_arcsec.map(|r| round(2.0 * r, 2)))
+            .collect(),
+    );
+    c.i64(
+        "fphot",
+        sources.iter().map(|s| i64::from(s.forced)).collect(),
     );
     for (b, name) in ["36", "45", "58", "80"].iter().enumerate() {
         c.f64(
@@ -889,9 +949,11 @@ fn gzip_to(path: &Path, bytes: &[u8]) -> Result<()> {
 
 const CINDER_SCHEMA: &str = r#"# Survey schema for the invented Cinder mid-infrared survey (demo data, field FL-1).
 # Gzip-compressed CSV; positions in degrees at epoch 2005.0 with a fixed 1-sigma error
-# of 0.25 arcsec. Forced photometry: every source has a flux density and error in
-# every band, in microjansky, possibly negative; S/N below 3 is read as an upper limit
-# max(F, 0) + 3 sigma.
+# of 0.25 arcsec. Every source has a flux density and error in every band, in
+# microjansky, possibly negative; S/N below 3 is read as an upper limit
+# max(F, 0) + 3 sigma. fphot = 1 marks rows measured by forced photometry at the
+# positions of optical sources the survey did not detect itself. Extended sources
+# have a Gaussian FWHM in fwhm (arcsec; empty: point source).
 survey = "cinder"
 description = "Cinder mid-infrared survey, field FL-1 (invented)"
 format = "csv"
@@ -905,9 +967,14 @@ ra = "ra"
 dec = "dec"
 format = "degrees"
 error = { kind = "fixed", arcsec = 0.25 }
+extended = { size = "fwhm", unit = "arcsec", kind = "gaussian_fwhm", coeff = 0.2 }
 
 [epoch]
 year = 2005.0
+
+[forced]
+column = "fphot"
+values = ["1"]
 
 [[band]]
 band = "irac_36"
@@ -992,7 +1059,7 @@ const EMBER_SCHEMA: &str = r#"# Survey schema for the invented Ember 24 um surve
 # A FITS binary table; positions in degrees at epoch 2006.0 with a fixed 1-sigma error
 # of 0.8 arcsec. Flux densities in mJy; sources fainter than 0.5 mJy are not in the
 # catalog, so the depth below is the limit for a covered source that is absent.
-# The 6 arcsec beam blends sources closer than about 5 arcsec into one.
+# The 6 arcsec beam blends sources closer than 6 arcsec into one.
 survey = "ember"
 description = "Ember 24 um survey, field FL-1 (invented)"
 format = "fits"
@@ -1133,6 +1200,35 @@ fn write_truth_objects(dir: &Path, truth: &[TruthObject]) -> Result<PathBuf> {
         "mag",
         truth.iter().map(|o| Some(round(o.av_mag, 3))).collect(),
     );
+    c.text(
+        "population",
+        truth
+            .iter()
+            .map(|o| Some(o.population.as_str().to_string()))
+            .collect(),
+    );
+    c.f64(
+        "half_light_arcsec",
+        "arcsec",
+        truth
+            .iter()
+            .map(|o| o.half_light_arcsec.map(|r| round(r, 3)))
+            .collect(),
+    );
+    c.text(
+        "pair",
+        truth
+            .iter()
+            .map(|o| o.pair.map(|(k, _)| k.as_str().to_string()))
+            .collect(),
+    );
+    c.text(
+        "partner_id",
+        truth
+            .iter()
+            .map(|o| o.pair.map(|(_, p)| truth[p].truth_id.clone()))
+            .collect(),
+    );
     let (schema, batch) = c.finish(&path)?;
     write_csv(&path, &schema, &[batch])?;
     Ok(path)
@@ -1186,53 +1282,74 @@ epoch 2016.0. It holds {total} true objects: {kinds}.
   A_V = 0–3 mag with a demo-only extinction law (A_λ/A_V = (λ/0.55 µm)^−1.7 beyond
   0.9 µm, ≈ 0.55 µm/λ in the optical).
 - Five of the stars are nearby high-proper-motion stars (100–600 mas/yr), so their
-  positions differ by up to ~10″ between the survey epochs (1998–2016).
+  positions differ by up to ~10″ between the survey epochs (1998–2016); `ask` gives
+  their motions.
+- Twenty are faint fast movers (`population` `fast_mover`): 20–300 mas/yr, G 19.1–21.5,
+  fainter than the G = 19 limit of `ask`'s proper motions, so no catalog gives their
+  motion and only their positions at the epochs 2000–2016 tell (up to 4.8″ apart).
 - Young stars, most of them in a group in the eastern half: Class II (a disk excess
   built so that the 2–24 µm spectral index α lies in −1.5…−0.4), Class I (α ≥ 0.35,
   A_V 8–25) and Class III (photosphere only). α is the least-squares slope of
   log λF_λ against log λ over Ks, the four 3.6–8 µm bands and 24 µm.
 - Background galaxies: faint in the optical (Ks 15.5–18.5), νF_ν flat or rising into
-  the mid-infrared; extended, so the surveys that quote per-source position errors
-  measure (and quote) their positions 3× worse.
-- 15 pairs 1.5–4″ apart (five of them pairs of young stars with disks) and 5 pairs
-  closer than 1″, so the low-resolution surveys see blends.
+  the mid-infrared; extended, with a half-light radius of 0.4–2.5″
+  (`half_light_arcsec`): their centroids scatter between surveys by c · r_half per axis
+  (c = 0.2 in `kos` and `cinder`, 0.25 in `lantern`, 0.3 in `harrier`), beyond the quoted
+  error, and every survey that sees them declares them `extended`. Ten of them are
+  dusty (`population` `dusty`, in the north-east): their light rises so steeply that
+  `harrier` detects them at 22 µm alone.
+- Pairs (`pair` and `partner_id` in the truth): 15 pairs 1.5–4″ apart (`wide`, five of
+  them pairs of young stars with disks), 8 pairs of stars brighter than G = 20 closer
+  than 1″ (`close`), and in the east 12
+  bright stars with a faint neighbour 2–4.5″ away carrying 2–7 % of their flux in
+  every band (`faint_neighbour`) and 12 stars with a companion of 50–100 % of their flux
+  (`equal`). The 6″ beams see each pair as one source: a contaminated source when the
+  neighbour is faint, a blend otherwise.
 
 ## The surveys
 
 | survey | file | bands, unit | epoch | position error | resolution |
 | --- | --- | --- | --- | --- | --- |
 | `ask` | `ask.parquet` | G, BP, RP (Gaia-like), Vega mag | 2016.0 | RA/Dec sigmas, mas | 0.4″ |
-| `kos` | `kos.csv` | u g r i z (SDSS-like), asinh mag | 2008.0 | circular, arcsec | 1.2″ |
+| `kos` | `kos.csv` | u g r i z (SDSS-like), asinh mag | 2000.0 | circular, arcsec | 1.2″ |
 | `lantern` | `lantern.vot` | J H Ks (2MASS-like), Vega mag | MJD per source, 1998–2001 | ellipse, arcsec | 2.5″ |
-| `harrier` | `harrier.fits` | W1–W4 (WISE-like), Vega mag | 2010.5 | RA/Dec sigmas, arcsec | 6.1″ |
+| `harrier` | `harrier.fits` | W1–W4 (WISE-like), Vega mag | 2010.5 | RA/Dec sigmas, arcsec | 6.1″ (W4 12″) |
 | `cinder` | `cinder.csv.gz` | 3.6, 4.5, 5.8, 8.0 µm (IRAC-like), µJy | 2005.0 | fixed 0.25″ | 1.8″ |
 | `ember` | `ember.fits` | 24 µm (MIPS-like), mJy | 2006.0 | fixed 0.8″ | 6.0″ |
 
 Each has a survey schema `<survey>.toml` that says how to read it. Conventions:
 
-- `ask`: astrometric survey; only sources brighter than G = 20.5; proper motions (μ_α cos δ)
-  for G < 19; BP/RP null when too faint.
+- `ask`: astrometric survey of point sources (no galaxies); only sources brighter than
+  G = 20.5; proper motions (μ_α cos δ) for G < 19; BP/RP null when too faint.
 - `kos`: sexagesimal positions (RA hh:mm:ss.sss, Dec ±dd:mm:ss.ss) after a `#` comment
   header; asinh magnitudes (Lupton, Gunn & Szalay 1999) with the band library's
   softening, kept for faint sources even when the flux is negative; u and z are on the
   survey system (AB offsets −0.04 and +0.02 applied by `offset_mag`); −9999 means no
   measurement (saturated brighter than 14 mag, or lost). **Its positions carry a
   deliberate systematic offset of +0.25″ in RA·cos Dec** for the offset correction to find.
+  Extended sources have their half-light radius in `petro_r50`.
 - `lantern`: per-source epochs as MJD; a three-letter quality string, one letter per band
   (A/B/C/D by S/N, `U` = the magnitude is a 95 % upper limit, `X` = no measurement,
-  written as 99.999).
+  written as 99.999); `xflg` = 1 marks extended sources.
 - `harrier`: covers only the eastern 60 % of the field (`harrier_moc.txt`, an IVOA MOC in
   ASCII serialization at HEALPix order 12); below S/N 2 the magnitude is a 95 % upper
-  limit given without an error.
-- `cinder`: forced photometry: every source has a flux and error in every band, possibly
-  negative; S/N below 3 is read as the limit max(F, 0) + 3σ.
+  limit given without an error, an empty magnitude is no detection. Its 22 µm band (W4)
+  has a 12″ beam (`resolution_arcsec` of the band) and covers only the north of the
+  survey's footprint (`harrier_w4_moc.txt`); objects no other row holds that are
+  detected at 22 µm alone (S/N ≥ 5, grouped at 12″) are rows carrying that band only.
+  `ext_flg` bit 0 marks extended sources.
+- `cinder`: every source has a flux and error in every band, possibly negative; S/N
+  below 3 is read as the limit max(F, 0) + 3σ. Rows with `fphot` = 1 are forced
+  photometry at the positions of objects brighter than the `kos` r-band 5σ limit that
+  `cinder` did not detect itself (`[forced]` in its schema). Extended sources have a
+  Gaussian FWHM in `fwhm`.
 - `ember`: only sources brighter than 0.5 mJy; its 6″ beam merges sources closer than
-  about 5″ into one at the flux-weighted position with the summed flux.
+  6″ into one at the flux-weighted position with the summed flux.
 
 Common to all: positions are the true ones moved to the survey epoch by the true proper
 motion, scattered by the quoted error (plus an unquoted systematic scatter, the plan's
-`systematic_arcsec`); photometric noise is σ² = σ_sky² + (f·F)² (sky noise plus a
-calibration floor); objects closer than 0.8 × the resolution blend; a few per cent of
+`systematic_arcsec`, and for galaxies the centroid scatter above); photometric noise is σ² = σ_sky² + (f·F)² (sky noise plus a
+calibration floor); objects closer than the resolution (FWHM) blend; a few per cent of
 each catalog are spurious sources with no true counterpart.
 
 {table}
@@ -1240,7 +1357,10 @@ each catalog are spurious sources with no true counterpart.
 
 - `truth_objects.csv`: `truth_id`, `kind` (star, class_i, class_ii, class_iii, galaxy),
   position at 2016.0, proper motion, `alpha` (young stars only), the true flux density in
-  Jy in every band (`<band>_flux_jy`), and the model's `teff_k` and `av_mag`.
+  Jy in every band (`<band>_flux_jy`), the model's `teff_k` and `av_mag`, the
+  `population` it was made for (field, high_pm, fast_mover, dusty, companion),
+  `half_light_arcsec` (galaxies), and `pair` (wide, close, faint_neighbour, equal) with
+  the other member's `partner_id`.
 - `truth_members.csv`: one row per survey source and true object it contains; artefacts
   have an empty `truth_id`; blends have one row per member.
 

@@ -9,8 +9,8 @@
 //!   locus when given, and on a colour–magnitude diagram the detection limits of
 //!   the bands ([`band_depth`]): the `depth_mag` a survey schema states for the
 //!   band (carried in the band table of `objects.parquet`), or else the depth
-//!   inferred from the upper limit shared by the band's non-detections; the
-//!   legend says which. Without either no limit line is drawn.
+//!   inferred from the upper limit shared by the band's non-detections (blended
+//!   points left out); the legend says which. Without either no limit line is drawn.
 
 use super::alpha::YsoClass;
 use super::compute::{ObjectScience, Science};
@@ -383,7 +383,9 @@ pub fn depth_mag(seds: &FieldSeds, b: usize) -> Option<f64> {
 fn inferred_depth(seds: &FieldSeds, b: usize) -> Option<(f64, usize)> {
     let mut counts: Vec<(u64, usize, f64)> = Vec::new();
     for v in &seds.values {
-        if v[b].flux_jy.is_some() || v[b].mag.is_some() {
+        // A blended point's limit is a coarse source's flux, which several
+        // objects under it share: it says nothing about the survey's depth.
+        if v[b].flux_jy.is_some() || v[b].mag.is_some() || v[b].blended {
             continue;
         }
         if let Some(m) = v[b].limit_mag(&seds.bands[b]) {

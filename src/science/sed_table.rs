@@ -58,6 +58,9 @@ pub struct BandValue {
     pub mag_err: Option<f64>,
     /// Upper limit as a magnitude (the source is fainter than this).
     pub ulim_mag: Option<f64>,
+    /// The status is `blended`: the limit is a coarse source's flux over this
+    /// and other objects, not the survey's depth.
+    pub blended: bool,
 }
 
 impl BandValue {
@@ -147,6 +150,7 @@ impl FieldSeds {
         let ids = strings(batch, "object_id", &self.path)?;
         let n = ids.len();
         let mut per_band: Vec<[Vec<Option<f64>>; 6]> = Vec::new();
+        let mut blended: Vec<Vec<bool>> = Vec::new();
         for band in &self.bands {
             let names = [
                 "flux_jy",
@@ -167,19 +171,29 @@ impl FieldSeds {
                 ));
             }
             per_band.push(cols.map(|c| c.unwrap_or_else(|| vec![None; n])));
+            let status = format!("{}_status", band.id);
+            blended.push(match batch.column_by_name(&status) {
+                Some(_) => strings(batch, &status, &self.path)?
+                    .into_iter()
+                    .map(|s| s.as_deref() == Some("blended"))
+                    .collect(),
+                None => vec![false; n],
+            });
         }
         for (i, id) in ids.into_iter().enumerate() {
             self.object_id.push(id.unwrap_or_default());
             self.values.push(
                 per_band
                     .iter()
-                    .map(|c| BandValue {
+                    .zip(&blended)
+                    .map(|(c, bl)| BandValue {
                         flux_jy: c[0][i],
                         flux_err_jy: c[1][i],
                         ulim_jy: c[2][i],
                         mag: c[3][i],
                         mag_err: c[4][i],
                         ulim_mag: c[5][i],
+                        blended: bl[i],
                     })
                     .collect(),
             );

@@ -346,13 +346,20 @@ impl<'a> SedAssembler<'a> {
                             }
                             return p;
                         }
+                        // A coarse source over this object blends the band only
+                        // when it has a measurement in it: where its value is
+                        // missing (outside the band's own footprint, say) the
+                        // band reads as if no source were there.
                         let blend = o
                             .covered_by
                             .iter()
                             .find(|s| s.catalog as usize == slot.catalog)
-                            .filter(|s| self.blends_band(slot, s.row as usize));
-                        if let Some(s) = blend {
-                            let source = d.point(s.row as usize);
+                            .filter(|s| self.blends_band(slot, s.row as usize))
+                            .map(|s| d.point(s.row as usize))
+                            .filter(|source| {
+                                !matches!(source.status, SedStatus::Missing | SedStatus::NotCovered)
+                            });
+                        if let Some(source) = blend {
                             let mut p = SedPoint::bare(SedStatus::Blended);
                             p.ulim = source.value.or(source.ulim);
                             return p;
