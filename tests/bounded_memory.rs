@@ -14,14 +14,23 @@ use common::{assert_same_files, kill_once_journaled};
 /// false matches), its files named absolutely, writing into `out`. Its exports
 /// stay, so the limited builds' exports are compared too.
 fn plan_in(dir: &Path, out: &Path) -> PathBuf {
+    demo_plan(dir, out, false)
+}
+
+/// The demo plan as [`plan_in`] makes it, keeping the astrometric reference and
+/// the offset correction when `offsets`.
+fn demo_plan(dir: &Path, out: &Path, offsets: bool) -> PathBuf {
     let demo = std::fs::canonicalize("demo_catalogs/fl1").unwrap();
     let text = std::fs::read_to_string(demo.join("plan.toml")).unwrap();
     let mut plan = String::new();
     for line in text.lines() {
-        let line = if line.starts_with("astrometric_reference") {
+        let line = if line.starts_with("astrometric_reference") && !offsets {
             String::new()
         } else if line.starts_with("correct_offsets") {
-            "correct_offsets = false\nfalse_matches = false".to_string()
+            match offsets {
+                true => format!("{line}\nfalse_matches = false"),
+                false => "correct_offsets = false\nfalse_matches = false".to_string(),
+            }
         } else if line.starts_with("folder") {
             format!("folder = \"{}\"", out.display())
         } else {
@@ -37,7 +46,11 @@ fn plan_in(dir: &Path, out: &Path) -> PathBuf {
         plan.push_str(&line);
         plan.push('\n');
     }
-    let path = dir.join("plan.toml");
+    let path = dir.join(if offsets {
+        "plan_offsets.toml"
+    } else {
+        "plan.toml"
+    });
     std::fs::write(&path, plan).unwrap();
     path
 }
@@ -133,6 +146,71 @@ fn limited_builds_write_the_files_of_an_unlimited_build() {
     }
 }
 
+/// With an astrometric reference, a limited build measures the offsets and
+/// floors a group of cells at a time and corrects the catalogs as it matches:
+/// the files are those of an unlimited build, offsets in run.json included.
+#[test]
+fn limited_builds_with_offsets_write_the_files_of_an_unlimited_build() {
+    let dir = tempfile::tempdir().unwrap();
+    let whole = dir.path().join("whole");
+    let plan = demo_plan(dir.path(), &whole, true);
+    let summary = built(&plan, &whole, &["--cell-order", "10"]);
+    // The demo's kos catalog carries a +0.25″ offset in RA, which is corrected.
+    assert!(
+        summary.contains("offset of kos vs ask: (+0.258"),
+        "{summary}"
+    );
+    let cases: [&[&str]; 3] = [
+        &["--memory-limit", "1G"],
+        &[
+            "--memory-limit",
+            "300M",
+            "--group-rows",
+            "300",
+            "--spill-bytes",
+            "200000",
+            "--cell-order",
+            "9",
+        ],
+        &[
+            "--memory-limit",
+            "300M",
+            "--group-rows",
+            "1000",
+            "--cell-order",
+            "11",
+            "--threads",
+            "1",
+        ],
+    ];
+    for (k, extra) in cases.iter().enumerate() {
+        let out = dir.path().join(format!("limited{k}"));
+        let summary = built(&plan, &out, extra);
+        assert!(
+            summary.contains("offset of kos vs ask: (+0.258"),
+            "{summary}"
+        );
+        assert_same_files(
+            &out,
+            &whole,
+            &format!("limited build with offsets {extra:?}"),
+        );
+    }
+    // Offsets need the pairs' partners at hand: a routing margin below twice
+    // the largest tolerance is refused by name.
+    let o = build(
+        &plan,
+        &dir.path().join("narrow"),
+        &["--memory-limit", "300M", "--routing-margin", "4"],
+    );
+    assert!(!o.status.success());
+    let err = String::from_utf8_lossy(&o.stderr);
+    assert!(
+        err.contains("offsets within --memory-limit need a routing margin of at least"),
+        "{err}"
+    );
+}
+
 #[test]
 fn a_limited_build_of_some_cells_writes_that_part() {
     let dir = tempfile::tempdir().unwrap();
@@ -158,7 +236,7 @@ fn settings_a_limited_build_cannot_honour_are_named() {
     assert!(!o.status.success());
     let err = String::from_utf8_lossy(&o.stderr);
     assert!(
-        err.contains("--memory-limit does not yet support an astrometric reference (offsets), false_matches = true; build"),
+        err.contains("--memory-limit does not yet support false_matches = true; build"),
         "{err}"
     );
     assert!(!dir.path().join("out").exists());

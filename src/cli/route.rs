@@ -28,7 +28,7 @@ use crate::crossmatch::density::MAX_ORDER;
 use crate::crossmatch::prepare::at_reference_epoch;
 use crate::error::{Error, Result};
 use crate::plan::Plan;
-use crate::sky::partition::{home_cell, partition};
+use crate::sky::partition::{home_cell, partition_keeping_margins};
 
 /// One spilled run of a catalog: batches of rows sorted by cell, each an Arrow
 /// IPC stream of its own (so each keeps its own dictionaries), one after the
@@ -185,7 +185,9 @@ pub fn route(
                 }
                 hashes.push(id_hash(columns.ids.value(i)));
             }
-            let cells = partition(order, &ra_ref, &dec_ref, margin_arcsec / 3600.0);
+            // One catalog's batch at a time: a cell whose core rows come from another
+            // catalog or batch keeps this batch's margin rows.
+            let cells = partition_keeping_margins(order, &ra_ref, &dec_ref, margin_arcsec / 3600.0);
             let held = spill.held.len() as u32;
             for cell in &cells {
                 let entry = routed.cell_rows.entry(cell.id).or_insert((0, 0));

@@ -16,9 +16,12 @@
 //!    ([`crate::output::kway`]), a chunk at a time, into the output files —
 //!    identical to those of a build without a limit.
 //!
-//! Exports read the joined tables back a batch at a time, as in every build.
-//! Not yet available with a limit (refused, naming the setting): astrometric
-//! offsets and false-match estimates, which still need every row at once.
+//! With an astrometric reference, the offsets and floors are measured between
+//! routing and matching, a group at a time ([`measure_by_groups`]); the match
+//! applies the same shifts to each group's rows. Exports read the joined tables
+//! back a batch at a time, as in every build. Not yet available with a limit
+//! (refused, naming the setting): false-match estimates, which still need every
+//! row at once.
 
 use std::path::{Path, PathBuf};
 use std::sync::Arc;
@@ -39,8 +42,13 @@ use crate::crossmatch::candidates::EpochStats;
 use crate::crossmatch::cells::{
     CellContext, CellRun, OnCellComplete, WIDEST_MARGIN_DEG, first_margin_arcsec,
 };
-use crate::crossmatch::density::Occupancy;
+use crate::crossmatch::density::{MAX_ORDER, Occupancy};
 use crate::crossmatch::engine::{MatchResult, MatchSetup, MatchStats, density_per_sr};
+use crate::crossmatch::prepare::at_reference_epoch;
+use crate::crossmatch::systematics::{
+    Measured, OffsetPairs, Shifts, correct_offsets_by, floors_in_force, offset_pairs,
+    shift_table_by, with_floors,
+};
 use crate::error::{Error, Result};
 use crate::output::journal::Journal;
 use crate::output::kway::merge_parts;
@@ -52,6 +60,7 @@ use crate::output::table_file::TableFormat;
 use crate::plan::Plan;
 use crate::sed::SedStatus;
 use crate::sky::coverage::Coverage;
+use crate::sky::partition::home_cell;
 
 /// Bytes of memory a row of a matched group takes at most, all structures and
 /// output buffers included (measured on the versus benchmark: about 0.7 kB per
@@ -97,9 +106,6 @@ pub fn parse_memory_size(text: &str) -> std::result::Result<u64, String> {
 /// Refuses plan settings the bounded-memory build does not do yet.
 fn check_supported(plan: &Plan) -> Result<()> {
     let mut unsupported = Vec::new();
-    if plan.astrometric_reference.is_some() {
-        unsupported.push("an astrometric reference (offsets)");
-    }
     if plan.false_matches {
         unsupported.push("false_matches = true");
     }
@@ -211,6 +217,31 @@ pub fn build_within(
     let group_rows = run
         .group_rows
         .unwrap_or((budget / BYTES_PER_GROUP_ROW).max(10_000));
+    let bar = spinner(
+        "measuring offsets",
+        quiet || plan.astrometric_reference.is_none(),
+    );
+    let n = plan.catalogs.len();
+    let (offsets, shifts) = match plan.astrometric_reference {
+        Some(reference) => {
+            let groups = cell_groups(&routed, None, group_rows);
+            correct_offsets_by(n, reference, plan.correct_offsets, |shifts| {
+                measure_by_groups(plan, &matching, &routed, &groups, reference, shifts)
+            })?
+        }
+        None => (Vec::new(), vec![Vec::new(); n]),
+    };
+    bar.finish_and_clear();
+    let shift_arcsec = largest_shift_arcsec(&shifts);
+    // Shifted catalogs cover a shifted footprint: their densities are counted
+    // from the shifted positions, as a build holding everything counts them.
+    let densities = match plan.area_sr.is_none() && shift_arcsec > 0.0 {
+        true => shifted_densities(plan, &matching, &routed, &shifts, group_rows, densities)?,
+        false => densities,
+    };
+    let names: Vec<String> = plan.catalogs.iter().map(|c| c.name.clone()).collect();
+    let floors = floors_in_force(&names, &matching, plan.astrometric_reference, &offsets);
+    let matching = with_floors(&matching, &floors);
     // A group's cell outputs refer to the group's sources, which the groups and
     // the routing margin decide: a run resumes only a journal of the same layout.
     let layout = format!("groups of {group_rows} rows, routing margin {margin_arcsec}");
@@ -243,6 +274,8 @@ pub fn build_within(
         coverage: &coverage,
         slots: &slots,
         spill: &spill.0,
+        shifts: &shifts,
+        shift_arcsec,
     };
     let mut tally = Tally {
         stats: MatchStats::default(),
@@ -297,7 +330,7 @@ pub fn build_within(
             .map(|(r, c)| input_record(c, &r.sha256, r.bytes, &r.report))
             .collect(),
         &result,
-        Vec::new(),
+        offsets,
         Vec::new(),
         sed_counts(&slots, &tally.status_counts),
         outputs.clone(),
@@ -393,6 +426,12 @@ struct Shared<'a> {
     spill: &'a Path,
     /// Margin of a cell's first pass with the whole input's epochs, arcsec.
     first_margin_arcsec: f64,
+    /// The offset corrections of each catalog, in the order applied.
+    shifts: &'a Shifts,
+    /// The largest total correction, arcsec: rows were routed by their
+    /// uncorrected positions, so a cell's rows within `margin − shift` of it
+    /// after correction are all at hand.
+    shift_arcsec: f64,
     /// The restart journal, the cells it held at the start, and its recorder.
     journal: &'a Journal,
     journaled: Vec<u64>,
@@ -420,7 +459,7 @@ impl Shared<'_> {
                 subset: Some(cells.to_vec()),
                 finished,
                 on_complete: Some(self.record_cell),
-                max_margin_arcsec: Some(self.routed.margin_arcsec),
+                max_margin_arcsec: Some((self.routed.margin_arcsec - self.shift_arcsec).max(0.0)),
                 ..CellRun::default()
             },
             0,
@@ -430,7 +469,7 @@ impl Shared<'_> {
         // sources of its own neighbourhood, and a resumed run defers it again.
         for (cell, mut margin) in deferred {
             loop {
-                let reach = self.cells_within(cell, margin);
+                let reach = self.cells_within(cell, margin + self.shift_arcsec);
                 let everything = margin > WIDEST_MARGIN_DEG * 3600.0;
                 let batches = self
                     .routed
@@ -511,8 +550,10 @@ impl Shared<'_> {
             .zip(batches)
             .map(|(c, b)| SourceTable::from_normalized(&c.schema, std::slice::from_ref(b), &c.file))
             .collect::<Result<_>>()?;
+        let matched = shifted(&tables, self.shifts);
+        let matched = matched.as_deref().unwrap_or(&tables);
         let setup = MatchSetup::with_statistics(
-            &tables,
+            matched,
             self.matching,
             self.densities.clone(),
             self.epochs.clone(),
@@ -539,7 +580,7 @@ impl Shared<'_> {
                 plan: self.plan,
                 result: &result,
                 tables: &tables,
-                matched: &tables,
+                matched,
                 normalized: batches,
                 coverage: self.coverage,
                 slots: self.slots,
@@ -555,6 +596,135 @@ impl Shared<'_> {
         tally.parts.push(dir);
         Ok(deferred)
     }
+}
+
+/// `tables` moved by `shifts` (see [`shift_table_by`]), or `None` when no
+/// catalog moves.
+fn shifted(tables: &[SourceTable], shifts: &Shifts) -> Option<Vec<SourceTable>> {
+    if shifts.iter().all(Vec::is_empty) {
+        return None;
+    }
+    let mut moved = tables.to_vec();
+    for (t, s) in moved.iter_mut().zip(shifts) {
+        shift_table_by(t, s);
+    }
+    Some(moved)
+}
+
+/// The largest total correction of any catalog, arcsec.
+fn largest_shift_arcsec(shifts: &Shifts) -> f64 {
+    shifts
+        .iter()
+        .map(|s| {
+            let (e, n) = s.iter().fold((0.0, 0.0), |(e, n), d| (e + d.0, n + d.1));
+            f64::hypot(e, n)
+        })
+        .fold(0.0, f64::max)
+}
+
+/// The rows of each catalog routed to `cells`, with their margins, as source tables.
+fn group_tables(
+    plan: &Plan,
+    routed: &Routed,
+    cells: &[u64],
+    with_margin: bool,
+) -> Result<Vec<SourceTable>> {
+    plan.catalogs
+        .iter()
+        .zip(&routed.catalogs)
+        .map(|(c, r)| {
+            let batch = r.rows_of(cells, with_margin)?;
+            SourceTable::from_normalized(&c.schema, std::slice::from_ref(&batch), &c.file)
+        })
+        .collect()
+}
+
+/// The cell at the routing order of row `row` of `table`, by its position at
+/// the reference epoch (as it was routed); `None` without a finite position.
+fn routed_cell(table: &SourceTable, row: usize, order: u8, epoch_yr: f64) -> Option<u64> {
+    let ((ra, dec), _) = at_reference_epoch(
+        (table.ra_deg[row], table.dec_deg[row]),
+        (table.pmra_cosdec_masyr[row], table.pmdec_masyr[row]),
+        table.epoch_yr[row],
+        epoch_yr,
+    );
+    (ra.is_finite() && dec.is_finite()).then(|| home_cell(order, ra, dec))
+}
+
+/// Measures the offsets and floors against `reference` with the catalogs moved
+/// by `shifts`, a group of cells at a time: each group gathers the unique
+/// pairs of the reference sources routed to its cells ([`offset_pairs`]), from
+/// its rows and margins. The pairs are those of the whole input at once, so the
+/// measurement (medians only) is that of a build holding everything.
+///
+/// # Errors
+/// Spill-read and match errors; a routing margin too narrow for the pairs.
+fn measure_by_groups(
+    plan: &Plan,
+    matching: &crate::crossmatch::MatchConfig,
+    routed: &Routed,
+    groups: &[Vec<u64>],
+    reference: usize,
+    shifts: &Shifts,
+) -> Result<Measured> {
+    // A pair's partner lies within r of the reference source, and the
+    // partner's own candidates within r of it: 2r, plus the correction.
+    let needed = 2.0 * matching.max_radius_arcsec() + largest_shift_arcsec(shifts);
+    if routed.margin_arcsec < needed {
+        return Err(Error::Usage(format!(
+            "plan {}: offsets within --memory-limit need a routing margin of at least {needed:.1}\" (twice the largest tolerance plus the corrections), found {:.1}\"",
+            plan.path.display(),
+            routed.margin_arcsec
+        )));
+    }
+    let mut pairs = OffsetPairs::new(plan.catalogs.len());
+    for cells in groups {
+        let mut tables = group_tables(plan, routed, cells, true)?;
+        for (t, s) in tables.iter_mut().zip(shifts) {
+            shift_table_by(t, s);
+        }
+        let refs = &tables[reference];
+        let owns = |row: usize| {
+            routed_cell(refs, row, routed.order, matching.reference_epoch_yr)
+                .is_some_and(|c| cells.binary_search(&c).is_ok())
+        };
+        pairs.append(offset_pairs(&tables, matching, reference, &owns)?);
+    }
+    Ok(pairs.measure(reference))
+}
+
+/// The densities per steradian with each shifted catalog's footprint counted
+/// from its shifted positions (the core rows of each group, at [`MAX_ORDER`]).
+///
+/// # Errors
+/// Spill-read errors.
+fn shifted_densities(
+    plan: &Plan,
+    matching: &crate::crossmatch::MatchConfig,
+    routed: &Routed,
+    shifts: &Shifts,
+    group_rows: u64,
+    mut densities: Vec<f64>,
+) -> Result<Vec<f64>> {
+    let groups = cell_groups(routed, None, group_rows);
+    for (c, s) in shifts.iter().enumerate().filter(|(_, s)| !s.is_empty()) {
+        let mut cells: Vec<u64> = Vec::with_capacity(routed.catalogs[c].rows);
+        for group in &groups {
+            let batch = routed.catalogs[c].rows_of(group, false)?;
+            let mut table = SourceTable::from_normalized(
+                &plan.catalogs[c].schema,
+                std::slice::from_ref(&batch),
+                &plan.catalogs[c].file,
+            )?;
+            shift_table_by(&mut table, s);
+            cells.extend((0..table.len()).filter_map(|row| {
+                routed_cell(&table, row, MAX_ORDER, matching.reference_epoch_yr)
+            }));
+        }
+        let area = Occupancy::from_cells(cells).footprint_area_sr();
+        densities[c] = density_per_sr(routed.catalogs[c].rows, area);
+    }
+    Ok(densities)
 }
 
 /// Adds a part's match counts to the whole run's; its widenings start at

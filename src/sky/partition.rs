@@ -129,6 +129,31 @@ impl InteriorTest {
 /// If the slices differ in length, hold more than `u32::MAX` sources, `order` > 29, or
 /// `margin_deg` is negative or not finite.
 pub fn partition(order: u8, ra_deg: &[f64], dec_deg: &[f64], margin_deg: f64) -> Vec<Cell> {
+    split(order, ra_deg, dec_deg, margin_deg, false)
+}
+
+/// As [`partition`], but also returns the cells that hold only margin sources.
+///
+/// For sources split a part at a time (one catalog, one input batch), whose
+/// cells are joined afterwards with those of other parts: a cell may have its
+/// core sources in another part, and its margin sources here must not be lost.
+pub fn partition_keeping_margins(
+    order: u8,
+    ra_deg: &[f64],
+    dec_deg: &[f64],
+    margin_deg: f64,
+) -> Vec<Cell> {
+    split(order, ra_deg, dec_deg, margin_deg, true)
+}
+
+/// The cells of [`partition`]; with `keep_margin_only`, also those without core sources.
+fn split(
+    order: u8,
+    ra_deg: &[f64],
+    dec_deg: &[f64],
+    margin_deg: f64,
+    keep_margin_only: bool,
+) -> Vec<Cell> {
     assert_eq!(
         ra_deg.len(),
         dec_deg.len(),
@@ -198,7 +223,7 @@ pub fn partition(order: u8, ra_deg: &[f64], dec_deg: &[f64], margin_deg: f64) ->
                 cell.core.push(idx);
             }
         }
-        if !cell.core.is_empty() {
+        if keep_margin_only || !cell.core.is_empty() {
             cells.push(cell);
         }
     }
@@ -208,6 +233,34 @@ pub fn partition(order: u8, ra_deg: &[f64], dec_deg: &[f64], margin_deg: f64) ->
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn margins_of_cells_without_core_sources_are_kept_when_asked() {
+        // A source 1″ west of the boundary between two order-11 cells: its home
+        // cell has it as core, the neighbour only as margin.
+        let order = 11;
+        let dec = 12.341_465;
+        let home = home_cell(order, 231.270_607_3, dec);
+        // Walk east until the cell changes, then put the source 1″ back west.
+        let mut ra = 231.270_607_3;
+        while home_cell(order, ra, dec) == home {
+            ra += 0.1 / 3600.0;
+        }
+        let ra = ra - 1.0 / 3600.0;
+        let home = home_cell(order, ra, dec);
+        let margin_deg = 10.0 / 3600.0;
+        let dropped = partition(order, &[ra], &[dec], margin_deg);
+        assert_eq!(dropped.len(), 1);
+        assert_eq!(dropped[0].id, home);
+        let kept = partition_keeping_margins(order, &[ra], &[dec], margin_deg);
+        assert!(kept.len() >= 2, "{}", kept.len());
+        assert!(kept.iter().any(|c| c.id == home && c.core == [0]));
+        assert!(
+            kept.iter()
+                .filter(|c| c.id != home)
+                .all(|c| c.core.is_empty() && c.margin == [0])
+        );
+    }
 
     #[test]
     fn cell_areas_match_the_healpix_table() {
