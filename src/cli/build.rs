@@ -666,9 +666,35 @@ fn read_catalog(
         Ok(())
     })?;
     bar.finish_and_clear();
-    let normalized = arrow::compute::concat_batches(&output_schema, &batches)
+    let table = SourceTable::from_normalized(schema, &batches, file)?;
+    // The SED assembly reads only the band columns; positions, errors and
+    // identifiers are in the source table, so they are not kept twice.
+    let bands: Vec<usize> = output_schema
+        .fields()
+        .iter()
+        .enumerate()
+        .filter(|(_, f)| {
+            schema.bands.iter().any(|b| {
+                f.name()
+                    .strip_prefix(b.band.id.as_str())
+                    .is_some_and(|r| r.starts_with('_'))
+            })
+        })
+        .map(|(i, _)| i)
+        .collect();
+    let band_schema = std::sync::Arc::new(
+        output_schema
+            .project(&bands)
+            .map_err(|e| Error::columnar(file, e))?,
+    );
+    let band_batches = batches
+        .into_iter()
+        .map(|b| b.project(&bands))
+        .collect::<std::result::Result<Vec<_>, _>>()
         .map_err(|e| Error::columnar(file, e))?;
-    let table = SourceTable::from_normalized(schema, std::slice::from_ref(&normalized), file)?;
+    let normalized = arrow::compute::concat_batches(&band_schema, &band_batches)
+        .map_err(|e| Error::columnar(file, e))?;
+    drop(band_batches);
     Ok((
         ReadCatalog {
             normalized,
