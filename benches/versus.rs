@@ -18,7 +18,9 @@
 //!   the tables the build wrote (read back from its outputs) with the same
 //!   Parquet settings; for pairs only, reading plus writing `links.parquet`.
 //!
-//! It checks that every contender finds the same pair set, and prints seconds,
+//! With `FLUXLOOM_BENCH_LIMIT` (e.g. `500M`) it also runs the full build within
+//! that `--memory-limit` and prints its time against the unlimited build's and
+//! its peak memory. It checks that every contender finds the same pair set, and prints seconds,
 //! peak resident memory and ratios, and the growth exponent of the build time
 //! with N. The Python side lives in a virtual environment the benchmark makes
 //! under `target/bench-venv` (pinned versions below); `cargo test` does not
@@ -135,6 +137,18 @@ fn main() {
         let (t_build, mem_build) = run_build(exe, &dir.join("plan.toml"), &out);
         let (t_pairs, mem_pairs) = run_build(exe, &dir.join("plan_pairs.toml"), &out_pairs);
         let t_report = run_report(exe, &out);
+        // With FLUXLOOM_BENCH_LIMIT (e.g. 500M), the full build again within that
+        // memory limit; its pairs must be the unlimited build's.
+        let limited = std::env::var("FLUXLOOM_BENCH_LIMIT").ok().map(|limit| {
+            let out_limited = dir.join("out_limited");
+            let (t, mem) = run_build_with(
+                exe,
+                &dir.join("plan.toml"),
+                &out_limited,
+                &["--memory-limit", &limit],
+            );
+            (limit, out_limited, t, mem)
+        });
         let script = |name: &str, out_file: &Path| {
             let start = Instant::now();
             let o = Command::new(&python)
@@ -171,6 +185,23 @@ fn main() {
             "N = {n}: pairs-only build differs from the full build"
         );
         assert_eq!(ours, kd, "N = {n}: fluxloom and cKDTree pair sets differ");
+        if let Some((limit, out_limited, t, mem)) = &limited {
+            let pairs = pair_set(
+                &out_limited.join("links.parquet"),
+                "source_id_a",
+                "source_id_b",
+            );
+            assert_eq!(
+                ours, pairs,
+                "N = {n}: the build within {limit} finds other pairs"
+            );
+            println!(
+                "{:>10} build within --memory-limit {limit}: {t:.3} s ({:.2} x the unlimited build), peak {:.0} MB",
+                "",
+                t / t_build,
+                mem / 1e6
+            );
+        }
         assert_eq!(ours, db, "N = {n}: fluxloom and DuckDB pair sets differ");
 
         let floor = io_floor(&[&a, &b], &out, &["objects", "photometry", "links"]);
@@ -331,12 +362,18 @@ fn run_report(exe: &str, out: &Path) -> f64 {
 /// Seconds of a fresh `fluxloom build` process, and the peak memory it
 /// reports; prints the build's own time per phase.
 fn run_build(exe: &str, plan: &Path, out: &Path) -> (f64, f64) {
+    run_build_with(exe, plan, out, &[])
+}
+
+/// [`run_build`] with extra arguments (e.g. `--memory-limit 500M`).
+fn run_build_with(exe: &str, plan: &Path, out: &Path, extra: &[&str]) -> (f64, f64) {
     let start = Instant::now();
     let o = Command::new(exe)
         .args(["--quiet", "build"])
         .arg(plan)
         .arg("--out")
         .arg(out)
+        .args(extra)
         .output()
         .expect("fluxloom runs");
     let t = start.elapsed().as_secs_f64();
