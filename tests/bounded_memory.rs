@@ -76,38 +76,41 @@ fn built(plan: &Path, out: &Path, extra: &[&str]) -> String {
     String::from_utf8(o.stdout).unwrap()
 }
 
+/// Limited layouts: one group with one spill per catalog; many groups and many
+/// spilled runs per catalog, on coarse and on fine cells, and on one thread.
+const GROUP_LAYOUTS: [&[&str]; 3] = [
+    &["--memory-limit", "1G"],
+    &[
+        "--memory-limit",
+        "300M",
+        "--group-rows",
+        "300",
+        "--spill-bytes",
+        "200000",
+        "--cell-order",
+        "9",
+    ],
+    &[
+        "--memory-limit",
+        "300M",
+        "--group-rows",
+        "1000",
+        "--spill-bytes",
+        "100000",
+        "--cell-order",
+        "11",
+        "--threads",
+        "1",
+    ],
+];
+
 #[test]
 fn limited_builds_write_the_files_of_an_unlimited_build() {
     let dir = tempfile::tempdir().unwrap();
     let whole = dir.path().join("whole");
     let plan = plan_in(dir.path(), &whole);
     built(&plan, &whole, &["--cell-order", "10"]);
-    let cases: [&[&str]; 5] = [
-        // One group, one spill per catalog.
-        &["--memory-limit", "1G"],
-        // Many groups and many spilled runs per catalog, coarse and fine cells.
-        &[
-            "--memory-limit",
-            "300M",
-            "--group-rows",
-            "300",
-            "--spill-bytes",
-            "200000",
-            "--cell-order",
-            "9",
-        ],
-        &[
-            "--memory-limit",
-            "300M",
-            "--group-rows",
-            "1000",
-            "--spill-bytes",
-            "100000",
-            "--cell-order",
-            "11",
-            "--threads",
-            "1",
-        ],
+    let cases: [&[&str]; 2] = [
         // A routing margin narrower than the first pass's: every cell is matched
         // again from the rows of the cells around it.
         &[
@@ -132,7 +135,7 @@ fn limited_builds_write_the_files_of_an_unlimited_build() {
             "30",
         ],
     ];
-    for (k, extra) in cases.iter().enumerate() {
+    for (k, extra) in GROUP_LAYOUTS.iter().chain(&cases).enumerate() {
         let out = dir.path().join(format!("limited{k}"));
         let summary = built(&plan, &out, extra);
         assert!(summary.contains("cell groups of at most"), "{summary}");
@@ -160,30 +163,7 @@ fn limited_builds_with_offsets_write_the_files_of_an_unlimited_build() {
         summary.contains("offset of kos vs ask: (+0.258"),
         "{summary}"
     );
-    let cases: [&[&str]; 3] = [
-        &["--memory-limit", "1G"],
-        &[
-            "--memory-limit",
-            "300M",
-            "--group-rows",
-            "300",
-            "--spill-bytes",
-            "200000",
-            "--cell-order",
-            "9",
-        ],
-        &[
-            "--memory-limit",
-            "300M",
-            "--group-rows",
-            "1000",
-            "--cell-order",
-            "11",
-            "--threads",
-            "1",
-        ],
-    ];
-    for (k, extra) in cases.iter().enumerate() {
+    for (k, extra) in GROUP_LAYOUTS.iter().enumerate() {
         let out = dir.path().join(format!("limited{k}"));
         let summary = built(&plan, &out, extra);
         assert!(

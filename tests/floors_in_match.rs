@@ -330,17 +330,7 @@ fn cell_workers_match_with_the_measured_floor() {
     let (mut links, mut objects) = (0, 0);
     for entry in fs::read_dir(&cells).unwrap() {
         let path = entry.unwrap().path();
-        let worker = Command::new(env!("CARGO_BIN_EXE_fluxloom"))
-            .args(["cell-worker", plan.to_str().unwrap()])
-            .stdin(fs::File::open(&path).unwrap())
-            .output()
-            .unwrap();
-        assert!(
-            worker.status.success(),
-            "{}",
-            String::from_utf8_lossy(&worker.stderr)
-        );
-        let got = fluxloom::crossmatch::cell_io::read_output(&worker.stdout[..], &path).unwrap();
+        let got = common::run_cell_worker(&plan, &path);
         links += got.links.len();
         objects += got.objects.len();
     }

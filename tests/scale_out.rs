@@ -9,7 +9,6 @@ mod common;
 use common::{assert_same_files, kill_once_journaled};
 
 use fluxloom::cli::build::prepare;
-use fluxloom::crossmatch::cell_io::read_output;
 use fluxloom::crossmatch::cells::{CellRun, match_by_cells};
 use fluxloom::plan::Plan;
 
@@ -125,19 +124,7 @@ fn the_worker_fed_one_cell_gives_that_cells_part_of_the_whole_run() {
         .unwrap()
         .clone();
     for (id, path) in [busiest, cells[0].clone()] {
-        let worker = Command::new(env!("CARGO_BIN_EXE_fluxloom"))
-            .args(["cell-worker", PLAN])
-            .stdin(std::fs::File::open(&path).unwrap())
-            .stdout(Stdio::piped())
-            .stderr(Stdio::piped())
-            .output()
-            .unwrap();
-        assert!(
-            worker.status.success(),
-            "{}",
-            String::from_utf8_lossy(&worker.stderr)
-        );
-        let got = read_output(&worker.stdout[..], &path).unwrap();
+        let got = common::run_cell_worker(Path::new(PLAN), &path);
         let (expected, _) = match_by_cells(
             &s.sources,
             &matching,

@@ -556,11 +556,10 @@ pub(crate) fn write_exports(staging: &mut Staging, plan: &Plan) -> Result<Vec<Ou
                 for_export,
             )?;
             let schema = batches.schema().clone();
-            let batches = &batches;
             let (file, rows) = match format {
                 ExportFormat::Csv => {
                     let file = format!("{name}.csv");
-                    let rows = write_csv(&staging.path(&file), &schema, batches)?;
+                    let rows = write_csv(&staging.path(&file), &schema, &batches)?;
                     (file, rows)
                 }
                 ExportFormat::Fits => {
@@ -575,7 +574,7 @@ pub(crate) fn write_exports(staging: &mut Staging, plan: &Plan) -> Result<Vec<Ou
                     let rows = write_fits(
                         &staging.path(&file),
                         &schema,
-                        batches,
+                        &batches,
                         &name.to_uppercase(),
                         &cards,
                     )?;
@@ -588,7 +587,7 @@ pub(crate) fn write_exports(staging: &mut Staging, plan: &Plan) -> Result<Vec<Ou
                     let rows = write_votable(
                         &staging.path(&file),
                         &schema,
-                        batches,
+                        &batches,
                         name,
                         &description,
                         &params,
@@ -646,6 +645,27 @@ pub(crate) fn finish_folder(
     Ok((files, report))
 }
 
+/// The indices of the normalized table's columns of `schema`'s bands (named
+/// `<band id>_<what>`).
+fn band_columns(
+    normalized: &arrow::datatypes::Schema,
+    schema: &crate::catalog::schema::SurveySchema,
+) -> Vec<usize> {
+    let of_a_band = |name: &str| {
+        schema.bands.iter().any(|b| {
+            name.strip_prefix(b.band.id.as_str())
+                .is_some_and(|rest| rest.starts_with('_'))
+        })
+    };
+    normalized
+        .fields()
+        .iter()
+        .enumerate()
+        .filter(|(_, f)| of_a_band(f.name()))
+        .map(|(i, _)| i)
+        .collect()
+}
+
 fn read_catalog(
     file: &Path,
     schema: &crate::catalog::schema::SurveySchema,
@@ -669,19 +689,7 @@ fn read_catalog(
     let table = SourceTable::from_normalized(schema, &batches, file)?;
     // The SED assembly reads only the band columns; positions, errors and
     // identifiers are in the source table, so they are not kept twice.
-    let bands: Vec<usize> = output_schema
-        .fields()
-        .iter()
-        .enumerate()
-        .filter(|(_, f)| {
-            schema.bands.iter().any(|b| {
-                f.name()
-                    .strip_prefix(b.band.id.as_str())
-                    .is_some_and(|r| r.starts_with('_'))
-            })
-        })
-        .map(|(i, _)| i)
-        .collect();
+    let bands = band_columns(&output_schema, schema);
     let band_schema = std::sync::Arc::new(
         output_schema
             .project(&bands)
@@ -694,7 +702,6 @@ fn read_catalog(
         .map_err(|e| Error::columnar(file, e))?;
     let normalized = arrow::compute::concat_batches(&band_schema, &band_batches)
         .map_err(|e| Error::columnar(file, e))?;
-    drop(band_batches);
     Ok((
         ReadCatalog {
             normalized,

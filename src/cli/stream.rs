@@ -222,13 +222,12 @@ pub fn build_within(
         quiet || plan.astrometric_reference.is_none(),
     );
     let n = plan.catalogs.len();
+    // Offsets and densities are the whole input's: every group, whatever the subset.
+    let all_groups = cell_groups(&routed, None, group_rows);
     let (offsets, shifts) = match plan.astrometric_reference {
-        Some(reference) => {
-            let groups = cell_groups(&routed, None, group_rows);
-            correct_offsets_by(n, reference, plan.correct_offsets, |shifts| {
-                measure_by_groups(plan, &matching, &routed, &groups, reference, shifts)
-            })?
-        }
+        Some(reference) => correct_offsets_by(n, reference, plan.correct_offsets, |shifts| {
+            measure_by_groups(plan, &matching, &routed, &all_groups, reference, shifts)
+        })?,
         None => (Vec::new(), vec![Vec::new(); n]),
     };
     bar.finish_and_clear();
@@ -236,7 +235,7 @@ pub fn build_within(
     // Shifted catalogs cover a shifted footprint: their densities are counted
     // from the shifted positions, as a build holding everything counts them.
     let densities = match plan.area_sr.is_none() && shift_arcsec > 0.0 {
-        true => shifted_densities(plan, &matching, &routed, &shifts, group_rows, densities)?,
+        true => shifted_densities(plan, &matching, &routed, &shifts, &all_groups, densities)?,
         false => densities,
     };
     let names: Vec<String> = plan.catalogs.iter().map(|c| c.name.clone()).collect();
@@ -605,10 +604,15 @@ fn shifted(tables: &[SourceTable], shifts: &Shifts) -> Option<Vec<SourceTable>> 
         return None;
     }
     let mut moved = tables.to_vec();
-    for (t, s) in moved.iter_mut().zip(shifts) {
+    shift_tables(&mut moved, shifts);
+    Some(moved)
+}
+
+/// Moves each of `tables` by its catalog's `shifts`, in order.
+fn shift_tables(tables: &mut [SourceTable], shifts: &Shifts) {
+    for (t, s) in tables.iter_mut().zip(shifts) {
         shift_table_by(t, s);
     }
-    Some(moved)
 }
 
 /// The largest total correction of any catalog, arcsec.
@@ -623,17 +627,12 @@ fn largest_shift_arcsec(shifts: &Shifts) -> f64 {
 }
 
 /// The rows of each catalog routed to `cells`, with their margins, as source tables.
-fn group_tables(
-    plan: &Plan,
-    routed: &Routed,
-    cells: &[u64],
-    with_margin: bool,
-) -> Result<Vec<SourceTable>> {
+fn group_tables(plan: &Plan, routed: &Routed, cells: &[u64]) -> Result<Vec<SourceTable>> {
     plan.catalogs
         .iter()
         .zip(&routed.catalogs)
         .map(|(c, r)| {
-            let batch = r.rows_of(cells, with_margin)?;
+            let batch = r.rows_of(cells, true)?;
             SourceTable::from_normalized(&c.schema, std::slice::from_ref(&batch), &c.file)
         })
         .collect()
@@ -679,10 +678,8 @@ fn measure_by_groups(
     }
     let mut pairs = OffsetPairs::new(plan.catalogs.len());
     for cells in groups {
-        let mut tables = group_tables(plan, routed, cells, true)?;
-        for (t, s) in tables.iter_mut().zip(shifts) {
-            shift_table_by(t, s);
-        }
+        let mut tables = group_tables(plan, routed, cells)?;
+        shift_tables(&mut tables, shifts);
         let refs = &tables[reference];
         let owns = |row: usize| {
             routed_cell(refs, row, routed.order, matching.reference_epoch_yr)
@@ -703,13 +700,12 @@ fn shifted_densities(
     matching: &crate::crossmatch::MatchConfig,
     routed: &Routed,
     shifts: &Shifts,
-    group_rows: u64,
+    groups: &[Vec<u64>],
     mut densities: Vec<f64>,
 ) -> Result<Vec<f64>> {
-    let groups = cell_groups(routed, None, group_rows);
     for (c, s) in shifts.iter().enumerate().filter(|(_, s)| !s.is_empty()) {
         let mut cells: Vec<u64> = Vec::with_capacity(routed.catalogs[c].rows);
-        for group in &groups {
+        for group in groups {
             let batch = routed.catalogs[c].rows_of(group, false)?;
             let mut table = SourceTable::from_normalized(
                 &plan.catalogs[c].schema,

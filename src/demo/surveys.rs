@@ -647,12 +647,7 @@ pub fn observe(
         let dominant = seen[best.1].0;
 
         // 4-5: noise and detection.
-        let sigma: Vec<f64> = (0..nb)
-            .map(|b| sky[b].hypot(def.bands[b].floor * true_flux[b]))
-            .collect();
-        let flux: Vec<f64> = (0..nb)
-            .map(|b| true_flux[b] + sigma[b] * rng.normal())
-            .collect();
+        let (sigma, flux) = measure_fluxes(def, &sky, &true_flux, &mut rng);
         if !detected(def, grid, &flux, &sigma) {
             continue;
         }
@@ -812,12 +807,7 @@ pub fn observe(
                 continue;
             }
             let true_flux: Vec<f64> = band_index.iter().map(|&k| o.flux_jy[k]).collect();
-            let sigma: Vec<f64> = (0..nb)
-                .map(|b| sky[b].hypot(def.bands[b].floor * true_flux[b]))
-                .collect();
-            let flux: Vec<f64> = (0..nb)
-                .map(|b| true_flux[b] + sigma[b] * rng.normal())
-                .collect();
+            let (sigma, flux) = measure_fluxes(def, &sky, &true_flux, &mut rng);
             let b = def.astrometry_band;
             let placed = Placed {
                 ra,
@@ -835,6 +825,24 @@ pub fn observe(
         }
     }
     sources
+}
+
+/// The 1σ errors and the measured fluxes of `true_flux` (Jy per band): sky
+/// noise and a calibration floor in quadrature, σ² = σ_sky² + (f·F)², and one
+/// normal deviate per band, in band order.
+fn measure_fluxes(
+    def: &SurveyDef,
+    sky: &[f64],
+    true_flux: &[f64],
+    rng: &mut Rng,
+) -> (Vec<f64>, Vec<f64>) {
+    let sigma: Vec<f64> = (0..true_flux.len())
+        .map(|b| sky[b].hypot(def.bands[b].floor * true_flux[b]))
+        .collect();
+    let flux: Vec<f64> = (0..true_flux.len())
+        .map(|b| true_flux[b] + sigma[b] * rng.normal())
+        .collect();
+    (sigma, flux)
 }
 
 /// Whether measured fluxes pass the survey's detection rule.

@@ -167,3 +167,20 @@ pub fn kill_once_journaled(mut child: std::process::Child, journal: &Path, cells
     child.kill().unwrap();
     child.wait().unwrap();
 }
+
+/// Runs `fluxloom cell-worker PLAN` on the cell file `cell` (its stdin) and
+/// reads the cell's objects and links from its stdout.
+pub fn run_cell_worker(plan: &Path, cell: &Path) -> fluxloom::crossmatch::cells::CellOutput {
+    let worker = std::process::Command::new(env!("CARGO_BIN_EXE_fluxloom"))
+        .arg("cell-worker")
+        .arg(plan)
+        .stdin(std::fs::File::open(cell).unwrap())
+        .output()
+        .unwrap();
+    assert!(
+        worker.status.success(),
+        "{}",
+        String::from_utf8_lossy(&worker.stderr)
+    );
+    fluxloom::crossmatch::cell_io::read_output(&worker.stdout[..], cell).unwrap()
+}
