@@ -10,15 +10,15 @@ mod common;
 
 use common::{assert_same_files, kill_once_journaled};
 
-/// The demo plan without the settings a limited build refuses (offsets and
-/// false matches), its files named absolutely, writing into `out`. Its exports
-/// stay, so the limited builds' exports are compared too.
+/// The demo plan without its offsets and false matches, its files named
+/// absolutely, writing into `out`. Its exports stay, so the limited builds'
+/// exports are compared too.
 fn plan_in(dir: &Path, out: &Path) -> PathBuf {
     demo_plan(dir, out, false)
 }
 
-/// The demo plan as [`plan_in`] makes it, keeping the astrometric reference and
-/// the offset correction when `offsets`.
+/// The demo plan as [`plan_in`] makes it, keeping the astrometric reference,
+/// the offset correction and the false-match estimate when `offsets`.
 fn demo_plan(dir: &Path, out: &Path, offsets: bool) -> PathBuf {
     let demo = std::fs::canonicalize("demo_catalogs/fl1").unwrap();
     let text = std::fs::read_to_string(demo.join("plan.toml")).unwrap();
@@ -28,7 +28,7 @@ fn demo_plan(dir: &Path, out: &Path, offsets: bool) -> PathBuf {
             String::new()
         } else if line.starts_with("correct_offsets") {
             match offsets {
-                true => format!("{line}\nfalse_matches = false"),
+                true => line.to_string(),
                 false => "correct_offsets = false\nfalse_matches = false".to_string(),
             }
         } else if line.starts_with("folder") {
@@ -150,10 +150,11 @@ fn limited_builds_write_the_files_of_an_unlimited_build() {
 }
 
 /// With an astrometric reference, a limited build measures the offsets and
-/// floors a group of cells at a time and corrects the catalogs as it matches:
-/// the files are those of an unlimited build, offsets in run.json included.
+/// floors a group of cells at a time and corrects the catalogs as it matches,
+/// and counts the false matches a group at a time: the files are those of an
+/// unlimited build, offsets and false-match estimates in run.json included.
 #[test]
-fn limited_builds_with_offsets_write_the_files_of_an_unlimited_build() {
+fn limited_builds_with_offsets_and_false_matches_write_the_files_of_an_unlimited_build() {
     let dir = tempfile::tempdir().unwrap();
     let whole = dir.path().join("whole");
     let plan = demo_plan(dir.path(), &whole, true);
@@ -161,6 +162,10 @@ fn limited_builds_with_offsets_write_the_files_of_an_unlimited_build() {
     // The demo's kos catalog carries a +0.25″ offset in RA, which is corrected.
     assert!(
         summary.contains("offset of kos vs ask: (+0.258"),
+        "{summary}"
+    );
+    assert!(
+        summary.contains("false matches cinder x ember: 6.4 expected of 190 candidates"),
         "{summary}"
     );
     for (k, extra) in GROUP_LAYOUTS.iter().enumerate() {
@@ -189,6 +194,20 @@ fn limited_builds_with_offsets_write_the_files_of_an_unlimited_build() {
         err.contains("offsets within --memory-limit need a routing margin of at least"),
         "{err}"
     );
+    // The false matches need every shifted partner at hand: the demo's 5″
+    // tolerance shifts by 100″, so a margin of 20″ is refused by name.
+    let o = build(
+        &plan,
+        &dir.path().join("narrow"),
+        &["--memory-limit", "300M", "--routing-margin", "20"],
+    );
+    assert!(!o.status.success());
+    let err = String::from_utf8_lossy(&o.stderr);
+    assert!(
+        err.contains("false matches within --memory-limit need a routing margin of at least 105."),
+        "{err}"
+    );
+    assert!(!dir.path().join("narrow").exists());
 }
 
 #[test]
@@ -206,20 +225,8 @@ fn a_limited_build_of_some_cells_writes_that_part() {
 }
 
 #[test]
-fn settings_a_limited_build_cannot_honour_are_named() {
+fn a_memory_limit_that_is_not_a_size_is_named() {
     let dir = tempfile::tempdir().unwrap();
-    let o = build(
-        Path::new("demo_catalogs/fl1/plan.toml"),
-        &dir.path().join("out"),
-        &["--memory-limit", "1G"],
-    );
-    assert!(!o.status.success());
-    let err = String::from_utf8_lossy(&o.stderr);
-    assert!(
-        err.contains("--memory-limit does not yet support false_matches = true; build"),
-        "{err}"
-    );
-    assert!(!dir.path().join("out").exists());
     let o = build(
         Path::new("demo_catalogs/fl1/plan.toml"),
         &dir.path().join("out"),

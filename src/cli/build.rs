@@ -28,6 +28,7 @@ use crate::crossmatch::systematics::{
 use crate::error::{Error, Result};
 use crate::output::batches::ParquetBatches;
 use crate::output::journal::Journal;
+use crate::output::kway::without_empty_nulls;
 use crate::output::run_record::{InputRecord, OutputRecord, RunRecord, SedRecord, SubsetRecord};
 use crate::output::staging::Staging;
 use crate::output::table_file::{TableFormat, TableOutput};
@@ -519,7 +520,22 @@ pub(crate) fn write_tables(
         let hard = hard_sources_batch(&result.objects, &result.links, matched_tables, epoch)?;
         let name = format.file_name("hard_sources");
         let mut w = TableOutput::create(format, &path(&name), hard.schema(), metadata.clone())?;
-        w.write(&hard)?;
+        // In chunks, as every table: a join of parts then holds one chunk of it.
+        // A slice keeps its whole table's validity buffers, so those that mark
+        // no null in the slice are dropped, as the join drops them.
+        // (An empty table is written as one empty batch.)
+        let rows = hard.num_rows();
+        let mut start = 0;
+        loop {
+            let len = chunk_objects.min(rows - start);
+            let slice = without_empty_nulls(&hard.slice(start, len))
+                .map_err(|e| Error::columnar(Path::new(&name), e))?;
+            w.write(&slice)?;
+            start += len;
+            if start >= rows {
+                break;
+            }
+        }
         outputs.push(OutputRecord {
             file: name,
             rows: w.finish()?,

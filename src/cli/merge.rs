@@ -63,7 +63,11 @@ pub fn run(args: &MergeArgs) -> Result<()> {
             WRITE_CHUNK_OBJECTS * slots.max(1),
         ),
         ("links.parquet", TableKind::Links, WRITE_CHUNK_OBJECTS),
-        ("hard_sources.parquet", TableKind::HardSources, usize::MAX),
+        (
+            "hard_sources.parquet",
+            TableKind::HardSources,
+            WRITE_CHUNK_OBJECTS,
+        ),
     ] {
         let present: Vec<bool> = args.parts.iter().map(|p| p.join(file).is_file()).collect();
         if !present.iter().any(|&p| p) {

@@ -3,6 +3,7 @@
 
 pub mod bands;
 pub mod build;
+pub mod cell_runs;
 pub mod cells;
 pub mod draw;
 pub mod make_demo;

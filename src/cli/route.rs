@@ -18,6 +18,7 @@ use arrow::datatypes::{Float64Type, SchemaRef};
 use arrow::ipc::reader::StreamReader;
 use arrow::ipc::writer::StreamWriter;
 
+use super::cell_runs::{CellRuns, SortedCells};
 use super::progress::row_counter;
 use super::vet::for_each_normalized;
 use crate::catalog::normalize::{NormalizeOptions, NormalizeReport, Normalizer};
@@ -27,6 +28,7 @@ use crate::crossmatch::config::MatchConfig;
 use crate::crossmatch::density::MAX_ORDER;
 use crate::crossmatch::prepare::at_reference_epoch;
 use crate::error::{Error, Result};
+use crate::output::table_file::spill_options;
 use crate::plan::Plan;
 use crate::sky::partition::{home_cell, partition_keeping_margins};
 
@@ -86,10 +88,10 @@ pub struct RoutedCatalog {
     /// Rows kept.
     pub rows: usize,
     /// Cells at [`MAX_ORDER`] of its positions at the reference epoch (densities).
-    pub reference_cells: Vec<u64>,
+    pub reference_cells: SortedCells,
     /// Cells of its positions as observed, at [`MAX_ORDER`] or at the plan's
     /// coverage order when one is set (coverage).
-    pub observed_cells: Vec<u64>,
+    pub observed_cells: SortedCells,
     runs: Vec<SpillRun>,
 }
 
@@ -154,8 +156,8 @@ pub fn route(
             runs: Vec::new(),
         };
         let mut hashes: Vec<u64> = Vec::new();
-        let mut reference_cells: Vec<u64> = Vec::new();
-        let mut observed_cells: Vec<u64> = Vec::new();
+        let mut reference_cells = CellRuns::new(spill_dir, &format!("reference-{c}"));
+        let mut observed_cells = CellRuns::new(spill_dir, &format!("observed-{c}"));
         let observed_order = catalog.coverage_order.unwrap_or(MAX_ORDER);
         let mut rows = 0usize;
         for_each_normalized(stream, &mut normalizer, |batch| {
@@ -178,10 +180,14 @@ pub fn route(
                 ra_ref.push(if finite { ra } else { 0.0 });
                 dec_ref.push(if finite { dec } else { 0.0 });
                 if finite {
-                    reference_cells.push(home_cell(MAX_ORDER, ra, dec));
+                    reference_cells.push(home_cell(MAX_ORDER, ra, dec))?;
                 }
                 if columns.ra[i].is_finite() && columns.dec[i].is_finite() {
-                    observed_cells.push(home_cell(observed_order, columns.ra[i], columns.dec[i]));
+                    observed_cells.push(home_cell(
+                        observed_order,
+                        columns.ra[i],
+                        columns.dec[i],
+                    ))?;
                 }
                 hashes.push(id_hash(columns.ids.value(i)));
             }
@@ -216,8 +222,8 @@ pub fn route(
             sha256,
             bytes,
             rows,
-            reference_cells,
-            observed_cells,
+            reference_cells: reference_cells.finish(),
+            observed_cells: observed_cells.finish(),
             runs: spill.runs,
         });
     }
@@ -331,8 +337,9 @@ impl CatalogSpill {
             let batch =
                 interleave_record_batch(&held, &indices).map_err(|e| Error::columnar(&path, e))?;
             bytes.clear();
-            let mut writer = StreamWriter::try_new(&mut bytes, &self.schema)
-                .map_err(|e| Error::columnar(&path, e))?;
+            let mut writer =
+                StreamWriter::try_new_with_options(&mut bytes, &self.schema, spill_options())
+                    .map_err(|e| Error::columnar(&path, e))?;
             writer
                 .write(&batch)
                 .and_then(|()| writer.finish())

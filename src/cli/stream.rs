@@ -19,9 +19,11 @@
 //! With an astrometric reference, the offsets and floors are measured between
 //! routing and matching, a group at a time ([`measure_by_groups`]); the match
 //! applies the same shifts to each group's rows. Exports read the joined tables
-//! back a batch at a time, as in every build. Not yet available with a limit
-//! (refused, naming the setting): false-match estimates, which still need every
-//! row at once.
+//! back a batch at a time, as in every build. The false-match estimate is
+//! counted a group at a time too ([`false_matches_by_groups`]): each group
+//! counts the real and shifted candidates of the sources it owns, so the
+//! routing margin then holds the largest shift (30" at least) besides the
+//! tolerance.
 
 use std::path::{Path, PathBuf};
 use std::sync::Arc;
@@ -35,6 +37,7 @@ use super::build::{
     input_record, journal_recorder, run_key, sed_counts, summary, table_metadata, write_exports,
     write_science, write_tables,
 };
+use super::cell_runs::{CellRuns, SortedCells};
 use super::progress::spinner;
 use super::route::{Routed, route};
 use crate::crossmatch::SourceTable;
@@ -42,8 +45,9 @@ use crate::crossmatch::candidates::EpochStats;
 use crate::crossmatch::cells::{
     CellContext, CellRun, OnCellComplete, WIDEST_MARGIN_DEG, first_margin_arcsec,
 };
-use crate::crossmatch::density::{MAX_ORDER, Occupancy};
+use crate::crossmatch::density::MAX_ORDER;
 use crate::crossmatch::engine::{MatchResult, MatchSetup, MatchStats, density_per_sr};
+use crate::crossmatch::false_matches::{self, FalseMatchEstimate};
 use crate::crossmatch::prepare::at_reference_epoch;
 use crate::crossmatch::systematics::{
     Measured, OffsetPairs, Shifts, correct_offsets_by, floors_in_force, offset_pairs,
@@ -70,6 +74,11 @@ const BYTES_PER_GROUP_ROW: u64 = 1400;
 /// Memory kept aside for the program, the first pass's gathered statistics and
 /// the merge's buffers, bytes.
 const FIXED_BYTES: u64 = 200 << 20;
+
+/// Room in the default routing margin for the offset corrections when the
+/// false matches need the margin to reach their shifts, arcsec (measured
+/// offsets beyond it are refused, naming `--routing-margin`).
+const OFFSET_ROOM_ARCSEC: f64 = 5.0;
 
 /// Objects per batch of a part's tables. The join holds a batch of every part
 /// of every table at once, so part batches are small; their size does not show
@@ -101,22 +110,6 @@ pub fn parse_memory_size(text: &str) -> std::result::Result<u64, String> {
         return Err(bad());
     }
     Ok((value * scale as f64) as u64)
-}
-
-/// Refuses plan settings the bounded-memory build does not do yet.
-fn check_supported(plan: &Plan) -> Result<()> {
-    let mut unsupported = Vec::new();
-    if plan.false_matches {
-        unsupported.push("false_matches = true");
-    }
-    if unsupported.is_empty() {
-        return Ok(());
-    }
-    Err(Error::Usage(format!(
-        "plan {}: --memory-limit does not yet support {}; build without a limit, or leave these out of the plan",
-        plan.path.display(),
-        unsupported.join(", ")
-    )))
 }
 
 /// The spill folder beside the output folder, removed when dropped.
@@ -164,7 +157,6 @@ pub fn build_within(
     run: RunOptions,
     limit_bytes: u64,
 ) -> Result<BuildOutcome> {
-    check_supported(plan)?;
     let started = Instant::now();
     let quiet = run.quiet;
     let mut matching = plan.matching.clone();
@@ -175,11 +167,18 @@ pub fn build_within(
     let budget = limit_bytes.saturating_sub(FIXED_BYTES).max(64 << 20);
     // The routing margin holds two doublings of the first pass without epoch
     // slack; cells needing more are matched again on their own.
+    // The false-match estimate needs each source's shifted partners in its
+    // group: its reach, and room for the offset corrections.
     let margin_arcsec = run.routing_margin.unwrap_or_else(|| {
-        4.0 * first_margin_arcsec(CellContext::influence_radius_arcsec(
-            &matching,
-            &EpochStats::default(),
-        ))
+        let first = 4.0
+            * first_margin_arcsec(CellContext::influence_radius_arcsec(
+                &matching,
+                &EpochStats::default(),
+            ));
+        match plan.false_matches {
+            true => first.max(false_matches::reach_arcsec(&matching) + OFFSET_ROOM_ARCSEC),
+            false => first,
+        }
     });
     let routed = route(
         plan,
@@ -195,12 +194,13 @@ pub fn build_within(
         .catalogs
         .iter()
         .map(|c| {
-            let area = plan.area_sr.unwrap_or_else(|| {
-                Occupancy::from_cells(c.reference_cells.clone()).footprint_area_sr()
-            });
-            density_per_sr(c.rows, area)
+            let area = match plan.area_sr {
+                Some(area) => area,
+                None => c.reference_cells.counts()?.footprint_area_sr(),
+            };
+            Ok(density_per_sr(c.rows, area))
         })
-        .collect();
+        .collect::<Result<_>>()?;
     let epochs = routed.epochs.finish(matching.reference_epoch_yr);
     let seds_written = plan.tables.objects || plan.tables.photometry;
     let coverage: Vec<Coverage> = plan
@@ -210,7 +210,7 @@ pub fn build_within(
         .filter(|_| seds_written)
         .map(|(c, r)| match &c.coverage {
             Some(path) => Coverage::from_moc_file(path),
-            None => Ok(coverage_of(c.coverage_order, &r.observed_cells)),
+            None => coverage_of(c.coverage_order, &r.observed_cells),
         })
         .collect::<Result<_>>()?;
     let slots = band_slots(plan);
@@ -235,12 +235,30 @@ pub fn build_within(
     // Shifted catalogs cover a shifted footprint: their densities are counted
     // from the shifted positions, as a build holding everything counts them.
     let densities = match plan.area_sr.is_none() && shift_arcsec > 0.0 {
-        true => shifted_densities(plan, &matching, &routed, &shifts, &all_groups, densities)?,
+        true => shifted_densities(
+            plan,
+            &matching,
+            &routed,
+            &shifts,
+            &all_groups,
+            densities,
+            &spill.0,
+        )?,
         false => densities,
     };
     let names: Vec<String> = plan.catalogs.iter().map(|c| c.name.clone()).collect();
     let floors = floors_in_force(&names, &matching, plan.astrometric_reference, &offsets);
     let matching = with_floors(&matching, &floors);
+    let false_matches = match plan.false_matches {
+        true => {
+            let bar = spinner("estimating false matches", quiet);
+            let estimates =
+                false_matches_by_groups(plan, &matching, &routed, &all_groups, &shifts, &rows)?;
+            bar.finish_and_clear();
+            estimates
+        }
+        false => Vec::new(),
+    };
     // A group's cell outputs refer to the group's sources, which the groups and
     // the routing margin decide: a run resumes only a journal of the same layout.
     let layout = format!("groups of {group_rows} rows, routing margin {margin_arcsec}");
@@ -330,7 +348,7 @@ pub fn build_within(
             .collect(),
         &result,
         offsets,
-        Vec::new(),
+        false_matches,
         sed_counts(&slots, &tally.status_counts),
         outputs.clone(),
     );
@@ -369,23 +387,21 @@ pub fn build_within(
 
 /// A coverage from the cells of a catalog's observed positions: at the plan's
 /// order when set, else at the footprint order (as a build holding everything does).
-fn coverage_of(order: Option<u8>, observed_cells: &[u64]) -> Coverage {
+///
+/// # Errors
+/// Reading the cells' runs.
+fn coverage_of(order: Option<u8>, observed_cells: &SortedCells) -> Result<Coverage> {
     let mut coverage = Coverage::default();
     match order {
-        Some(order) => {
-            for &c in observed_cells {
-                coverage.insert(order, c);
-            }
-        }
+        Some(order) => observed_cells.for_each_distinct(|c| coverage.insert(order, c))?,
         None => {
-            let occupancy = Occupancy::from_cells(observed_cells.to_vec());
-            let order = occupancy.footprint_order();
-            for c in occupancy.cells_at(order) {
+            let order = observed_cells.counts()?.footprint_order();
+            for c in observed_cells.cells_at(order)? {
                 coverage.insert(order, c);
             }
         }
     }
-    coverage
+    Ok(coverage)
 }
 
 /// Runs of consecutive cells with core rows (within `subset` when given),
@@ -690,8 +706,55 @@ fn measure_by_groups(
     Ok(pairs.measure(reference))
 }
 
+/// Estimates the false-match rates a group of cells at a time, with the
+/// catalogs moved by `shifts`: each group counts the candidates of the
+/// sources routed to its cells (as the first catalog of each pair) against
+/// all its rows and margins, shifted and not
+/// ([`false_matches::FalseMatchCounts`]). The counts add up to those of the
+/// whole input at once, so the estimates are those of a build holding everything.
+///
+/// # Errors
+/// Spill-read and match errors; a routing margin narrower than the shifts'
+/// reach.
+fn false_matches_by_groups(
+    plan: &Plan,
+    matching: &crate::crossmatch::MatchConfig,
+    routed: &Routed,
+    groups: &[Vec<u64>],
+    shifts: &Shifts,
+    rows: &[usize],
+) -> Result<Vec<FalseMatchEstimate>> {
+    let needed = false_matches::reach_arcsec(matching) + largest_shift_arcsec(shifts);
+    if routed.margin_arcsec < needed {
+        return Err(Error::Usage(format!(
+            "plan {}: false matches within --memory-limit need a routing margin of at least {needed:.1}\" (the largest shift and tolerance plus the corrections), found {:.1}\"; widen --routing-margin or set false_matches = false",
+            plan.path.display(),
+            routed.margin_arcsec
+        )));
+    }
+    let mut counts = false_matches::FalseMatchCounts::default();
+    for cells in groups {
+        let mut tables = group_tables(plan, routed, cells)?;
+        shift_tables(&mut tables, shifts);
+        let owns = |catalog: usize, row: usize| {
+            routed_cell(
+                &tables[catalog],
+                row,
+                routed.order,
+                matching.reference_epoch_yr,
+            )
+            .is_some_and(|c| cells.binary_search(&c).is_ok())
+        };
+        counts.add(false_matches::FalseMatchCounts::count(
+            &tables, matching, &owns,
+        )?);
+    }
+    Ok(counts.estimates(rows))
+}
+
 /// The densities per steradian with each shifted catalog's footprint counted
-/// from its shifted positions (the core rows of each group, at [`MAX_ORDER`]).
+/// from its shifted positions (the core rows of each group, at [`MAX_ORDER`],
+/// gathered as sorted runs in `spill`).
 ///
 /// # Errors
 /// Spill-read errors.
@@ -702,9 +765,10 @@ fn shifted_densities(
     shifts: &Shifts,
     groups: &[Vec<u64>],
     mut densities: Vec<f64>,
+    spill: &Path,
 ) -> Result<Vec<f64>> {
     for (c, s) in shifts.iter().enumerate().filter(|(_, s)| !s.is_empty()) {
-        let mut cells: Vec<u64> = Vec::with_capacity(routed.catalogs[c].rows);
+        let mut cells = CellRuns::new(spill, &format!("shifted-{c}"));
         for group in groups {
             let batch = routed.catalogs[c].rows_of(group, false)?;
             let mut table = SourceTable::from_normalized(
@@ -713,11 +777,14 @@ fn shifted_densities(
                 &plan.catalogs[c].file,
             )?;
             shift_table_by(&mut table, s);
-            cells.extend((0..table.len()).filter_map(|row| {
-                routed_cell(&table, row, MAX_ORDER, matching.reference_epoch_yr)
-            }));
+            for row in 0..table.len() {
+                if let Some(cell) = routed_cell(&table, row, MAX_ORDER, matching.reference_epoch_yr)
+                {
+                    cells.push(cell)?;
+                }
+            }
         }
-        let area = Occupancy::from_cells(cells).footprint_area_sr();
+        let area = cells.finish().counts()?.footprint_area_sr();
         densities[c] = density_per_sr(routed.catalogs[c].rows, area);
     }
     Ok(densities)
@@ -790,7 +857,7 @@ fn join_parts(
         (
             "hard_sources",
             TableKind::HardSources,
-            usize::MAX,
+            WRITE_CHUNK_OBJECTS,
             which.objects,
         ),
     ]

@@ -36,7 +36,8 @@ pub fn footprint_order(ra_deg: &[f64], dec_deg: &[f64]) -> u8 {
 
 /// The sources' cells at [`MAX_ORDER`], sorted, from which the occupied cells of
 /// every coarser order follow by shifting (NESTED parents are p >> 2). A
-/// streaming read collects them batch by batch ([`Occupancy::from_cells`]).
+/// streaming read collects them batch by batch ([`Occupancy::from_cells`]), or
+/// keeps only their counts ([`OccupiedCounts`]).
 pub struct Occupancy {
     cells: Vec<u64>,
 }
@@ -61,11 +62,7 @@ impl Occupancy {
 
     /// The footprint area, steradians (0 without sources).
     pub fn footprint_area_sr(&self) -> f64 {
-        if self.cells.is_empty() {
-            return 0.0;
-        }
-        let order = self.footprint_order();
-        self.occupied(order) as f64 * cell_area_sr(order)
+        self.counts().footprint_area_sr()
     }
 
     /// The distinct occupied cells at `order` (at most [`MAX_ORDER`]), ascending.
@@ -81,24 +78,62 @@ impl Occupancy {
         })
     }
 
-    /// Distinct cells at `order` (at least 1).
-    fn occupied(&self, order: u8) -> usize {
-        let shift = 2 * u32::from(MAX_ORDER - order);
-        let mut count = 0;
+    /// See [`footprint_order`].
+    pub fn footprint_order(&self) -> u8 {
+        self.counts().footprint_order()
+    }
+
+    /// The counts the footprint rule needs.
+    fn counts(&self) -> OccupiedCounts {
+        let mut counts = OccupiedCounts::default();
+        counts.add_sources(self.cells.len());
         let mut last = None;
         for &c in &self.cells {
-            let parent = c >> shift;
-            if last != Some(parent) {
-                count += 1;
-                last = Some(parent);
+            if last != Some(c) {
+                counts.add_distinct(c, last);
+                last = Some(c);
             }
         }
-        count.max(1)
+        counts
+    }
+}
+
+/// The number of sources and of distinct occupied cells at every order up to
+/// [`MAX_ORDER`]: all the footprint rule needs, gathered from the distinct
+/// cells at [`MAX_ORDER`] in ascending order, so that a streaming build can
+/// merge sorted runs of cells from disk instead of holding one cell per source.
+#[derive(Debug, Clone, Default, PartialEq)]
+pub struct OccupiedCounts {
+    sources: usize,
+    occupied: [usize; MAX_ORDER as usize + 1],
+}
+
+impl OccupiedCounts {
+    /// Counts `n` more sources.
+    pub fn add_sources(&mut self, n: usize) {
+        self.sources += n;
+    }
+
+    /// Counts `cell`, a cell at [`MAX_ORDER`] greater than `previous` (the
+    /// last distinct cell counted, if any): it opens a new occupied cell at
+    /// every order where its parent differs from the previous cell's.
+    pub fn add_distinct(&mut self, cell: u64, previous: Option<u64>) {
+        for order in 0..=MAX_ORDER {
+            let shift = 2 * u32::from(MAX_ORDER - order);
+            if previous.is_none_or(|p| p >> shift != cell >> shift) {
+                self.occupied[order as usize] += 1;
+            }
+        }
+    }
+
+    /// Distinct cells at `order` (at least 1).
+    fn occupied(&self, order: u8) -> usize {
+        self.occupied[order as usize].max(1)
     }
 
     /// See [`footprint_order`].
     pub fn footprint_order(&self) -> u8 {
-        let n = self.cells.len() as f64;
+        let n = self.sources as f64;
         let dense_enough = |order: u8| n / self.occupied(order) as f64 >= MIN_MEAN_OCCUPANCY;
         if !dense_enough(0) {
             return FALLBACK_ORDER;
@@ -114,6 +149,15 @@ impl Occupancy {
             }
         }
         lo
+    }
+
+    /// The footprint area, steradians (0 without sources).
+    pub fn footprint_area_sr(&self) -> f64 {
+        if self.sources == 0 {
+            return 0.0;
+        }
+        let order = self.footprint_order();
+        self.occupied(order) as f64 * cell_area_sr(order)
     }
 }
 

@@ -162,7 +162,7 @@ fn sift_down(heap: &mut [usize], cursors: &[Cursor], mut i: usize) {
 /// The batch with every validity buffer that marks no null dropped, as the
 /// builders of a build leave them: the Parquet writer splits pages of arrays
 /// with and without one at different rows, so the files would differ.
-fn without_empty_nulls(batch: &RecordBatch) -> std::result::Result<RecordBatch, ArrowError> {
+pub fn without_empty_nulls(batch: &RecordBatch) -> std::result::Result<RecordBatch, ArrowError> {
     fn strip(data: ArrayData) -> std::result::Result<ArrayData, ArrowError> {
         let empty = data.nulls().is_some_and(|n| n.null_count() == 0);
         let children: Vec<ArrayData> = data

@@ -6,8 +6,8 @@ use std::collections::HashMap;
 use std::sync::Arc;
 
 use arrow::array::{
-    ArrayRef, BooleanArray, Float64Array, RecordBatch, StringArray, UInt16Array, UInt32Array,
-    UInt64Array,
+    ArrayRef, BooleanArray, Float64Array, Float64Builder, RecordBatch, StringArray, UInt16Array,
+    UInt32Array, UInt64Array,
 };
 use arrow::datatypes::{DataType, Field, Schema, SchemaRef};
 
@@ -38,8 +38,8 @@ fn described(name: &str, data_type: DataType, unit: &str, description: &str) -> 
 /// Description of magnitude columns of magnitude-only bands.
 const VEGA_MAG: &str = "Vega magnitude";
 
-fn f64s(values: Vec<Option<f64>>) -> ArrayRef {
-    Arc::new(Float64Array::from(values))
+fn f64s(values: impl IntoIterator<Item = Option<f64>>) -> ArrayRef {
+    Arc::new(values.into_iter().collect::<Float64Array>())
 }
 
 fn sed_status_names() -> Vec<&'static str> {
@@ -154,12 +154,12 @@ pub fn objects_batch(
         Arc::new(Float64Array::from_iter_values(
             objects.iter().map(|o| o.pos_err_arcsec),
         )),
-        f64s(objects.iter().map(|o| opt(o.pmra_cosdec_masyr)).collect()),
-        f64s(objects.iter().map(|o| opt(o.pmdec_masyr)).collect()),
-        f64s(objects.iter().map(|o| opt(o.pm_fit_masyr[0])).collect()),
-        f64s(objects.iter().map(|o| opt(o.pm_fit_masyr[1])).collect()),
-        f64s(objects.iter().map(|o| opt(o.pm_fit_err_masyr[0])).collect()),
-        f64s(objects.iter().map(|o| opt(o.pm_fit_err_masyr[1])).collect()),
+        f64s(objects.iter().map(|o| opt(o.pmra_cosdec_masyr))),
+        f64s(objects.iter().map(|o| opt(o.pmdec_masyr))),
+        f64s(objects.iter().map(|o| opt(o.pm_fit_masyr[0]))),
+        f64s(objects.iter().map(|o| opt(o.pm_fit_masyr[1]))),
+        f64s(objects.iter().map(|o| opt(o.pm_fit_err_masyr[0]))),
+        f64s(objects.iter().map(|o| opt(o.pm_fit_err_masyr[1]))),
         Arc::new(Float64Array::from_iter_values(
             objects.iter().map(|_| reference_epoch_yr),
         )),
@@ -182,7 +182,7 @@ pub fn objects_batch(
             objects.iter().map(|o| o.probability),
         )),
         related_ids(objects, tables),
-        f64s(objects.iter().map(|o| o.contamination_share).collect()),
+        f64s(objects.iter().map(|o| o.contamination_share)),
         Arc::new(UInt64Array::from_iter_values(
             objects.iter().map(|o| o.healpix29),
         )),
@@ -214,16 +214,10 @@ pub fn objects_batch(
                 .collect::<Vec<_>>(),
         )));
         columns.push(f64s(
-            objects
-                .iter()
-                .map(|o| o.member(c).map(|m| m.sep_arcsec))
-                .collect(),
+            objects.iter().map(|o| o.member(c).map(|m| m.sep_arcsec)),
         ));
         columns.push(f64s(
-            objects
-                .iter()
-                .map(|o| o.member(c).map(|m| m.probability))
-                .collect(),
+            objects.iter().map(|o| o.member(c).map(|m| m.probability)),
         ));
     }
     let names = sed_status_names();
@@ -261,10 +255,7 @@ pub fn objects_batch(
                 field(&name, DataType::Float64, true, Some(unit))
             });
             columns.push(f64s(
-                seds.iter()
-                    .zip(&chosen)
-                    .map(|(s, &k)| pick(&s.points[k]))
-                    .collect(),
+                seds.iter().zip(&chosen).map(|(s, &k)| pick(&s.points[k])),
             ));
         }
         fields.push(field(&format!("{id}_status"), status_type(), false, None));
@@ -304,7 +295,8 @@ pub fn photometry_batch(
     let mut system = Vec::with_capacity(n);
     let mut wavelength = Vec::with_capacity(n);
     let mut zero_point = Vec::with_capacity(n);
-    let mut cols: [Vec<Option<f64>>; 11] = Default::default();
+    // Built in place: 11 columns of `Option<f64>` would take twice the memory.
+    let mut cols: [Float64Builder; 11] = std::array::from_fn(|_| Float64Builder::with_capacity(n));
     // The lower bounds of saturated values, only when some schema marks saturation.
     let saturates = slots.iter().any(|s| s.spec.saturated.is_some());
     let mut status = Vec::with_capacity(n);
@@ -323,17 +315,19 @@ pub fn photometry_batch(
             let flux = slot.spec.has_flux();
             let as_flux = |v: Option<f64>| if flux { v } else { None };
             let as_mag = |v: Option<f64>| if flux { None } else { v };
-            cols[0].push(as_flux(p.value));
-            cols[1].push(as_flux(p.err));
-            cols[2].push(as_flux(p.lo));
-            cols[3].push(as_flux(p.hi));
-            cols[4].push(as_flux(p.ulim));
-            cols[5].push(as_flux(p.value).map(|v| nu_fnu_cgs(v, slot.spec.band.wavelength_um)));
-            cols[6].push(as_mag(p.value));
-            cols[7].push(as_mag(p.err));
-            cols[8].push(as_mag(p.ulim));
-            cols[9].push(as_flux(p.flux_lower));
-            cols[10].push(as_mag(p.flux_lower));
+            cols[0].append_option(as_flux(p.value));
+            cols[1].append_option(as_flux(p.err));
+            cols[2].append_option(as_flux(p.lo));
+            cols[3].append_option(as_flux(p.hi));
+            cols[4].append_option(as_flux(p.ulim));
+            cols[5].append_option(
+                as_flux(p.value).map(|v| nu_fnu_cgs(v, slot.spec.band.wavelength_um)),
+            );
+            cols[6].append_option(as_mag(p.value));
+            cols[7].append_option(as_mag(p.err));
+            cols[8].append_option(as_mag(p.ulim));
+            cols[9].append_option(as_flux(p.flux_lower));
+            cols[10].append_option(as_mag(p.flux_lower));
             status.push(p.status as i8);
         }
     }
@@ -391,9 +385,9 @@ pub fn photometry_batch(
         f64s(zero_point),
     ];
     columns.extend(
-        cols.into_iter()
+        cols.iter_mut()
             .take(if saturates { 11 } else { 9 })
-            .map(f64s),
+            .map(|b| Arc::new(b.finish()) as ArrayRef),
     );
     columns.push(status_column(status, &sed_status_names()));
     RecordBatch::try_new(Arc::new(Schema::new(fields)), columns)
