@@ -224,6 +224,38 @@ fn a_limited_build_of_some_cells_writes_that_part() {
     assert_same_files(&limited, &part, "limited subset");
 }
 
+/// Without `--memory-limit`, a build that would not fit in half of the
+/// available memory runs within that half and says so; its files are those of
+/// a build holding everything. (The available memory is stated small here.)
+#[test]
+fn a_build_too_large_for_the_memory_chooses_a_limit() {
+    let dir = tempfile::tempdir().unwrap();
+    let whole = dir.path().join("whole");
+    let plan = plan_in(dir.path(), &whole);
+    let summary = built(&plan, &whole, &[]);
+    assert!(
+        !summary.contains("choose one with --memory-limit"),
+        "{summary}"
+    );
+    let auto = dir.path().join("auto");
+    let o = Command::new(env!("CARGO_BIN_EXE_fluxloom"))
+        .env("FLUXLOOM_MEMORY_AVAILABLE", "1M")
+        .args(["--quiet", "build"])
+        .arg(&plan)
+        .arg("--out")
+        .arg(&auto)
+        .output()
+        .unwrap();
+    let summary = String::from_utf8_lossy(&o.stdout);
+    assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
+    assert!(
+        summary.contains("more than half of the 0.0 GB available: built within a limit of 0.5 GB (choose one with --memory-limit)"),
+        "{summary}"
+    );
+    assert!(summary.contains("memory   limit 512 MB:"), "{summary}");
+    assert_same_files(&auto, &whole, "build within the chosen limit");
+}
+
 #[test]
 fn a_memory_limit_that_is_not_a_size_is_named() {
     let dir = tempfile::tempdir().unwrap();

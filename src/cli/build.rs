@@ -69,7 +69,9 @@ pub struct BuildArgs {
     pub cells: Option<CellList>,
     /// Build within this much memory (e.g. `2G`, `512M`): catalogs are routed to
     /// sky cells through spill files beside the output folder and matched a
-    /// group of cells at a time. The outputs do not depend on it.
+    /// group of cells at a time. The outputs do not depend on it. Without it,
+    /// a build whose inputs would need more than half of the available memory
+    /// runs within that half, and says so.
     #[arg(long, value_name = "SIZE", value_parser = super::stream::parse_memory_size)]
     pub memory_limit: Option<u64>,
     /// With `--memory-limit`: rows per group of cells at most (tests; the outputs do not depend on it).
@@ -164,7 +166,14 @@ pub fn run(args: &BuildArgs, quiet: bool) -> Result<()> {
         spill_bytes: args.spill_bytes,
         routing_margin: args.routing_margin,
     };
-    let build = |plan: &Plan, out_dir: &Path, options: RunOptions| match args.memory_limit {
+    // Without a limit, a build that would not fit in half of the available
+    // memory runs within that half (its files are the same).
+    let auto = match args.memory_limit {
+        Some(_) => None,
+        None => super::auto_limit::automatic_limit(&plan)?,
+    };
+    let limit = args.memory_limit.or(auto.map(|a| a.limit_bytes));
+    let build = |plan: &Plan, out_dir: &Path, options: RunOptions| match limit {
         Some(limit) => super::stream::build_within(plan, out_dir, options, limit),
         None => build_with(plan, out_dir, options),
     };
@@ -176,7 +185,8 @@ pub fn run(args: &BuildArgs, quiet: bool) -> Result<()> {
             .install(|| build(&plan, &out_dir, options.clone()))?,
         None => build(&plan, &out_dir, options)?,
     };
-    super::write_stdout(&outcome.summary)
+    let note = auto.map(|a| a.summary_line()).unwrap_or_default();
+    super::write_stdout(&(outcome.summary + &note))
 }
 
 /// What a build produced, for the caller to show.

@@ -1,6 +1,7 @@
 //! The command line: one module per command. Each command's `run` takes its
 //! parsed arguments and returns a [`Result`]; `main` decides the exit status.
 
+pub mod auto_limit;
 pub mod bands;
 pub mod build;
 pub mod cell_runs;

@@ -498,6 +498,14 @@ pub fn match_by_cells(
                 Ok((cell.id, out))
             })
             .collect::<Result<_>>()?;
+        // Reserved at once: growing by doubling would copy the objects several
+        // times and hold the old and the new buffer together at the peak.
+        let emitted = results.iter().filter_map(|(_, r)| r.as_ref());
+        let (objects, links) = emitted.fold((0, 0), |(o, l), out| {
+            (o + out.objects.len(), l + out.links.len())
+        });
+        joined.objects.reserve_exact(objects);
+        joined.links.reserve_exact(links);
         let mut again: Vec<u64> = Vec::new();
         for (id, r) in results {
             match r {
