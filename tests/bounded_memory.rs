@@ -256,6 +256,55 @@ fn a_build_too_large_for_the_memory_chooses_a_limit() {
     assert_same_files(&auto, &whole, "build within the chosen limit");
 }
 
+/// A repeated identifier is refused by name with a limit as without one (the
+/// limited build finds it from hashes kept on disk and confirms it on the
+/// spilled rows).
+#[test]
+fn a_repeated_identifier_is_named_within_a_limit() {
+    let dir = tempfile::tempdir().unwrap();
+    let out = dir.path().join("out");
+    let plan = plan_in(dir.path(), &out);
+    // kos.csv with its first data row once more at the end.
+    let kos = std::fs::read_to_string("demo_catalogs/fl1/kos.csv").unwrap();
+    let first = kos
+        .lines()
+        .filter(|l| !l.starts_with('#'))
+        .nth(1)
+        .unwrap()
+        .to_string();
+    let id = first.split(',').next().unwrap().to_string();
+    std::fs::write(dir.path().join("kos.csv"), format!("{kos}{first}\n")).unwrap();
+    let demo = std::fs::canonicalize("demo_catalogs/fl1").unwrap();
+    let text = std::fs::read_to_string(&plan).unwrap().replace(
+        &format!("{}/kos.csv", demo.display()),
+        &dir.path().join("kos.csv").display().to_string(),
+    );
+    std::fs::write(&plan, text).unwrap();
+    for extra in [
+        &[][..],
+        &["--memory-limit", "300M", "--spill-bytes", "100000"][..],
+    ] {
+        let o = build(&plan, &out, extra);
+        assert!(!o.status.success(), "{extra:?}");
+        let err = String::from_utf8_lossy(&o.stderr);
+        assert!(
+            err.contains(&format!(
+                "catalog \"kos\": source identifier \"{id}\" appears twice"
+            )),
+            "{extra:?}: {err}"
+        );
+        assert!(
+            err.contains("identifiers must be unique within a catalog"),
+            "{err}"
+        );
+        // Within a limit, the routing pass names it, by input rows.
+        if !extra.is_empty() {
+            assert!(err.contains("appears twice (rows "), "{err}");
+        }
+        assert!(!out.exists());
+    }
+}
+
 #[test]
 fn a_memory_limit_that_is_not_a_size_is_named() {
     let dir = tempfile::tempdir().unwrap();

@@ -4,7 +4,6 @@
 pub mod auto_limit;
 pub mod bands;
 pub mod build;
-pub mod cell_runs;
 pub mod cells;
 pub mod draw;
 pub mod make_demo;
@@ -13,6 +12,7 @@ pub mod progress;
 pub mod report;
 pub mod route;
 pub mod science;
+pub mod sorted_runs;
 pub mod stream;
 pub mod vet;
 

@@ -18,8 +18,8 @@ use arrow::datatypes::{Float64Type, SchemaRef};
 use arrow::ipc::reader::StreamReader;
 use arrow::ipc::writer::StreamWriter;
 
-use super::cell_runs::{CellRuns, SortedCells};
 use super::progress::row_counter;
+use super::sorted_runs::{SortedRuns, SortedValues};
 use super::vet::for_each_normalized;
 use crate::catalog::normalize::{NormalizeOptions, NormalizeReport, Normalizer};
 use crate::catalog::{DEFAULT_BATCH_ROWS, open, prefetch};
@@ -88,10 +88,10 @@ pub struct RoutedCatalog {
     /// Rows kept.
     pub rows: usize,
     /// Cells at [`MAX_ORDER`] of its positions at the reference epoch (densities).
-    pub reference_cells: SortedCells,
+    pub reference_cells: SortedValues,
     /// Cells of its positions as observed, at [`MAX_ORDER`] or at the plan's
     /// coverage order when one is set (coverage).
-    pub observed_cells: SortedCells,
+    pub observed_cells: SortedValues,
     runs: Vec<SpillRun>,
 }
 
@@ -155,9 +155,9 @@ pub fn route(
             pending: Vec::new(),
             runs: Vec::new(),
         };
-        let mut hashes: Vec<u64> = Vec::new();
-        let mut reference_cells = CellRuns::new(spill_dir, &format!("reference-{c}"));
-        let mut observed_cells = CellRuns::new(spill_dir, &format!("observed-{c}"));
+        let mut hashes = SortedRuns::noting_repeats(spill_dir, &format!("ids-{c}"));
+        let mut reference_cells = SortedRuns::new(spill_dir, &format!("reference-{c}"));
+        let mut observed_cells = SortedRuns::new(spill_dir, &format!("observed-{c}"));
         let observed_order = catalog.coverage_order.unwrap_or(MAX_ORDER);
         let mut rows = 0usize;
         for_each_normalized(stream, &mut normalizer, |batch| {
@@ -189,7 +189,7 @@ pub fn route(
                         columns.dec[i],
                     ))?;
                 }
-                hashes.push(id_hash(columns.ids.value(i)));
+                hashes.push(id_hash(columns.ids.value(i)))?;
             }
             // One catalog's batch at a time: a cell whose core rows come from another
             // catalog or batch keeps this batch's margin rows.
@@ -215,7 +215,7 @@ pub fn route(
         })?;
         spill.flush()?;
         bar.finish_and_clear();
-        check_unique_ids(&catalog.name, hashes, &spill.runs)?;
+        check_unique_ids(&catalog.name, &hashes.finish().repeated()?, &spill.runs)?;
         routed.catalogs.push(RoutedCatalog {
             schema,
             report: normalizer.finish(),
@@ -390,19 +390,12 @@ impl RoutedCatalog {
     }
 }
 
-/// Refuses a catalog whose identifiers repeat: equal hashes are confirmed on
-/// the spilled strings (core rows: each row once).
-fn check_unique_ids(name: &str, mut hashes: Vec<u64>, runs: &[SpillRun]) -> Result<()> {
-    hashes.sort_unstable();
-    let mut repeated: Vec<u64> = hashes
-        .windows(2)
-        .filter(|w| w[0] == w[1])
-        .map(|w| w[0])
-        .collect();
+/// Refuses a catalog whose identifiers repeat: the `repeated` hashes (sorted)
+/// are confirmed on the spilled strings (core rows: each row once).
+fn check_unique_ids(name: &str, repeated: &[u64], runs: &[SpillRun]) -> Result<()> {
     if repeated.is_empty() {
         return Ok(());
     }
-    repeated.dedup();
     let mut seen: BTreeMap<String, u64> = BTreeMap::new();
     for run in runs {
         for (_, batch) in run.read(|_, core| core)? {

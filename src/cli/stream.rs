@@ -37,9 +37,9 @@ use super::build::{
     input_record, journal_recorder, run_key, sed_counts, summary, table_metadata, write_exports,
     write_science, write_tables,
 };
-use super::cell_runs::{CellRuns, SortedCells};
 use super::progress::spinner;
 use super::route::{Routed, route};
+use super::sorted_runs::{SortedRuns, SortedValues};
 use crate::crossmatch::SourceTable;
 use crate::crossmatch::candidates::EpochStats;
 use crate::crossmatch::cells::{
@@ -390,7 +390,7 @@ pub fn build_within(
 ///
 /// # Errors
 /// Reading the cells' runs.
-fn coverage_of(order: Option<u8>, observed_cells: &SortedCells) -> Result<Coverage> {
+fn coverage_of(order: Option<u8>, observed_cells: &SortedValues) -> Result<Coverage> {
     let mut coverage = Coverage::default();
     match order {
         Some(order) => observed_cells.for_each_distinct(|c| coverage.insert(order, c))?,
@@ -768,7 +768,7 @@ fn shifted_densities(
     spill: &Path,
 ) -> Result<Vec<f64>> {
     for (c, s) in shifts.iter().enumerate().filter(|(_, s)| !s.is_empty()) {
-        let mut cells = CellRuns::new(spill, &format!("shifted-{c}"));
+        let mut cells = SortedRuns::new(spill, &format!("shifted-{c}"));
         for group in groups {
             let batch = routed.catalogs[c].rows_of(group, false)?;
             let mut table = SourceTable::from_normalized(

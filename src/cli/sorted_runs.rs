@@ -1,11 +1,14 @@
-//! The sky cell of every source of a catalog, kept as sorted runs of distinct
-//! cells on disk rather than one number per source in memory.
+//! A number per source of a catalog (its sky cell, or the hash of its
+//! identifier), kept as sorted runs of distinct values on disk rather than in
+//! memory.
 //!
 //! The footprint rule ([`OccupiedCounts`]) and the coverage of observed
-//! positions need only the distinct cells, in order. A bounded-memory build
-//! gathers them while it routes: a buffer of cells is sorted, deduplicated and
-//! written as a run when full; reading merges the runs (k-way, one small
-//! buffer per run), so memory stays a few megabytes whatever the catalog's size.
+//! positions need only the distinct cells, in order; the check that
+//! identifiers are unique needs only the hashes that repeat. A bounded-memory
+//! build gathers them while it routes: a buffer of values is sorted,
+//! deduplicated (noting the repeats when asked) and written as a run when
+//! full; reading merges the runs (k-way, one small buffer per run), so memory
+//! stays a few megabytes whatever the catalog's size.
 
 use std::cmp::Reverse;
 use std::collections::BinaryHeap;
@@ -25,12 +28,14 @@ const READ_AHEAD_BYTES: usize = 1 << 16;
 /// Runs of one level merged into one of the next.
 const FAN_IN: usize = 16;
 
-/// Gathers cells, one per source, into sorted runs of distinct cells.
-pub struct CellRuns {
+/// Gathers values, one per source, into sorted runs of distinct values.
+pub struct SortedRuns {
     dir: PathBuf,
     prefix: String,
     capacity: usize,
     buffer: Vec<u64>,
+    /// Values seen more than once, when noted ([`SortedRuns::noting_repeats`]).
+    repeats: Option<Vec<u64>>,
     /// The runs on disk with their levels: a run of level k + 1 merges
     /// [`FAN_IN`] runs of level k, so at most `FAN_IN` runs of each level are
     /// open at once when reading, whatever the catalog's size.
@@ -39,22 +44,32 @@ pub struct CellRuns {
     sources: usize,
 }
 
-impl CellRuns {
-    /// Runs written in `dir` as `<prefix>-<k>.cells`.
-    pub fn new(dir: &Path, prefix: &str) -> CellRuns {
-        CellRuns::with_capacity(dir, prefix, BUFFER_CELLS)
+impl SortedRuns {
+    /// Runs written in `dir` as `<prefix>-<k>.sorted`.
+    pub fn new(dir: &Path, prefix: &str) -> SortedRuns {
+        SortedRuns::with_capacity(dir, prefix, BUFFER_CELLS)
     }
 
-    /// As [`CellRuns::new`], writing a run every `capacity` cells.
-    pub fn with_capacity(dir: &Path, prefix: &str, capacity: usize) -> CellRuns {
-        CellRuns {
+    /// As [`SortedRuns::new`], writing a run every `capacity` cells.
+    pub fn with_capacity(dir: &Path, prefix: &str, capacity: usize) -> SortedRuns {
+        SortedRuns {
             dir: dir.to_path_buf(),
             prefix: prefix.to_string(),
             capacity: capacity.max(1),
             buffer: Vec::new(),
+            repeats: None,
             files: Vec::new(),
             written: 0,
             sources: 0,
+        }
+    }
+
+    /// As [`SortedRuns::new`], noting the values that repeat
+    /// ([`SortedValues::repeated`]).
+    pub fn noting_repeats(dir: &Path, prefix: &str) -> SortedRuns {
+        SortedRuns {
+            repeats: Some(Vec::new()),
+            ..SortedRuns::new(dir, prefix)
         }
     }
 
@@ -72,7 +87,7 @@ impl CellRuns {
     }
 
     fn write_run(&mut self) -> Result<()> {
-        sort_distinct(&mut self.buffer);
+        sort_distinct(&mut self.buffer, self.repeats.as_mut());
         let path = self.next_path();
         let mut out = RunWriter::create(&path)?;
         for &c in &self.buffer {
@@ -96,7 +111,16 @@ impl CellRuns {
                 .collect();
             let path = self.next_path();
             let mut out = RunWriter::create(&path)?;
-            merge_distinct(&merged, &[], |c| out.push(c))?;
+            let repeats = &mut self.repeats;
+            merge_distinct(&merged, &[], |c, repeat| match repeat {
+                true => {
+                    if let Some(r) = repeats.as_mut() {
+                        r.push(c);
+                    }
+                    Ok(())
+                }
+                false => out.push(c),
+            })?;
             out.finish()?;
             for p in &merged {
                 std::fs::remove_file(p).map_err(|e| Error::io(p, e))?;
@@ -109,43 +133,73 @@ impl CellRuns {
     fn next_path(&mut self) -> PathBuf {
         self.written += 1;
         self.dir
-            .join(format!("{}-{}.cells", self.prefix, self.written))
+            .join(format!("{}-{}.sorted", self.prefix, self.written))
     }
 
     /// The runs gathered (the last buffer stays in memory).
-    pub fn finish(mut self) -> SortedCells {
-        sort_distinct(&mut self.buffer);
+    pub fn finish(mut self) -> SortedValues {
+        sort_distinct(&mut self.buffer, self.repeats.as_mut());
         self.buffer.shrink_to_fit();
-        SortedCells {
+        SortedValues {
             files: self.files.into_iter().map(|(_, p)| p).collect(),
             tail: self.buffer,
             sources: self.sources,
+            repeats: self.repeats,
         }
     }
 }
 
-fn sort_distinct(cells: &mut Vec<u64>) {
-    cells.sort_unstable();
-    cells.dedup();
+/// Sorts and deduplicates `values`, adding the values that repeat to `repeats`.
+fn sort_distinct(values: &mut Vec<u64>, repeats: Option<&mut Vec<u64>>) {
+    values.sort_unstable();
+    if let Some(r) = repeats {
+        r.extend(values.windows(2).filter(|w| w[0] == w[1]).map(|w| w[0]));
+    }
+    values.dedup();
 }
 
-/// A catalog's cells as sorted runs of distinct cells.
-pub struct SortedCells {
+/// A catalog's values as sorted runs of distinct values.
+pub struct SortedValues {
     files: Vec<PathBuf>,
     tail: Vec<u64>,
+    /// Repeats noted within a run or in merging runs, when noted.
+    repeats: Option<Vec<u64>>,
     sources: usize,
 }
 
-impl SortedCells {
+impl SortedValues {
     /// Calls `f` with every distinct cell, ascending.
     ///
     /// # Errors
     /// Reading a run.
     pub fn for_each_distinct(&self, mut f: impl FnMut(u64)) -> Result<()> {
-        merge_distinct(&self.files, &self.tail, |c| {
-            f(c);
+        merge_distinct(&self.files, &self.tail, |c, repeat| {
+            if !repeat {
+                f(c);
+            }
             Ok(())
         })
+    }
+
+    /// The values pushed more than once, ascending (of runs gathered by
+    /// [`SortedRuns::noting_repeats`]; empty otherwise).
+    ///
+    /// # Errors
+    /// Reading a run.
+    pub fn repeated(&self) -> Result<Vec<u64>> {
+        let Some(noted) = &self.repeats else {
+            return Ok(Vec::new());
+        };
+        let mut repeated = noted.clone();
+        merge_distinct(&self.files, &self.tail, |c, repeat| {
+            if repeat {
+                repeated.push(c);
+            }
+            Ok(())
+        })?;
+        repeated.sort_unstable();
+        repeated.dedup();
+        Ok(repeated)
     }
 
     /// The counts of the footprint rule, for cells at [`MAX_ORDER`].
@@ -206,12 +260,14 @@ impl<'a> RunWriter<'a> {
     }
 }
 
-/// Calls `f` with every distinct cell of the sorted runs `files` and the
-/// sorted `tail`, ascending (a k-way merge with one small buffer per run).
+/// Calls `f(value, false)` with every distinct value of the sorted runs
+/// `files` and the sorted `tail`, ascending, and `f(value, true)` each time a
+/// value comes again from another run (a k-way merge with one small buffer per
+/// run).
 fn merge_distinct(
     files: &[PathBuf],
     tail: &[u64],
-    mut f: impl FnMut(u64) -> Result<()>,
+    mut f: impl FnMut(u64, bool) -> Result<()>,
 ) -> Result<()> {
     let mut readers = Vec::with_capacity(files.len());
     for path in files {
@@ -242,10 +298,8 @@ fn merge_distinct(
     }
     let mut last = None;
     while let Some(Reverse((c, k))) = heap.pop() {
-        if last != Some(c) {
-            f(c)?;
-            last = Some(c);
-        }
+        f(c, last == Some(c))?;
+        last = Some(c);
         let following = if k == tail_source {
             let c = tail.get(tail_at).copied();
             tail_at += 1;
@@ -283,7 +337,7 @@ mod tests {
         let all = cells(5_000);
         let whole = Occupancy::from_cells(all.clone());
         for capacity in [1, 7, 999, 1 << 20] {
-            let mut runs = CellRuns::with_capacity(dir.path(), &format!("c{capacity}"), capacity);
+            let mut runs = SortedRuns::with_capacity(dir.path(), &format!("c{capacity}"), capacity);
             for &c in &all {
                 runs.push(c).unwrap();
             }
@@ -313,9 +367,33 @@ mod tests {
     }
 
     #[test]
+    fn repeats_are_noted_within_and_across_runs() {
+        let dir = tempfile::tempdir().unwrap();
+        // 7 repeats next to itself, 9 farther apart, 5 three times.
+        let values = [3u64, 7, 7, 1, 9, 2, 5, 8, 5, 4, 9, 5, 11];
+        for capacity in [1, 4, 100] {
+            let mut runs = SortedRuns::noting_repeats(dir.path(), &format!("r{capacity}"));
+            runs.capacity = capacity;
+            for &v in &values {
+                runs.push(v).unwrap();
+            }
+            let sorted = runs.finish();
+            assert_eq!(sorted.repeated().unwrap(), vec![5, 7, 9], "{capacity}");
+            let mut distinct = Vec::new();
+            sorted.for_each_distinct(|v| distinct.push(v)).unwrap();
+            assert_eq!(distinct, vec![1, 2, 3, 4, 5, 7, 8, 9, 11], "{capacity}");
+        }
+        let mut plain = SortedRuns::new(dir.path(), "plain");
+        for &v in &values {
+            plain.push(v).unwrap();
+        }
+        assert!(plain.finish().repeated().unwrap().is_empty());
+    }
+
+    #[test]
     fn no_cells_count_no_sources() {
         let dir = tempfile::tempdir().unwrap();
-        let sorted = CellRuns::new(dir.path(), "none").finish();
+        let sorted = SortedRuns::new(dir.path(), "none").finish();
         assert_eq!(sorted.counts().unwrap().footprint_area_sr(), 0.0);
         assert!(sorted.cells_at(5).unwrap().is_empty());
     }
