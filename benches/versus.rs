@@ -272,10 +272,7 @@ fn print_growth(what: &str, times: &[(usize, f64)]) {
 /// with the growth exponent of time with N. Their pair sets are not compared
 /// (the smaller sizes check them).
 fn large_runs(exe: &str, root: &Path, sizes: &[usize], limit: &str) {
-    println!(
-        "{:>10} {:>10} {:>9} {:>10} {:>9} {:>10} {:>9} {:>9}   (within --memory-limit {limit})",
-        "N", "build s", "peak MB", "pairs s", "peak MB", "floor s", "build/fl", "pairs/pf"
-    );
+    print_floor_header(&format!("within --memory-limit {limit}"));
     let mut times = Vec::new();
     for &n in sizes {
         let dir = root.join(format!("n{n}"));
@@ -285,28 +282,48 @@ fn large_runs(exe: &str, root: &Path, sizes: &[usize], limit: &str) {
             write_catalogs(n, &a, &b);
         }
         write_plans(&dir);
-        let extra = ["--memory-limit", limit];
-        let out = dir.join("out_limited");
-        let out_pairs = dir.join("out_pairs_limited");
-        let (t_build, mem_build) = run_build_with(exe, &dir.join("plan.toml"), &out, &extra);
-        let (t_pairs, mem_pairs) =
-            run_build_with(exe, &dir.join("plan_pairs.toml"), &out_pairs, &extra);
-        let floor = io_floor(&[&a, &b], &out, &["objects", "photometry", "links"]);
-        let pairs_floor = io_floor(&[&a, &b], &out_pairs, &["links"]);
-        println!(
-            "{:>10} {:>10.1} {:>9.0} {:>10.1} {:>9.0} {:>10.2} {:>9.2} {:>9.2}",
-            n,
-            t_build,
-            mem_build / 1e6,
-            t_pairs,
-            mem_pairs / 1e6,
-            floor,
-            t_build / floor,
-            t_pairs / pairs_floor
-        );
-        times.push((n, t_build));
+        let outs = (dir.join("out_limited"), dir.join("out_pairs_limited"));
+        let t = builds_against_floors(exe, &dir, &[&a, &b], outs, &["--memory-limit", limit], n);
+        times.push((n, t));
     }
     print_growth("the build time within the limit", &times);
+}
+
+/// Prints the column heads of [`builds_against_floors`]' rows, and `what` the runs are.
+fn print_floor_header(what: &str) {
+    println!(
+        "{:>10} {:>10} {:>9} {:>10} {:>9} {:>10} {:>9} {:>9}   ({what})",
+        "N", "build s", "peak MB", "pairs s", "peak MB", "floor s", "build/fl", "pairs/pf"
+    );
+}
+
+/// Runs the full and the pairs-only build of `dir`'s plans (with `extra`
+/// arguments) into `outs`, measures their I/O floors on `inputs`, prints a row
+/// for size `n` and returns the full build's seconds.
+fn builds_against_floors(
+    exe: &str,
+    dir: &Path,
+    inputs: &[&Path],
+    (out, out_pairs): (PathBuf, PathBuf),
+    extra: &[&str],
+    n: usize,
+) -> f64 {
+    let (t_build, mem_build) = run_build_with(exe, &dir.join("plan.toml"), &out, extra);
+    let (t_pairs, mem_pairs) = run_build_with(exe, &dir.join("plan_pairs.toml"), &out_pairs, extra);
+    let floor = io_floor(inputs, &out, &["objects", "photometry", "links"]);
+    let pairs_floor = io_floor(inputs, &out_pairs, &["links"]);
+    println!(
+        "{:>10} {:>10.2} {:>9.0} {:>10.2} {:>9.0} {:>10.2} {:>9.2} {:>9.2}",
+        n,
+        t_build,
+        mem_build / 1e6,
+        t_pairs,
+        mem_pairs / 1e6,
+        floor,
+        t_build / floor,
+        t_pairs / pairs_floor
+    );
+    t_build
 }
 
 /// The benchmark's Python: a virtual environment with the pinned packages.
@@ -537,20 +554,10 @@ fn write_six_plans(dir: &Path) {
 /// catalogs of N sources with four bands each (within `limit` when given),
 /// against their I/O floors, with the growth exponent of time with N.
 fn six_catalog_runs(exe: &str, root: &Path, sizes: &[usize], limit: Option<&str>) {
-    println!(
-        "{:>10} {:>10} {:>9} {:>10} {:>9} {:>10} {:>9} {:>9}   (six catalogs of N, 4 bands each{})",
-        "N",
-        "build s",
-        "peak MB",
-        "pairs s",
-        "peak MB",
-        "floor s",
-        "build/fl",
-        "pairs/pf",
-        limit
-            .map(|l| format!(", --memory-limit {l}"))
-            .unwrap_or_default()
-    );
+    let within = limit
+        .map(|l| format!(", --memory-limit {l}"))
+        .unwrap_or_default();
+    print_floor_header(&format!("six catalogs of N, 4 bands each{within}"));
     let mut times = Vec::new();
     for &n in sizes {
         let dir = root.join(format!("six{n}"));
@@ -564,25 +571,12 @@ fn six_catalog_runs(exe: &str, root: &Path, sizes: &[usize], limit: Option<&str>
         }
         write_six_plans(&dir);
         let extra: Vec<&str> = limit.map(|l| vec!["--memory-limit", l]).unwrap_or_default();
-        let (out, out_pairs) = (dir.join("out"), dir.join("out_pairs"));
-        let (t_build, mem_build) = run_build_with(exe, &dir.join("plan.toml"), &out, &extra);
-        let (t_pairs, mem_pairs) =
-            run_build_with(exe, &dir.join("plan_pairs.toml"), &out_pairs, &extra);
         let inputs: Vec<&Path> = inputs.iter().map(PathBuf::as_path).collect();
-        let floor = io_floor(&inputs, &out, &["objects", "photometry", "links"]);
-        let pairs_floor = io_floor(&inputs, &out_pairs, &["links"]);
-        println!(
-            "{:>10} {:>10.2} {:>9.0} {:>10.2} {:>9.0} {:>10.2} {:>9.2} {:>9.2}",
+        let outs = (dir.join("out"), dir.join("out_pairs"));
+        times.push((
             n,
-            t_build,
-            mem_build / 1e6,
-            t_pairs,
-            mem_pairs / 1e6,
-            floor,
-            t_build / floor,
-            t_pairs / pairs_floor
-        );
-        times.push((n, t_build));
+            builds_against_floors(exe, &dir, &inputs, outs, &extra, n),
+        ));
     }
     print_growth("the six-catalog build time", &times);
 }

@@ -56,7 +56,17 @@ fn demo_plan(dir: &Path, out: &Path, offsets: bool) -> PathBuf {
 }
 
 fn build(plan: &Path, out: &Path, extra: &[&str]) -> std::process::Output {
+    build_with_env(plan, out, extra, &[])
+}
+
+fn build_with_env(
+    plan: &Path,
+    out: &Path,
+    extra: &[&str],
+    env: &[(&str, &str)],
+) -> std::process::Output {
     Command::new(env!("CARGO_BIN_EXE_fluxloom"))
+        .envs(env.iter().copied())
         .args(["--quiet", "build"])
         .arg(plan)
         .arg("--out")
@@ -238,14 +248,7 @@ fn a_build_too_large_for_the_memory_chooses_a_limit() {
         "{summary}"
     );
     let auto = dir.path().join("auto");
-    let o = Command::new(env!("CARGO_BIN_EXE_fluxloom"))
-        .env("FLUXLOOM_MEMORY_AVAILABLE", "1M")
-        .args(["--quiet", "build"])
-        .arg(&plan)
-        .arg("--out")
-        .arg(&auto)
-        .output()
-        .unwrap();
+    let o = build_with_env(&plan, &auto, &[], &[("FLUXLOOM_MEMORY_AVAILABLE", "1M")]);
     let summary = String::from_utf8_lossy(&o.stdout);
     assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
     assert!(

@@ -19,8 +19,8 @@ use std::path::{Path, PathBuf};
 use crate::crossmatch::density::{MAX_ORDER, OccupiedCounts};
 use crate::error::{Error, Result};
 
-/// Cells buffered before a run is written (8 bytes each).
-const BUFFER_CELLS: usize = 1 << 20;
+/// Values buffered before a run is written (8 bytes each).
+const BUFFER_VALUES: usize = 1 << 20;
 
 /// Bytes read ahead from each run while merging.
 const READ_AHEAD_BYTES: usize = 1 << 16;
@@ -47,10 +47,10 @@ pub struct SortedRuns {
 impl SortedRuns {
     /// Runs written in `dir` as `<prefix>-<k>.sorted`.
     pub fn new(dir: &Path, prefix: &str) -> SortedRuns {
-        SortedRuns::with_capacity(dir, prefix, BUFFER_CELLS)
+        SortedRuns::with_capacity(dir, prefix, BUFFER_VALUES)
     }
 
-    /// As [`SortedRuns::new`], writing a run every `capacity` cells.
+    /// As [`SortedRuns::new`], writing a run every `capacity` values.
     pub fn with_capacity(dir: &Path, prefix: &str, capacity: usize) -> SortedRuns {
         SortedRuns {
             dir: dir.to_path_buf(),
@@ -73,13 +73,13 @@ impl SortedRuns {
         }
     }
 
-    /// Counts a source in `cell`.
+    /// Counts a source with `value`.
     ///
     /// # Errors
     /// Writing a run.
-    pub fn push(&mut self, cell: u64) -> Result<()> {
+    pub fn push(&mut self, value: u64) -> Result<()> {
         self.sources += 1;
-        self.buffer.push(cell);
+        self.buffer.push(value);
         if self.buffer.len() >= self.capacity {
             self.write_run()?;
         }
@@ -168,7 +168,7 @@ pub struct SortedValues {
 }
 
 impl SortedValues {
-    /// Calls `f` with every distinct cell, ascending.
+    /// Calls `f` with every distinct value, ascending.
     ///
     /// # Errors
     /// Reading a run.
@@ -209,11 +209,7 @@ impl SortedValues {
     pub fn counts(&self) -> Result<OccupiedCounts> {
         let mut counts = OccupiedCounts::default();
         counts.add_sources(self.sources);
-        let mut last = None;
-        self.for_each_distinct(|c| {
-            counts.add_distinct(c, last);
-            last = Some(c);
-        })?;
+        self.for_each_distinct(|c| counts.add_cell(c))?;
         Ok(counts)
     }
 
@@ -234,7 +230,7 @@ impl SortedValues {
     }
 }
 
-/// A run being written: cells as little-endian u64, ascending.
+/// A run being written: values as little-endian u64, ascending.
 struct RunWriter<'a> {
     path: &'a Path,
     out: BufWriter<File>,
@@ -249,9 +245,9 @@ impl<'a> RunWriter<'a> {
         })
     }
 
-    fn push(&mut self, cell: u64) -> Result<()> {
+    fn push(&mut self, value: u64) -> Result<()> {
         self.out
-            .write_all(&cell.to_le_bytes())
+            .write_all(&value.to_le_bytes())
             .map_err(|e| Error::io(self.path, e))
     }
 

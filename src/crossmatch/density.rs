@@ -87,12 +87,8 @@ impl Occupancy {
     fn counts(&self) -> OccupiedCounts {
         let mut counts = OccupiedCounts::default();
         counts.add_sources(self.cells.len());
-        let mut last = None;
         for &c in &self.cells {
-            if last != Some(c) {
-                counts.add_distinct(c, last);
-                last = Some(c);
-            }
+            counts.add_cell(c);
         }
         counts
     }
@@ -106,6 +102,8 @@ impl Occupancy {
 pub struct OccupiedCounts {
     sources: usize,
     occupied: [usize; MAX_ORDER as usize + 1],
+    /// The last cell counted.
+    last: Option<u64>,
 }
 
 impl OccupiedCounts {
@@ -114,10 +112,12 @@ impl OccupiedCounts {
         self.sources += n;
     }
 
-    /// Counts `cell`, a cell at [`MAX_ORDER`] greater than `previous` (the
-    /// last distinct cell counted, if any): it opens a new occupied cell at
-    /// every order where its parent differs from the previous cell's.
-    pub fn add_distinct(&mut self, cell: u64, previous: Option<u64>) {
+    /// Counts `cell`, a cell at [`MAX_ORDER`] no smaller than the last one
+    /// counted (cells come in ascending order; a repeat adds nothing): it opens
+    /// a new occupied cell at every order where its parent differs from the
+    /// last cell's.
+    pub fn add_cell(&mut self, cell: u64) {
+        let previous = self.last.replace(cell);
         for order in 0..=MAX_ORDER {
             let shift = 2 * u32::from(MAX_ORDER - order);
             if previous.is_none_or(|p| p >> shift != cell >> shift) {
