@@ -103,12 +103,21 @@ folder = "out"
 }
 
 fn build(dir: &Path, extra_match: &str) -> PathBuf {
-    for (name, body) in [
-        ("fine.csv", FINE),
-        ("coarse.csv", COARSE),
-        ("fine.toml", FINE_SCHEMA),
-        ("coarse.toml", COARSE_SCHEMA),
-    ] {
+    build_files(
+        dir,
+        [
+            ("fine.csv", FINE),
+            ("coarse.csv", COARSE),
+            ("fine.toml", FINE_SCHEMA),
+            ("coarse.toml", COARSE_SCHEMA),
+        ],
+        extra_match,
+    )
+}
+
+/// Writes `files` and the plan into `dir`, builds, and returns the output folder.
+fn build_files(dir: &Path, files: [(&str, &str); 4], extra_match: &str) -> PathBuf {
+    for (name, body) in files {
         fs::write(dir.join(name), body).unwrap();
     }
     fs::write(dir.join("plan.toml"), plan(extra_match)).unwrap();
@@ -289,4 +298,118 @@ fn the_share_limit_is_checked_in_the_plan() {
         "{err}"
     );
     assert!(err.contains("found 0.7"), "{err}");
+}
+
+/// 5.8 and 8 µm photometry: a star s falling from 4.0 to 3.4 mJy, and a red
+/// companion r 2″ east rising from 0.12 to 0.2 mJy (a disk or galaxy).
+const RED_FINE: &str = "# invented 5.8 and 8 um sources
+id,ra,dec,f58,e58,f80,e80
+s,150.0000000,10.0,4.0,0.05,3.4,0.05
+r,150.0005641,10.0,0.12,0.01,0.2,0.01
+";
+
+/// One 24 µm source on the star.
+const RED_COARSE: &str = "# invented 24 um source
+id,ra,dec,f24,e24
+c1,150.0000000,10.0,3.0,0.1
+";
+
+/// The fine schema with both bands.
+fn two_band_schema() -> String {
+    FINE_SCHEMA.replace(
+        "[[band]]\nband = \"irac_80\"",
+        "[[band]]\nband = \"irac_58\"\nvalue = \"f58\"\nunit = \"mJy\"\nerror = \"e58\"\n\n[[band]]\nband = \"irac_80\"",
+    )
+}
+
+#[test]
+fn a_red_companion_makes_a_blend_its_8_micron_share_would_not() {
+    // From 8 µm alone the companion carries 0.2 / 3.6 = 5.6 % (arithmetic), under the
+    // 10 % limit: the star keeps the 24 µm flux, contaminated.
+    let dir = tempfile::tempdir().unwrap();
+    let out = build_files(
+        dir.path(),
+        [
+            ("fine.csv", RED_FINE),
+            ("coarse.csv", RED_COARSE),
+            ("fine.toml", FINE_SCHEMA),
+            ("coarse.toml", COARSE_SCHEMA),
+        ],
+        "",
+    );
+    let star = rows(&out).into_iter().find(|r| r.0 == "fine:s").unwrap();
+    let s = &star;
+    assert_eq!(
+        (s.1.as_str(), s.3.as_str()),
+        ("c1", "contaminated"),
+        "{s:?}"
+    );
+    assert!((s.4.unwrap() - 0.2 / 3.6).abs() < 1e-9, "{s:?}");
+
+    // With 5.8 µm too, each is carried to 24 µm by its own power law: the star's slope
+    // ln(3.4/4)/ln(λ₈/λ₅.₈) ≈ −0.5 and the companion's ≈ +1.6 put the companion near 40 %
+    // of the 24 µm flux, so c1 is a blend and neither object gets it as a detection.
+    let dir = tempfile::tempdir().unwrap();
+    let schema = two_band_schema();
+    let out = build_files(
+        dir.path(),
+        [
+            ("fine.csv", RED_FINE),
+            ("coarse.csv", RED_COARSE),
+            ("fine.toml", &schema),
+            ("coarse.toml", COARSE_SCHEMA),
+        ],
+        "",
+    );
+    let rows = rows(&out);
+    let c1 = rows.iter().find(|r| r.0 == "coarse:c1").unwrap();
+    assert_eq!(c1.3, "blend+single_catalog", "{c1:?}");
+    assert_eq!(c1.5, "fine:r,fine:s");
+    for id in ["fine:s", "fine:r"] {
+        let r = rows.iter().find(|r| r.0 == id).unwrap();
+        assert_eq!((r.1.as_str(), r.6.as_str()), ("", "blended"), "{r:?}");
+    }
+}
+
+/// Two equal 8 µm stars 5.9″ apart, f1 and f2.
+const NEIGHBOURS_FINE: &str = "# invented 8 um sources
+id,ra,dec,f80,e80
+f1,150.0000000,10.0,2.0,0.05
+f2,150.0016642,10.0,2.0,0.05
+";
+
+/// The coarse catalog resolves them itself: c1 on f1, c2 0.4″ beyond f2, 6.3″
+/// from c1 (just beyond its 6″ resolution).
+const NEIGHBOURS_COARSE: &str = "# invented 24 um sources
+id,ra,dec,f24,e24
+c1,150.0000000,10.0,3.0,0.1
+c2,150.0017770,10.0,3.0,0.1
+";
+
+#[test]
+fn a_neighbour_the_coarse_catalog_resolved_makes_no_blend() {
+    // f2 lies within 6″ of c1, but nearer to c2 (0.4″) than to c1 (5.9″): c2 is its
+    // measurement, so c1 lies over f1 alone and each coarse source joins its star.
+    let dir = tempfile::tempdir().unwrap();
+    let out = build_files(
+        dir.path(),
+        [
+            ("fine.csv", NEIGHBOURS_FINE),
+            ("coarse.csv", NEIGHBOURS_COARSE),
+            ("fine.toml", FINE_SCHEMA),
+            ("coarse.toml", COARSE_SCHEMA),
+        ],
+        "",
+    );
+    let rows = rows(&out);
+    let ids: Vec<&str> = rows.iter().map(|r| r.0.as_str()).collect();
+    assert_eq!(ids, ["fine:f1", "fine:f2"], "{rows:?}");
+    for (id, coarse) in [("fine:f1", "c1"), ("fine:f2", "c2")] {
+        let r = rows.iter().find(|r| r.0 == id).unwrap();
+        assert_eq!(
+            (r.1.as_str(), r.2, r.6.as_str()),
+            (coarse, 0, "detected"),
+            "{r:?}"
+        );
+    }
 }

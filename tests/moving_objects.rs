@@ -236,9 +236,9 @@ fn a_fast_star_without_catalog_motions_is_one_moving_object() {
     let objects = read_objects(&out);
 
     // The mover: one object of all three detections, flagged moving. Its Bayes factor is
-    // about the hand value of resolve.rs's test (ln B_move ≈ 50.8 for 0.1″ errors), ×0.03
-    // for the prior fraction of movers: ln ≈ 47.3, against ln P₀ = −2 ln ρ − 2 ln 4π =
-    // −2 · 17.307 − 5.062 = −39.68 (ρ = 1e4 deg⁻² = 3.2828e7 sr⁻¹): posterior odds e^7.6.
+    // about the hand value of resolve.rs's test (ln B_move ≈ 50.8 for 0.1″ errors), ×0.05
+    // for the prior fraction of movers: ln ≈ 47.8, against ln P₀ = −2 ln ρ − 2 ln 4π =
+    // −2 · 17.307 − 5.062 = −39.68 (ρ = 1e4 deg⁻² = 3.2828e7 sr⁻¹): posterior odds e^8.1.
     let mover = holder(&objects, "alder:mover");
     assert_eq!(
         mover.members,
@@ -255,8 +255,8 @@ fn a_fast_star_without_catalog_motions_is_one_moving_object() {
 
     // The twin pair, 4″ in 20 yr like the mover's first and last detections: as a
     // two-detection mover (v = σ₁² + σ₂² + Δt² s² = 0.02 + 400 · 0.00761 = 3.064 arcsec²)
-    // ln B = ln(2/v) − ψ²/2v + 24.474 = −0.427 − 2.611 + 24.474 = 21.436; × 0.03: 17.930,
-    // against ln P₀ = −17.307 − 2.531 = −19.838: odds e^−1.9. Apart. The mover's 2010
+    // ln B = ln(2/v) − ψ²/2v + 24.474 = −0.427 − 2.611 + 24.474 = 21.436; × 0.05: 18.440,
+    // against ln P₀ = −17.307 − 2.531 = −19.838: odds e^−1.4. Apart. The mover's 2010
     // detection on the line between is what makes it one object.
     for s in ["alder", "cedar"] {
         let o = holder(&objects, &format!("{s}:twin"));
@@ -265,7 +265,7 @@ fn a_fast_star_without_catalog_motions_is_one_moving_object() {
     }
     // The scrambled triple: the three fit no line (χ² ≈ 600 by the formulas of
     // motion.rs), so no object holds all three. (Its 2″ pairs alone are about even
-    // odds as two-detection movers, ln odds −0.5 and +0.05: not asserted.)
+    // odds as two-detection movers, ln odds about 0.0 and +0.56: not asserted.)
     for s in SURVEYS {
         let o = holder(&objects, &format!("{}:scrambled", s.0));
         assert!(o.members.len() < 3, "{o:?}");

@@ -7,10 +7,11 @@
 //! seen at a finer resolution has two or more sources within r of c that lie
 //! closer than r to each other, while c's own catalog has no other source
 //! within r of c at c's resolution or coarser (it did not resolve them
-//! itself). A finer source that a finer row of c's own catalog within r of c
-//! lies nearer to than c does is that row's, not c's (the catalog measured it
-//! apart: a row detected in a coarse band alone beside a star its fine bands
-//! detected). Two sources closer than the FWHM are not separated in the coarse
+//! itself). A finer source that another row of c's own catalog lies nearer
+//! to than c does is that row's, not c's (the catalog measured it apart: a row
+//! detected in a coarse band alone beside a star its fine bands detected, or a
+//! neighbour just beyond r that c's catalog resolved itself); such rows lie
+//! within [`CLAIM_REACH`] · r of c. Two sources closer than the FWHM are not separated in the coarse
 //! image, so its one source holds the light of both (common practice).
 //! Sources whose resolution is not declared take no part.
 //!
@@ -20,7 +21,9 @@
 //! (the bands of c's catalog seen at resolution r or coarser in which c has a
 //! detection or an upper limit; ties go to the finer catalog, then the
 //! earlier). In each coarse band the contributors' fluxes in that catalog's
-//! band nearest to it give the shares ([`super::shares`]). When in every
+//! nearest band that can tell them, carried to the coarse wavelength by each
+//! one's colour where a second band gives it, give the shares
+//! ([`super::shares::shares_at`]). When in every
 //! coarse band the same contributor D dominates and its companions carry less
 //! than [`MatchConfig::companion_share_limit`] of the flux (the largest share
 //! over the bands is kept), the companions cannot spoil c's flux by more than
@@ -48,10 +51,15 @@ use super::candidates::Candidate;
 use super::config::MatchConfig;
 use super::input::BandValue;
 use super::prepare::Sources;
-use super::shares::{estimate, is_faint, nearest_band};
+use super::shares::{is_faint, nearest_band, shares_at};
 use crate::sky::separation::separation_vec_rad;
 use crate::sky::vector::RAD_PER_ARCSEC;
 use crate::sky::zones::ZoneIndex;
+
+/// How far from a coarse source, in units of its resolution r, the rows of
+/// its own catalog that may claim a finer source lie: a source within r of c
+/// that is nearer to another row than to c lies within 2r of c.
+pub const CLAIM_REACH: f64 = 2.0;
 
 /// A coarse source over two or more finer sources (ranks).
 #[derive(Debug, Clone, PartialEq)]
@@ -119,15 +127,24 @@ pub fn find_blends(
     let mut pairs: Option<Vec<(u32, u32)>> = None;
     let mut blends = Vec::new();
     let mut near: Vec<(usize, f64)> = Vec::new();
+    let mut own_rows: Vec<usize> = Vec::new();
     for c in 0..sources.len() {
         let cat = sources.catalog[c];
         let Some(r) = resolution[c] else { continue };
         near.clear();
+        own_rows.clear();
         index.for_each_within(
             sources.ra_deg[c],
             sources.dec_deg[c],
-            r / 3600.0,
-            |i, sep| near.push((i, sep)),
+            CLAIM_REACH * r / 3600.0,
+            |i, sep| {
+                if sep <= r {
+                    near.push((i, sep));
+                }
+                if i != c && sources.catalog[i] == cat {
+                    own_rows.push(i);
+                }
+            },
         );
         near.sort_unstable_by_key(|&(i, _)| i);
         let finer = |i: usize| resolution[i].is_some_and(|ri| ri < r);
@@ -137,16 +154,15 @@ pub fn find_blends(
         {
             continue;
         }
-        // A finer source nearer to a finer row of c's own catalog than to c is
+        // A finer source nearer to another row of c's own catalog than to c is
         // that row's: the catalog measured it apart (a row detected in a coarse
-        // band alone beside a star its fine bands detected).
+        // band alone beside a star its fine bands detected, or a neighbour
+        // just beyond r that c's catalog resolved).
         let claimed = |u: usize| {
             let to_c = separation_vec_rad(sources.vec[c], sources.vec[u]);
-            near.iter().any(|&(o, _)| {
-                o != c
-                    && sources.catalog[o] == cat
-                    && separation_vec_rad(sources.vec[o], sources.vec[u]) < to_c
-            })
+            own_rows
+                .iter()
+                .any(|&o| separation_vec_rad(sources.vec[o], sources.vec[u]) < to_c)
         };
         let mut under: Vec<u32> = Vec::new();
         for (k, &(i, _)) in near.iter().enumerate() {
@@ -242,12 +258,12 @@ fn decide(
     let contributors = contributors_of(f);
     let mut dominant: Option<(u32, f64)> = None;
     for &b in &coarse {
-        let (fb, _) = nearest_band(&fine.bands, settings.bands[b].wavelength_um)?;
-        let values: Vec<BandValue> = contributors
-            .iter()
-            .map(|&k| sources.band_value(k as usize, fb))
-            .collect();
-        let e = estimate(&values)?;
+        let e = shares_at(&fine.bands, settings.bands[b].wavelength_um, |fb| {
+            contributors
+                .iter()
+                .map(|&k| sources.band_value(k as usize, fb))
+                .collect()
+        })?;
         let d = contributors[e.dominant];
         match dominant {
             Some((prev, _)) if prev != d => return None,

@@ -14,8 +14,10 @@
 //! of stored positions a candidate pair can have, `r_pair` (the largest
 //! tolerance plus the farthest a moving source travels between epochs, see
 //! [`EpochStats::max_stored_separation_arcsec`]); whether it, or a neighbour, is
-//! a blend depends on sources within the widest resolution `r_res`. So
-//! ρ = `r_pair` + `r_res`. A group of candidates found in a cell is the group a
+//! a blend depends on sources within twice the widest resolution `r_res`
+//! ([`super::blends::CLAIM_REACH`]: a finer source within `r_res` of a coarse
+//! one may belong to another coarse row up to `2 r_res` away). So
+//! ρ = `r_pair` + 2 `r_res`. A group of candidates found in a cell is the group a
 //! whole-sky run finds when every member's neighbourhood of radius ρ lies inside
 //! what the cell holds. A member `g` is at most `b(g)` from the cell, where `b(g)`
 //! is its separation from the nearest core source it is tied to (a member of its
@@ -71,9 +73,11 @@ pub struct CellContext<'a> {
 
 impl CellContext<'_> {
     /// ρ for `config` and `epochs`: the largest stored separation of a candidate
-    /// pair plus the widest declared resolution (of a catalog or a band).
+    /// pair plus [`super::blends::CLAIM_REACH`] times the widest declared
+    /// resolution (of a catalog or a band).
     pub fn influence_radius_arcsec(config: &MatchConfig, epochs: &EpochStats) -> f64 {
-        epochs.max_stored_separation_arcsec(config) + config.widest_resolution_arcsec()
+        epochs.max_stored_separation_arcsec(config)
+            + super::blends::CLAIM_REACH * config.widest_resolution_arcsec()
     }
 }
 

@@ -688,9 +688,10 @@ mod tests {
         //   in radians: + 4 · 12.236916 (−ln of 4.848137e-6 rad/″) → ln B_move = 50.802953.
         // Stationary: ln B_stat = 2 ln 2 + ln(w³/Σw) − ½ · 800 in radians = −341.554 (its
         // pairs pass only the widened tolerance, so it is not allowed anyway).
-        // Mixture: ln(0.03) + 50.802953 = 47.296395. Prior with 1e4 sources/deg² per catalog,
-        // ρ = 3.282806e7 sr⁻¹: ln P₀ = −2 ln ρ − 2 ln 4π = −34.613590 − 5.062049 = −39.675637.
-        // Score = 47.296395 − 39.675637 + P₀ (the −ln(1 − P₀) term) = 7.620758.
+        // Mixture (default f = 0.05): ln(0.05) + 50.802953 = −2.995732 + 50.802953 = 47.807221.
+        // Prior with 1e4 sources/deg² per catalog, ρ = 3.282806e7 sr⁻¹:
+        // ln P₀ = −2 ln ρ − 2 ln 4π = −34.613590 − 5.062049 = −39.675637.
+        // Score = 47.807221 − 39.675637 + P₀ (the −ln(1 − P₀) term) = 8.131584.
         let tables = three_epochs([0.0, 2.0, 4.0]);
         let config = MatchConfig::new(3, 2016.0);
         let sources = Sources::prepare(&tables, &config).unwrap();
@@ -707,7 +708,7 @@ mod tests {
         assert_eq!(resolved.len(), 1, "{resolved:?}");
         let o = &resolved[0];
         assert_eq!(o.flags, flags::MOVING);
-        assert!((o.score - 7.620758).abs() < 1e-5, "{}", o.score);
+        assert!((o.score - 8.131584).abs() < 1e-5, "{}", o.score);
         // The fitted motion is the prior-shrunk slope, (Δx/Δt) s²G/K = 0.2 · 152.19772/153.19772
         // = 0.198694″/yr, with variance s²/K = 4.967362e-5 (error 0.007048″/yr), by hand.
         let fit = super::super::moving::fit_moving(&sources, &config, &[0, 1, 2]).unwrap();
