@@ -308,6 +308,20 @@ s,150.0000000,10.0,4.0,0.05,3.4,0.05
 r,150.0005641,10.0,0.12,0.01,0.2,0.01
 ";
 
+/// Builds a scene of `fine` (read with `fine_schema`) and `coarse` at 24 µm in a
+/// fresh folder, kept alive with the output folder returned.
+fn build_scene(fine: &str, fine_schema: &str, coarse: &str) -> (tempfile::TempDir, PathBuf) {
+    let dir = tempfile::tempdir().unwrap();
+    let files = [
+        ("fine.csv", fine),
+        ("coarse.csv", coarse),
+        ("fine.toml", fine_schema),
+        ("coarse.toml", COARSE_SCHEMA),
+    ];
+    let out = build_files(dir.path(), files, "");
+    (dir, out)
+}
+
 /// One 24 µm source on the star.
 const RED_COARSE: &str = "# invented 24 um source
 id,ra,dec,f24,e24
@@ -326,17 +340,7 @@ fn two_band_schema() -> String {
 fn a_red_companion_makes_a_blend_its_8_micron_share_would_not() {
     // From 8 µm alone the companion carries 0.2 / 3.6 = 5.6 % (arithmetic), under the
     // 10 % limit: the star keeps the 24 µm flux, contaminated.
-    let dir = tempfile::tempdir().unwrap();
-    let out = build_files(
-        dir.path(),
-        [
-            ("fine.csv", RED_FINE),
-            ("coarse.csv", RED_COARSE),
-            ("fine.toml", FINE_SCHEMA),
-            ("coarse.toml", COARSE_SCHEMA),
-        ],
-        "",
-    );
+    let (_dir, out) = build_scene(RED_FINE, FINE_SCHEMA, RED_COARSE);
     let star = rows(&out).into_iter().find(|r| r.0 == "fine:s").unwrap();
     let s = &star;
     assert_eq!(
@@ -349,18 +353,8 @@ fn a_red_companion_makes_a_blend_its_8_micron_share_would_not() {
     // With 5.8 µm too, each is carried to 24 µm by its own power law: the star's slope
     // ln(3.4/4)/ln(λ₈/λ₅.₈) ≈ −0.5 and the companion's ≈ +1.6 put the companion near 40 %
     // of the 24 µm flux, so c1 is a blend and neither object gets it as a detection.
-    let dir = tempfile::tempdir().unwrap();
     let schema = two_band_schema();
-    let out = build_files(
-        dir.path(),
-        [
-            ("fine.csv", RED_FINE),
-            ("coarse.csv", RED_COARSE),
-            ("fine.toml", &schema),
-            ("coarse.toml", COARSE_SCHEMA),
-        ],
-        "",
-    );
+    let (_dir, out) = build_scene(RED_FINE, &schema, RED_COARSE);
     let rows = rows(&out);
     let c1 = rows.iter().find(|r| r.0 == "coarse:c1").unwrap();
     assert_eq!(c1.3, "blend+single_catalog", "{c1:?}");
@@ -390,17 +384,7 @@ c2,150.0017770,10.0,3.0,0.1
 fn a_neighbour_the_coarse_catalog_resolved_makes_no_blend() {
     // f2 lies within 6″ of c1, but nearer to c2 (0.4″) than to c1 (5.9″): c2 is its
     // measurement, so c1 lies over f1 alone and each coarse source joins its star.
-    let dir = tempfile::tempdir().unwrap();
-    let out = build_files(
-        dir.path(),
-        [
-            ("fine.csv", NEIGHBOURS_FINE),
-            ("coarse.csv", NEIGHBOURS_COARSE),
-            ("fine.toml", FINE_SCHEMA),
-            ("coarse.toml", COARSE_SCHEMA),
-        ],
-        "",
-    );
+    let (_dir, out) = build_scene(NEIGHBOURS_FINE, FINE_SCHEMA, NEIGHBOURS_COARSE);
     let rows = rows(&out);
     let ids: Vec<&str> = rows.iter().map(|r| r.0.as_str()).collect();
     assert_eq!(ids, ["fine:f1", "fine:f2"], "{rows:?}");

@@ -726,7 +726,9 @@ fn no_band_reads_not_covered_inside_its_footprint() {
 /// `clean`, from a source whose only member is an isolated true object), the mean of
 /// ((F − F_true) / σ)², which is χ²/dof for one degree of freedom per value; the
 /// figure asserted is the median of these per-band means over the bands with 30 or
-/// more values.
+/// more values. Each of those bands must also lie within 0.9–1.1 up to its sampling
+/// noise: the mean of n values of χ²(1) scatters by √(2/n) (standard), so a band of
+/// 200 values is held to 0.9 − 3√(2/n) … 1.1 + 3√(2/n) = 0.60 … 1.40.
 #[test]
 fn detected_fluxes_scatter_as_their_errors_say() {
     let b = built();
@@ -772,13 +774,19 @@ fn detected_fluxes_scatter_as_their_errors_say() {
         entry.1 += 1;
     }
     let mut means: Vec<f64> = Vec::new();
+    let mut outside: Vec<String> = Vec::new();
     for (key, (sum, n)) in &chi2 {
         let mean = sum / *n as f64;
         println!("{key:<20} n = {n:>4}  chi2/dof = {mean:.3}");
         if *n >= 30 {
             means.push(mean);
+            let noise = 3.0 * (2.0 / *n as f64).sqrt();
+            if !(0.9 - noise..=1.1 + noise).contains(&mean) {
+                outside.push(format!("{key}: {mean:.3} (n = {n})"));
+            }
         }
     }
+    assert!(outside.is_empty(), "{outside:?}");
     means.sort_by(f64::total_cmp);
     let median = if means.len() % 2 == 1 {
         means[means.len() / 2]
