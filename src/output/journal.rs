@@ -152,9 +152,10 @@ impl Journal {
 mod tests {
     use super::*;
 
-    #[test]
-    fn a_cell_file_cut_short_counts_as_not_finished() {
-        let tmp = std::env::temp_dir().join(format!("fluxloom-journal-cut-{}", std::process::id()));
+    /// A scratch folder named after `test`, an output folder inside it, and a
+    /// journal of key "one" for it holding cell 17.
+    fn journal_with_cell_17(test: &str) -> (PathBuf, PathBuf, Journal, CellOutput) {
+        let tmp = std::env::temp_dir().join(format!("fluxloom-{test}-{}", std::process::id()));
         let target = tmp.join("fl1");
         std::fs::create_dir_all(&tmp).unwrap();
         let j = Journal::open(&target, "one", 5).unwrap();
@@ -163,6 +164,12 @@ mod tests {
             ..CellOutput::default()
         };
         j.record(17, &out).unwrap();
+        (tmp, target, j, out)
+    }
+
+    #[test]
+    fn a_cell_file_cut_short_counts_as_not_finished() {
+        let (tmp, _, j, out) = journal_with_cell_17("journal-cut");
         j.record(18, &out).unwrap();
         let path = j.cell_file(18);
         let bytes = std::fs::read(&path).unwrap();
@@ -175,15 +182,7 @@ mod tests {
 
     #[test]
     fn a_journal_of_another_key_is_cleared() {
-        let tmp = std::env::temp_dir().join(format!("fluxloom-journal-{}", std::process::id()));
-        let target = tmp.join("fl1");
-        std::fs::create_dir_all(&tmp).unwrap();
-        let j = Journal::open(&target, "one", 5).unwrap();
-        let out = CellOutput {
-            groups: 3,
-            ..CellOutput::default()
-        };
-        j.record(17, &out).unwrap();
+        let (tmp, target, _, out) = journal_with_cell_17("journal-key");
         let again = Journal::open(&target, "one", 5).unwrap();
         assert_eq!(again.finished().unwrap(), BTreeMap::from([(17, out)]));
         let other = Journal::open(&target, "two", 5).unwrap();
